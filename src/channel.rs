@@ -1,0 +1,185 @@
+//! Channels: the engine's vocabulary.
+//!
+//! A channel is a named stream of values in SI units. The canonical channels
+//! (DESIGN.md) have fixed ids so the engine reads them by index; every other
+//! signal keeps its own name and gets the next free id when first seen.
+
+use crate::units::Dimension;
+
+/// Index of a channel in a [`ChannelTable`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct ChannelId(pub u16);
+
+macro_rules! canonical {
+    ($( $konst:ident = $name:literal, $dim:ident; )*) => {
+        /// Fixed ids of the canonical channels.
+        pub mod ch {
+            use super::ChannelId;
+            canonical!(@ids 0u16; $($konst)*);
+        }
+        /// The canonical channels, in id order: name and dimension.
+        pub const CANONICAL: &[(&str, Dimension)] = &[ $( ($name, Dimension::$dim), )* ];
+    };
+    (@ids $n:expr; $first:ident $($rest:ident)*) => {
+        pub const $first: ChannelId = ChannelId($n);
+        canonical!(@ids $n + 1u16; $($rest)*);
+    };
+    (@ids $n:expr;) => {};
+}
+
+canonical! {
+    VEHICLE_SPEED = "vehicle.speed", Speed;
+    GNSS_SPEED = "gnss.speed", Speed;
+    VEHICLE_ACCEL = "vehicle.accel", Accel;
+    ENGINE_RPM = "engine.rpm", ShaftSpeed;
+    ENGINE_TORQUE = "engine.torque", Torque;
+    ENGINE_POWER = "engine.power", Power;
+    MOTOR_POWER = "motor.power", Power;
+    BATTERY_VOLTAGE = "battery.voltage", Voltage;
+    BATTERY_CURRENT = "battery.current", Current;
+    BATTERY_SOC = "battery.soc", Fraction;
+    BATTERY_TEMP = "battery.temp", Temperature;
+    BATTERY_POWER_LIMIT = "battery.power_limit", Power;
+    DRIVER_THROTTLE = "driver.throttle", Fraction;
+    DRIVER_BRAKE = "driver.brake", Fraction;
+    DRIVER_BOOST = "driver.boost", Plain;
+    GEARBOX_GEAR = "gearbox.gear", Plain;
+    AMBIENT_TEMP = "ambient.temp", Temperature;
+    AMBIENT_PRESSURE = "ambient.pressure", Pressure;
+    AMBIENT_HUMIDITY = "ambient.humidity", Fraction;
+    AMBIENT_WIND = "ambient.wind", Speed;
+    GNSS_LAT = "gnss.lat", Angle;
+    GNSS_LON = "gnss.lon", Angle;
+    GNSS_ALT = "gnss.alt", Length;
+    GNSS_FIX = "gnss.fix", Plain;
+    GNSS_COURSE = "gnss.course", Angle;
+    GNSS_SATS = "gnss.sats", Plain;
+    TYRE_FL_TEMP = "tyre.fl.temp", Temperature;
+    TYRE_FR_TEMP = "tyre.fr.temp", Temperature;
+    TYRE_RL_TEMP = "tyre.rl.temp", Temperature;
+    TYRE_RR_TEMP = "tyre.rr.temp", Temperature;
+    TYRE_FL_PRESSURE = "tyre.fl.pressure", Pressure;
+    TYRE_FR_PRESSURE = "tyre.fr.pressure", Pressure;
+    TYRE_RL_PRESSURE = "tyre.rl.pressure", Pressure;
+    TYRE_RR_PRESSURE = "tyre.rr.pressure", Pressure;
+}
+
+/// The dimension a name demands if it is canonical: a listed name, or a
+/// `tyre.<position>.temp|pressure` of any position.
+pub fn canonical_dimension(name: &str) -> Option<Dimension> {
+    if let Some((_, d)) = CANONICAL.iter().find(|(n, _)| *n == name) {
+        return Some(*d);
+    }
+    let mut parts = name.split('.');
+    match (parts.next(), parts.next(), parts.next(), parts.next()) {
+        (Some("tyre"), Some(pos), Some("temp"), None) if valid_part(pos) => Some(Dimension::Temperature),
+        (Some("tyre"), Some(pos), Some("pressure"), None) if valid_part(pos) => Some(Dimension::Pressure),
+        _ => None,
+    }
+}
+
+fn valid_part(s: &str) -> bool {
+    !s.is_empty() && s.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'_')
+}
+
+/// Whether `name` is a well-formed channel name: dot-separated parts of
+/// ASCII letters, digits and underscores.
+pub fn valid_channel_name(name: &str) -> bool {
+    name.len() <= 64 && name.split('.').all(valid_part)
+}
+
+/// One channel's static description.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelInfo {
+    pub name: String,
+    pub dimension: Dimension,
+    /// Period at which fresh samples are expected, if any source promises one.
+    pub expected_period_ns: Option<i64>,
+}
+
+/// All channels of a session. Canonical channels first, at their fixed ids.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelTable {
+    channels: Vec<ChannelInfo>,
+}
+
+impl Default for ChannelTable {
+    fn default() -> Self {
+        ChannelTable {
+            channels: CANONICAL
+                .iter()
+                .map(|(n, d)| ChannelInfo { name: n.to_string(), dimension: *d, expected_period_ns: None })
+                .collect(),
+        }
+    }
+}
+
+impl ChannelTable {
+    /// The id of `name`, adding it (with `dimension`) if it is new.
+    pub fn intern(&mut self, name: &str, dimension: Dimension) -> ChannelId {
+        if let Some(id) = self.find(name) {
+            return id;
+        }
+        self.channels.push(ChannelInfo { name: name.to_string(), dimension, expected_period_ns: None });
+        ChannelId((self.channels.len() - 1) as u16)
+    }
+
+    pub fn find(&self, name: &str) -> Option<ChannelId> {
+        self.channels.iter().position(|c| c.name == name).map(|i| ChannelId(i as u16))
+    }
+
+    pub fn get(&self, id: ChannelId) -> &ChannelInfo {
+        &self.channels[id.0 as usize]
+    }
+
+    /// Records that samples of `id` are expected at least every `period_ns`;
+    /// the shortest promise wins.
+    pub fn expect_period(&mut self, id: ChannelId, period_ns: i64) {
+        let c = &mut self.channels[id.0 as usize];
+        c.expected_period_ns = Some(c.expected_period_ns.map_or(period_ns, |p| p.min(period_ns)));
+    }
+
+    pub fn len(&self) -> usize {
+        self.channels.len()
+    }
+
+    pub fn is_empty(&self) -> bool {
+        self.channels.is_empty()
+    }
+
+    pub fn iter(&self) -> impl Iterator<Item = (ChannelId, &ChannelInfo)> {
+        self.channels.iter().enumerate().map(|(i, c)| (ChannelId(i as u16), c))
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fixed_ids_match_the_list() {
+        let t = ChannelTable::default();
+        assert_eq!(t.get(ch::VEHICLE_SPEED).name, "vehicle.speed");
+        assert_eq!(t.get(ch::TYRE_RR_PRESSURE).name, "tyre.rr.pressure");
+        assert_eq!(t.find("battery.soc"), Some(ch::BATTERY_SOC));
+    }
+
+    #[test]
+    fn tyre_positions_are_canonical_patterns() {
+        assert_eq!(canonical_dimension("tyre.rl2.temp"), Some(Dimension::Temperature));
+        assert_eq!(canonical_dimension("tyre.fl.pressure"), Some(Dimension::Pressure));
+        assert_eq!(canonical_dimension("tyre..temp"), None);
+        assert_eq!(canonical_dimension("coolant.temp"), None);
+        assert!(valid_channel_name("coolant.temp"));
+        assert!(!valid_channel_name("coolant temp"));
+    }
+
+    #[test]
+    fn shortest_period_wins() {
+        let mut t = ChannelTable::default();
+        t.expect_period(ch::VEHICLE_SPEED, 20_000_000);
+        t.expect_period(ch::VEHICLE_SPEED, 10_000_000);
+        t.expect_period(ch::VEHICLE_SPEED, 50_000_000);
+        assert_eq!(t.get(ch::VEHICLE_SPEED).expected_period_ns, Some(10_000_000));
+    }
+}

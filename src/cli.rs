@@ -1,0 +1,139 @@
+//! Command-line arguments as written (clap, derive). Validation of values
+//! happens here; turning them into settings happens in [`crate::cmd`].
+
+use std::path::PathBuf;
+
+use clap::{Args, Parser, Subcommand};
+
+use crate::event::TimeNs;
+
+#[derive(Parser, Debug)]
+#[command(
+    name = "termvel",
+    version,
+    about = "Telemetry, derived quantities and projections for high-speed runs, in the terminal.",
+    long_about = "Telemetry, derived quantities and projections for high-speed runs, in the terminal.\n\nWith no command, termvel rehearses the bundled demo plan on the run screen.",
+    after_help = "Advisory only: the run director, track officials and local rules decide; termvel is not a safety system."
+)]
+pub struct Cli {
+    #[command(subcommand)]
+    pub command: Option<Command>,
+}
+
+#[derive(Subcommand, Debug)]
+pub enum Command {
+    /// Rehearse a run plan with the simulator, on the screens or headless.
+    Rehearse(NotBuiltArgs),
+    /// Replay a termvel recording or a candump -L log.
+    Replay(ReplayArgs),
+    /// Watch a run live from SocketCAN and serial inputs.
+    Live(NotBuiltArgs),
+    /// Summarise a recorded run: peaks, derating, estimates, alerts, data quality.
+    Report(NotBuiltArgs),
+    /// Export every channel and derived quantity to CSV or Parquet.
+    Export(NotBuiltArgs),
+    /// Plan a run: predicted peak, best boost start, probabilities.
+    Plan(NotBuiltArgs),
+    /// Validate config files and print what they define, without running anything.
+    Check(CheckArgs),
+}
+
+/// Arguments of a command that is not built yet (accepted, then refused).
+#[derive(Args, Debug)]
+pub struct NotBuiltArgs {
+    #[arg(trailing_var_arg = true, allow_hyphen_values = true, hide = true)]
+    pub rest: Vec<String>,
+}
+
+/// Options every running command shares.
+#[derive(Args, Debug, Clone)]
+pub struct RunOpts {
+    /// Print snapshots as JSON lines instead of drawing the screens.
+    #[arg(long)]
+    pub headless: bool,
+    /// Stream time between snapshots (e.g. 100ms, 0.25s, 1s).
+    #[arg(long, value_name = "DURATION", default_value = "100ms", value_parser = parse_duration_ns)]
+    pub every: TimeNs,
+    /// Do not record this session.
+    #[arg(long)]
+    pub no_record: bool,
+    /// Directory for the recording (default: the platform's data directory).
+    #[arg(long, value_name = "DIR")]
+    pub record_dir: Option<PathBuf>,
+    /// Config files or directories to use instead of the recording's own (or the built-in demo set).
+    #[arg(long = "config", short = 'c', value_name = "PATH")]
+    pub config: Vec<PathBuf>,
+}
+
+#[derive(Args, Debug)]
+pub struct ReplayArgs {
+    /// A termvel recording (.tvrec) or a candump -L log.
+    pub file: PathBuf,
+    #[command(flatten)]
+    pub run: RunOpts,
+    /// Pace at this factor of real time (0.1 to 64). Screens start at 1; headless runs go as fast as possible unless this is given.
+    #[arg(long, value_name = "FACTOR", value_parser = parse_speed)]
+    pub speed: Option<f64>,
+    /// Replay as fast as possible.
+    #[arg(long, alias = "fast", conflicts_with = "speed")]
+    pub as_fast_as_possible: bool,
+    /// Start paused.
+    #[arg(long)]
+    pub paused: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct CheckArgs {
+    /// Config files or directories (default: ./config if present, else the built-in demo set).
+    pub files: Vec<PathBuf>,
+}
+
+/// Parses `100ms`, `0.25s`, `1s`, `500us`, `2min` into nanoseconds.
+pub fn parse_duration_ns(s: &str) -> Result<TimeNs, String> {
+    let s = s.trim();
+    let split = s.find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(s.len());
+    let (num, unit) = s.split_at(split);
+    let v: f64 = num.parse().map_err(|_| format!("expected a duration like 100ms or 0.25s, found \"{s}\""))?;
+    let scale = match unit.trim() {
+        "ns" => 1.0,
+        "us" | "µs" => 1e3,
+        "ms" => 1e6,
+        "s" | "" => 1e9,
+        "min" => 60e9,
+        other => return Err(format!("expected a unit of ns, us, ms, s or min, found \"{other}\"")),
+    };
+    let ns = (v * scale).round();
+    if !(1e6..=3600e9).contains(&ns) {
+        return Err(format!("expected a duration from 1ms to 1h, found \"{s}\""));
+    }
+    Ok(ns as TimeNs)
+}
+
+fn parse_speed(s: &str) -> Result<f64, String> {
+    let v: f64 =
+        s.trim_end_matches('x').parse().map_err(|_| format!("expected a factor like 2 or 0.5, found \"{s}\""))?;
+    if !(crate::player::MIN_SPEED..=crate::player::MAX_SPEED).contains(&v) {
+        return Err(format!("expected a factor from 0.1 to 64, found {v}"));
+    }
+    Ok(v)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn durations() {
+        assert_eq!(parse_duration_ns("100ms"), Ok(100_000_000));
+        assert_eq!(parse_duration_ns("0.25s"), Ok(250_000_000));
+        assert_eq!(parse_duration_ns("1"), Ok(1_000_000_000));
+        assert!(parse_duration_ns("10 parsecs").is_err());
+        assert!(parse_duration_ns("0ms").is_err());
+    }
+
+    #[test]
+    fn cli_is_well_formed() {
+        use clap::CommandFactory;
+        Cli::command().debug_assert();
+    }
+}

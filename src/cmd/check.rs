@@ -1,0 +1,241 @@
+//! `termvel check`: validate config files and say what they define.
+
+use std::fmt::Write as _;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use crate::channel::canonical_dimension;
+use crate::cli::CheckArgs;
+use crate::config::alerts::DERIVED_NAMES;
+use crate::config::{self, ConfigError, ConfigKind, FileReport, Parsed};
+use crate::decode::busload::bus_load;
+
+/// Bus load above which `check` warns.
+pub const BUS_LOAD_WARN: f64 = 0.70;
+
+pub fn run(args: &CheckArgs) -> anyhow::Result<ExitCode> {
+    let files: Vec<(String, String)> = if args.files.is_empty() {
+        let local = PathBuf::from("config");
+        if local.is_dir() {
+            match config::read_paths(&[local]) {
+                Ok(f) => f,
+                Err(e) => return print_errors(&e.0),
+            }
+        } else {
+            config::EMBEDDED.iter().map(|(n, t)| (format!("<embedded>/{n}"), t.to_string())).collect()
+        }
+    } else {
+        match read_all(&args.files) {
+            Ok(f) => f,
+            Err(e) => return print_errors(&e),
+        }
+    };
+    let (text, ok) = check_texts(&files);
+    print!("{text}");
+    Ok(if ok { ExitCode::SUCCESS } else { ExitCode::from(super::EXIT_UNUSABLE) })
+}
+
+fn read_all(paths: &[PathBuf]) -> Result<Vec<(String, String)>, Vec<ConfigError>> {
+    let mut out = Vec::new();
+    let mut errors = Vec::new();
+    for p in paths {
+        match config::read_paths(std::slice::from_ref(p)) {
+            Ok(mut f) => out.append(&mut f),
+            Err(e) => errors.extend(e.0),
+        }
+    }
+    if errors.is_empty() { Ok(out) } else { Err(errors) }
+}
+
+fn print_errors(errors: &[ConfigError]) -> anyhow::Result<ExitCode> {
+    for e in errors {
+        println!("{e}");
+    }
+    println!("invalid: {} error{}", errors.len(), if errors.len() == 1 { "" } else { "s" });
+    Ok(ExitCode::from(super::EXIT_UNUSABLE))
+}
+
+/// Validates a set of (origin, text) files; returns the printed summary
+/// and whether the set is valid.
+pub fn check_texts(files: &[(String, String)]) -> (String, bool) {
+    let reports: Vec<FileReport> = files.iter().map(|(o, t)| config::validate_text(o, t)).collect();
+    let mut out = String::new();
+    let mut errors = 0;
+    let mut warnings = 0;
+    // Cross-file facts: channels fed by the signal map in this set.
+    let fed: Option<Vec<String>> = reports.iter().find_map(|r| match &r.parsed {
+        Some(Parsed::Signals(s)) => {
+            Some(s.messages.iter().flat_map(|m| m.signals.iter().map(|s| s.channel.clone())).collect())
+        }
+        _ => None,
+    });
+    let mut seen_kinds: Vec<ConfigKind> = Vec::new();
+    for r in &reports {
+        for e in &r.errors {
+            let _ = writeln!(out, "{e}");
+            errors += 1;
+        }
+        for w in &r.warnings {
+            let _ = writeln!(out, "{}: warning: {}", location(w), w.message);
+            warnings += 1;
+        }
+        if let Some(k) = r.kind {
+            if k != ConfigKind::Plan && seen_kinds.contains(&k) {
+                let _ = writeln!(
+                    out,
+                    "{}:1:1: kind: a second {} config in one set; give one file per kind",
+                    r.origin,
+                    k.as_str()
+                );
+                errors += 1;
+            }
+            seen_kinds.push(k);
+        }
+        let Some(parsed) = &r.parsed else { continue };
+        match parsed {
+            Parsed::Vehicle(v) => {
+                let _ = writeln!(
+                    out,
+                    "{}: vehicle \"{}\": {:.0} kg, CdA {:.3} m², Crr {:.4}, motor {:.0} kW, battery {:.1} kWh ({:.0}–{:.0} % usable), tyres rated {:.0} km/h",
+                    r.origin,
+                    v.name,
+                    v.mass_kg,
+                    v.cda_m2,
+                    v.crr0,
+                    v.motor_rated_power_w / 1e3,
+                    v.battery.energy_j / 3.6e6,
+                    v.battery.soc_reserve * 100.0,
+                    v.battery.soc_max * 100.0,
+                    v.tyre_rated_mps * 3.6
+                );
+            }
+            Parsed::Track(t) => {
+                let _ = writeln!(
+                    out,
+                    "{}: track \"{}\": zone {:.0} m, stop by {:.0} m, target {:.0} km/h, braking {:.1} m/s² to {:.0} km/h, elevation {:.0} m",
+                    r.origin,
+                    t.name,
+                    t.zone_length_m,
+                    t.stop_by_m(),
+                    t.target_speed_mps * 3.6,
+                    t.braking_decel_mps2,
+                    t.exit_speed_mps * 3.6,
+                    t.elevation_m
+                );
+            }
+            Parsed::Signals(s) => {
+                let n_sig: usize = s.messages.iter().map(|m| m.signals.len()).sum();
+                let _ = writeln!(
+                    out,
+                    "{}: signals: {} messages, {} signals, {} kbit/s{}",
+                    r.origin,
+                    s.messages.len(),
+                    n_sig,
+                    s.bitrate / 1000,
+                    s.data_bitrate.map(|d| format!(" (FD data {} kbit/s)", d / 1000)).unwrap_or_default()
+                );
+                let load = bus_load(s);
+                for (m, l) in s.messages.iter().zip(&load.per_message) {
+                    let _ = writeln!(
+                        out,
+                        "  {:>8}  {:<16} {:>6.1} ms {:>3} B{} {:>2} signals  {:>5.1} % of the bus",
+                        m.id.to_string(),
+                        m.name,
+                        m.period_ns as f64 / 1e6,
+                        m.length,
+                        if m.fd { " FD" } else { "   " },
+                        m.signals.len(),
+                        l.load * 100.0
+                    );
+                }
+                let mut canonical: Vec<&str> = Vec::new();
+                let mut other: Vec<&str> = Vec::new();
+                for m in &s.messages {
+                    for sig in &m.signals {
+                        let list =
+                            if canonical_dimension(&sig.channel).is_some() { &mut canonical } else { &mut other };
+                        if !list.contains(&sig.channel.as_str()) {
+                            list.push(&sig.channel);
+                        }
+                    }
+                }
+                let _ = writeln!(
+                    out,
+                    "  channels fed: {}",
+                    if canonical.is_empty() { "none".into() } else { canonical.join(", ") }
+                );
+                let _ = writeln!(
+                    out,
+                    "  unknown channels (kept under their own names): {}",
+                    if other.is_empty() { "none".into() } else { other.join(", ") }
+                );
+                let _ = writeln!(
+                    out,
+                    "  bus load at the configured periods: {:.1} % worst case (bit-stuffed), {:.1} % unstuffed, {:.0} frames/s",
+                    load.worst * 100.0,
+                    load.best * 100.0,
+                    load.frames_per_s
+                );
+                if load.worst > BUS_LOAD_WARN {
+                    let _ = writeln!(
+                        out,
+                        "{}: warning: worst-case bus load {:.1} % is above {:.0} %: frames will queue and arrive late",
+                        r.origin,
+                        load.worst * 100.0,
+                        BUS_LOAD_WARN * 100.0
+                    );
+                    warnings += 1;
+                }
+            }
+            Parsed::Alerts(a) => {
+                let _ = writeln!(
+                    out,
+                    "{}: alerts: {} rule{}; stale after {} periods, boost-left alert below {:.0} s",
+                    r.origin,
+                    a.rules.len(),
+                    if a.rules.len() == 1 { "" } else { "s" },
+                    a.limits.stale_after_periods,
+                    a.limits.boost_left_low_s
+                );
+                if let Some(fed) = &fed {
+                    for (i, rule) in a.rules.iter().enumerate() {
+                        let known = fed.contains(&rule.channel)
+                            || canonical_dimension(&rule.channel).is_some()
+                            || DERIVED_NAMES.contains(&rule.channel.as_str());
+                        if !known {
+                            let _ = writeln!(
+                                out,
+                                "{}: warning: rule[{i}].channel: \"{}\" is not fed by the signal map in this set; the rule can never fire",
+                                r.origin, rule.channel
+                            );
+                            warnings += 1;
+                        }
+                    }
+                }
+            }
+        }
+    }
+    let valid = errors == 0;
+    let _ = writeln!(
+        out,
+        "{}: {} file{}, {} error{}, {} warning{}",
+        if valid { "valid" } else { "invalid" },
+        files.len(),
+        if files.len() == 1 { "" } else { "s" },
+        errors,
+        if errors == 1 { "" } else { "s" },
+        warnings,
+        if warnings == 1 { "" } else { "s" }
+    );
+    (out, valid)
+}
+
+fn location(e: &ConfigError) -> String {
+    if e.line == 0 {
+        e.file.clone()
+    } else if e.key.is_empty() {
+        format!("{}:{}:{}", e.file, e.line, e.column)
+    } else {
+        format!("{}:{}:{}: {}", e.file, e.line, e.column, e.key)
+    }
+}

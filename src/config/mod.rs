@@ -1,0 +1,544 @@
+//! Configuration: TOML files in termvel's own schema, validated with errors
+//! that name the file, line, column, key and what was expected.
+//!
+//! Two stages, as in a careful command-line tool: each file is read as
+//! written into a raw serde structure (validation only), then turned into
+//! one validated, SI-unit value the rest of the program uses. Every file
+//! names its kind in a top-level `kind` key.
+
+pub mod alerts;
+pub mod locate;
+pub mod signals;
+pub mod track;
+pub mod vehicle;
+
+use std::fmt;
+use std::ops::Range;
+use std::path::{Path, PathBuf};
+
+use serde::de::DeserializeOwned;
+use toml::Spanned;
+
+pub use alerts::{AlertRule, Alerts, Severity};
+pub use signals::Signals;
+pub use track::Track;
+pub use vehicle::Vehicle;
+
+/// A problem in a config file, located.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ConfigError {
+    /// The file as the user named it (or `<embedded>/NAME` for the built-ins).
+    pub file: String,
+    /// 1-based line; 0 when the problem is the whole set (a missing file).
+    pub line: usize,
+    /// 1-based column in characters.
+    pub column: usize,
+    /// Dotted key path, with array indices (`message[2].signal[0].scale`).
+    pub key: String,
+    /// What was expected and what was found.
+    pub message: String,
+}
+
+impl fmt::Display for ConfigError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        if self.line == 0 {
+            write!(f, "{}: {}", self.file, self.message)
+        } else if self.key.is_empty() {
+            write!(f, "{}:{}:{}: {}", self.file, self.line, self.column, self.message)
+        } else {
+            write!(f, "{}:{}:{}: {}: {}", self.file, self.line, self.column, self.key, self.message)
+        }
+    }
+}
+
+impl std::error::Error for ConfigError {}
+
+/// All the problems found in a set of files.
+#[derive(Clone, Debug, Default)]
+pub struct ConfigErrors(pub Vec<ConfigError>);
+
+impl fmt::Display for ConfigErrors {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        for (i, e) in self.0.iter().enumerate() {
+            if i > 0 {
+                writeln!(f)?;
+            }
+            write!(f, "{e}")?;
+        }
+        Ok(())
+    }
+}
+
+impl std::error::Error for ConfigErrors {}
+
+/// The kinds of config file.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub enum ConfigKind {
+    Vehicle,
+    Track,
+    Signals,
+    Alerts,
+    Plan,
+}
+
+impl ConfigKind {
+    pub const ALL: [ConfigKind; 5] =
+        [ConfigKind::Vehicle, ConfigKind::Track, ConfigKind::Signals, ConfigKind::Alerts, ConfigKind::Plan];
+
+    pub fn as_str(self) -> &'static str {
+        match self {
+            ConfigKind::Vehicle => "vehicle",
+            ConfigKind::Track => "track",
+            ConfigKind::Signals => "signals",
+            ConfigKind::Alerts => "alerts",
+            ConfigKind::Plan => "plan",
+        }
+    }
+
+    pub fn parse(s: &str) -> Option<ConfigKind> {
+        ConfigKind::ALL.into_iter().find(|k| k.as_str() == s)
+    }
+}
+
+/// One config file's text as loaded, kept so a recording can embed exactly
+/// what was used.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct ConfigText {
+    pub kind: ConfigKind,
+    /// Where it came from, for messages.
+    pub origin: String,
+    pub text: String,
+}
+
+/// Collects located errors and warnings while one file is validated.
+pub struct Ctx<'a> {
+    pub file: &'a str,
+    pub src: &'a str,
+    pub errors: Vec<ConfigError>,
+    pub warnings: Vec<ConfigError>,
+}
+
+impl<'a> Ctx<'a> {
+    pub fn new(file: &'a str, src: &'a str) -> Ctx<'a> {
+        Ctx { file, src, errors: Vec::new(), warnings: Vec::new() }
+    }
+
+    fn located(&self, span: Range<usize>, key: &str, message: String) -> ConfigError {
+        let (line, column) = locate::line_col(self.src, span.start);
+        ConfigError { file: self.file.to_string(), line, column, key: key.to_string(), message }
+    }
+
+    /// An error at `span`.
+    pub fn err(&mut self, span: Range<usize>, key: &str, message: impl Into<String>) {
+        let e = self.located(span, key, message.into());
+        self.errors.push(e);
+    }
+
+    /// A warning at `span`: the file is usable but something is probably wrong.
+    pub fn warn(&mut self, span: Range<usize>, key: &str, message: impl Into<String>) {
+        let e = self.located(span, key, message.into());
+        self.warnings.push(e);
+    }
+
+    /// Checks `lo <= v <= hi` and finiteness; records an error otherwise.
+    pub fn range(&mut self, v: &Spanned<f64>, key: &str, lo: f64, hi: f64, what: &str) -> f64 {
+        let x = *v.get_ref();
+        if !x.is_finite() || x < lo || x > hi {
+            self.err(v.span(), key, format!("expected {what} ({lo} to {hi}), found {x}"));
+        }
+        x
+    }
+
+    /// Checks `v > 0` and finiteness.
+    pub fn positive(&mut self, v: &Spanned<f64>, key: &str, what: &str) -> f64 {
+        let x = *v.get_ref();
+        if !x.is_finite() || x <= 0.0 {
+            self.err(v.span(), key, format!("expected {what} above 0, found {x}"));
+        }
+        x
+    }
+
+    /// Deserialises the whole file into a raw structure, translating serde's
+    /// message into "expected …, found …" with the key located.
+    pub fn parse<T: DeserializeOwned>(&mut self) -> Option<T> {
+        match toml::from_str::<T>(self.src) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                let span = e.span().unwrap_or(0..0);
+                let mut key = locate::key_path_at(self.src, span.start);
+                let message = humanise(e.message(), &mut key);
+                let err = self.located(span, &key, message);
+                self.errors.push(err);
+                None
+            }
+        }
+    }
+}
+
+/// Rewrites serde's wording into termvel's: what was expected first.
+fn humanise(msg: &str, key: &mut String) -> String {
+    let msg = msg.trim();
+    if let Some(rest) = msg.strip_prefix("invalid type: ")
+        && let Some((found, expected)) = rest.split_once(", expected ")
+    {
+        return format!("expected {}, found {}", plain_type(expected), found);
+    }
+    if let Some(rest) = msg.strip_prefix("invalid value: ")
+        && let Some((found, expected)) = rest.split_once(", expected ")
+    {
+        return format!("expected {}, found {}", plain_type(expected), found);
+    }
+    if let Some(rest) = msg.strip_prefix("unknown field ") {
+        let (field, allowed) = rest.split_once(", expected ").unwrap_or((rest, ""));
+        return if allowed.is_empty() {
+            format!("unknown key {field}; this table takes no keys")
+        } else {
+            format!("unknown key {field}; expected one of {allowed}")
+        };
+    }
+    if let Some(rest) = msg.strip_prefix("missing field ") {
+        let name = rest.trim_matches('`');
+        if key.is_empty() {
+            *key = name.to_string();
+        } else {
+            key.push('.');
+            key.push_str(name);
+        }
+        return format!("missing key `{name}`");
+    }
+    if let Some(rest) = msg.strip_prefix("unknown variant ") {
+        let (found, allowed) = rest.split_once(", expected ").unwrap_or((rest, "?"));
+        return format!("expected {allowed}, found {found}");
+    }
+    msg.to_string()
+}
+
+fn plain_type(t: &str) -> String {
+    match t {
+        "f64" | "f32" => "a number".to_string(),
+        "u8" | "u16" | "u32" | "u64" | "usize" => format!("a whole number ≥ 0 (fits {t})"),
+        "i8" | "i16" | "i32" | "i64" => format!("a whole number (fits {t})"),
+        "a boolean" | "bool" => "true or false".to_string(),
+        other => other.to_string(),
+    }
+}
+
+#[derive(serde::Deserialize)]
+struct KindOnly {
+    kind: Option<Spanned<String>>,
+}
+
+/// Reads the `kind` key of a file.
+pub fn detect_kind(file: &str, src: &str) -> Result<ConfigKind, ConfigError> {
+    let mut ctx = Ctx::new(file, src);
+    let Some(k) = ctx.parse::<KindOnly>() else {
+        return Err(ctx.errors.remove(0));
+    };
+    let expected = "expected one of \"vehicle\", \"track\", \"signals\", \"alerts\", \"plan\"";
+    match k.kind {
+        None => Err(ConfigError {
+            file: file.to_string(),
+            line: 1,
+            column: 1,
+            key: "kind".into(),
+            message: format!("missing key `kind`; every termvel config names its kind: {expected}"),
+        }),
+        Some(s) => ConfigKind::parse(s.get_ref()).ok_or_else(|| {
+            let (line, column) = locate::line_col(src, s.span().start);
+            ConfigError {
+                file: file.to_string(),
+                line,
+                column,
+                key: "kind".into(),
+                message: format!("{expected}, found \"{}\"", s.get_ref()),
+            }
+        }),
+    }
+}
+
+/// One validated file.
+#[derive(Clone, Debug)]
+pub enum Parsed {
+    Vehicle(Vehicle),
+    Track(Track),
+    Signals(Signals),
+    Alerts(Alerts),
+}
+
+/// Result of validating one file: the value (if valid) and any warnings.
+pub struct FileReport {
+    pub origin: String,
+    pub kind: Option<ConfigKind>,
+    pub parsed: Option<Parsed>,
+    pub errors: Vec<ConfigError>,
+    pub warnings: Vec<ConfigError>,
+}
+
+/// Validates one file's text.
+pub fn validate_text(origin: &str, text: &str) -> FileReport {
+    let kind = match detect_kind(origin, text) {
+        Ok(k) => k,
+        Err(e) => {
+            return FileReport { origin: origin.into(), kind: None, parsed: None, errors: vec![e], warnings: vec![] };
+        }
+    };
+    let mut ctx = Ctx::new(origin, text);
+    let parsed = match kind {
+        ConfigKind::Vehicle => vehicle::validate(&mut ctx).map(Parsed::Vehicle),
+        ConfigKind::Track => track::validate(&mut ctx).map(Parsed::Track),
+        ConfigKind::Signals => signals::validate(&mut ctx).map(Parsed::Signals),
+        ConfigKind::Alerts => alerts::validate(&mut ctx).map(Parsed::Alerts),
+        ConfigKind::Plan => {
+            ctx.errors.push(ConfigError {
+                file: origin.into(),
+                line: 1,
+                column: 1,
+                key: "kind".into(),
+                message: "run plans are read by `termvel rehearse` and `termvel plan`, not in a config set".into(),
+            });
+            None
+        }
+    };
+    let parsed = if ctx.errors.is_empty() { parsed } else { None };
+    FileReport { origin: origin.into(), kind: Some(kind), parsed, errors: ctx.errors, warnings: ctx.warnings }
+}
+
+/// Everything a run needs, validated.
+#[derive(Clone, Debug)]
+pub struct ConfigSet {
+    pub vehicle: Vehicle,
+    pub track: Track,
+    pub signals: Signals,
+    pub alerts: Alerts,
+    /// The texts these came from, in kind order, for embedding in recordings.
+    pub texts: Vec<ConfigText>,
+}
+
+/// The demo configuration compiled into the binary, so `termvel` runs from
+/// anywhere.
+pub const EMBEDDED: &[(&str, &str)] = &[
+    ("vehicle.toml", include_str!("../../config/vehicle.toml")),
+    ("track.toml", include_str!("../../config/track.toml")),
+    ("signals.toml", include_str!("../../config/signals.toml")),
+    ("alerts.toml", include_str!("../../config/alerts.toml")),
+];
+
+impl ConfigSet {
+    /// The built-in demo set.
+    pub fn embedded() -> ConfigSet {
+        let texts = EMBEDDED.iter().map(|(n, t)| (format!("<embedded>/{n}"), t.to_string())).collect();
+        ConfigSet::from_texts(texts).expect("the embedded demo config is valid (tested)")
+    }
+
+    /// Builds a set from (origin, text) pairs. Missing vehicle, track or
+    /// signals files are errors; a missing alerts file means no custom rules
+    /// and default limits.
+    pub fn from_texts(files: Vec<(String, String)>) -> Result<ConfigSet, ConfigErrors> {
+        let mut errors = Vec::new();
+        let mut vehicle = None;
+        let mut track = None;
+        let mut signals = None;
+        let mut alerts = None;
+        let mut texts = Vec::new();
+        for (origin, text) in files {
+            let report = validate_text(&origin, &text);
+            errors.extend(report.errors);
+            let Some(kind) = report.kind else { continue };
+            if kind == ConfigKind::Plan {
+                continue;
+            }
+            if texts.iter().any(|t: &ConfigText| t.kind == kind) {
+                errors.push(ConfigError {
+                    file: origin.clone(),
+                    line: 1,
+                    column: 1,
+                    key: "kind".into(),
+                    message: format!("a second {} config in one set; give one file per kind", kind.as_str()),
+                });
+                continue;
+            }
+            texts.push(ConfigText { kind, origin: origin.clone(), text });
+            match report.parsed {
+                Some(Parsed::Vehicle(v)) => vehicle = Some(v),
+                Some(Parsed::Track(t)) => track = Some(t),
+                Some(Parsed::Signals(s)) => signals = Some(s),
+                Some(Parsed::Alerts(a)) => alerts = Some(a),
+                None => {}
+            }
+        }
+        for (kind, present) in [
+            (ConfigKind::Vehicle, texts.iter().any(|t| t.kind == ConfigKind::Vehicle)),
+            (ConfigKind::Track, texts.iter().any(|t| t.kind == ConfigKind::Track)),
+            (ConfigKind::Signals, texts.iter().any(|t| t.kind == ConfigKind::Signals)),
+        ] {
+            if !present {
+                errors.push(ConfigError {
+                    file: "(config set)".into(),
+                    line: 0,
+                    column: 0,
+                    key: String::new(),
+                    message: format!(
+                        "no {} config in the set; give a file with kind = \"{}\"",
+                        kind.as_str(),
+                        kind.as_str()
+                    ),
+                });
+            }
+        }
+        if !errors.is_empty() {
+            return Err(ConfigErrors(errors));
+        }
+        texts.sort_by_key(|t| t.kind);
+        Ok(ConfigSet {
+            vehicle: vehicle.expect("checked"),
+            track: track.expect("checked"),
+            signals: signals.expect("checked"),
+            alerts: alerts.unwrap_or_default(),
+            texts,
+        })
+    }
+
+    /// Loads files and directories (every `*.toml` in a directory, sorted).
+    /// Plan files in a directory are skipped; they are not part of a set.
+    pub fn load(paths: &[PathBuf]) -> Result<ConfigSet, ConfigErrors> {
+        let files = read_paths(paths)?;
+        ConfigSet::from_texts(files)
+    }
+}
+
+/// Reads files and the `*.toml` files of directories, as (origin, text).
+pub fn read_paths(paths: &[PathBuf]) -> Result<Vec<(String, String)>, ConfigErrors> {
+    let mut out = Vec::new();
+    let mut errors = Vec::new();
+    for p in paths {
+        if p.is_dir() {
+            let mut entries: Vec<PathBuf> = match std::fs::read_dir(p) {
+                Ok(rd) => rd
+                    .filter_map(|e| e.ok().map(|e| e.path()))
+                    .filter(|p| p.extension().is_some_and(|e| e == "toml"))
+                    .collect(),
+                Err(e) => {
+                    errors.push(io_error(p, &e));
+                    continue;
+                }
+            };
+            entries.sort();
+            for e in entries {
+                match std::fs::read_to_string(&e) {
+                    Ok(t) => {
+                        // Plans live beside the set but are not part of it.
+                        if detect_kind(&e.display().to_string(), &t).ok() != Some(ConfigKind::Plan) {
+                            out.push((e.display().to_string(), t));
+                        }
+                    }
+                    Err(err) => errors.push(io_error(&e, &err)),
+                }
+            }
+        } else {
+            match std::fs::read_to_string(p) {
+                Ok(t) => out.push((p.display().to_string(), t)),
+                Err(e) => errors.push(io_error(p, &e)),
+            }
+        }
+    }
+    if errors.is_empty() { Ok(out) } else { Err(ConfigErrors(errors)) }
+}
+
+fn io_error(p: &Path, e: &std::io::Error) -> ConfigError {
+    ConfigError {
+        file: p.display().to_string(),
+        line: 0,
+        column: 0,
+        key: String::new(),
+        message: format!("cannot read: {e}"),
+    }
+}
+
+/// Piecewise-linear interpolation in a table sorted by `xs`, clamped at the ends.
+pub fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
+    debug_assert_eq!(xs.len(), ys.len());
+    match xs.len() {
+        0 => 0.0,
+        1 => ys[0],
+        n => {
+            if x <= xs[0] {
+                return ys[0];
+            }
+            if x >= xs[n - 1] {
+                return ys[n - 1];
+            }
+            let i = xs.partition_point(|&v| v <= x).clamp(1, n - 1);
+            let (x0, x1, y0, y1) = (xs[i - 1], xs[i], ys[i - 1], ys[i]);
+            y0 + (y1 - y0) * (x - x0) / (x1 - x0)
+        }
+    }
+}
+
+/// Checks a table of (x, y) points: at least two, x strictly increasing,
+/// all finite. Returns the columns.
+pub fn check_table(ctx: &mut Ctx<'_>, pts: &Spanned<Vec<[f64; 2]>>, key: &str, what: &str) -> (Vec<f64>, Vec<f64>) {
+    let v = pts.get_ref();
+    if v.len() < 2 {
+        ctx.err(pts.span(), key, format!("expected at least two [{what}] points, found {}", v.len()));
+    }
+    for (i, w) in v.windows(2).enumerate() {
+        if w[1][0] <= w[0][0] {
+            ctx.err(
+                pts.span(),
+                key,
+                format!(
+                    "expected increasing first values; point {} ({}) is not above point {} ({})",
+                    i + 1,
+                    w[1][0],
+                    i,
+                    w[0][0]
+                ),
+            );
+            break;
+        }
+    }
+    if v.iter().flatten().any(|x| !x.is_finite()) {
+        ctx.err(pts.span(), key, "expected finite numbers, found nan or inf");
+    }
+    (v.iter().map(|p| p[0]).collect(), v.iter().map(|p| p[1]).collect())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn embedded_set_is_valid() {
+        let set = ConfigSet::embedded();
+        assert!(set.signals.messages.len() >= 5);
+        assert_eq!(set.texts.len(), 4);
+    }
+
+    #[test]
+    fn interp_clamps_and_interpolates() {
+        let xs = [0.0, 10.0, 20.0];
+        let ys = [0.0, 100.0, 50.0];
+        assert_eq!(interp(&xs, &ys, -5.0), 0.0);
+        assert_eq!(interp(&xs, &ys, 5.0), 50.0);
+        assert_eq!(interp(&xs, &ys, 15.0), 75.0);
+        assert_eq!(interp(&xs, &ys, 25.0), 50.0);
+        assert_eq!(interp(&xs, &ys, 10.0), 100.0);
+    }
+
+    #[test]
+    fn kind_is_required_and_checked() {
+        let e = detect_kind("f.toml", "name = 1\n").unwrap_err();
+        assert_eq!((e.line, e.key.as_str()), (1, "kind"));
+        let e = detect_kind("f.toml", "\nkind = \"boat\"\n").unwrap_err();
+        assert_eq!((e.line, e.column), (2, 8));
+        assert!(e.message.contains("found \"boat\""), "{}", e.message);
+    }
+
+    #[test]
+    fn missing_kinds_are_named() {
+        let err = ConfigSet::from_texts(vec![]).unwrap_err();
+        let text = err.to_string();
+        assert!(text.contains("no vehicle config"), "{text}");
+        assert!(text.contains("no signals config"), "{text}");
+    }
+}

@@ -1,0 +1,413 @@
+//! The Linux can-utils `candump -L` log line: `(SECONDS.FRACTION) IFACE FRAME`.
+//!
+//! Frame syntax (can-utils `lib.c`, confirmed against logs in
+//! notes/crates.md): the id's width decides its type (3 hex digits standard,
+//! 8 extended; an 8-digit id with 0x20000000 set is an error frame); `#`
+//! then 0 to 8 data bytes; `#R` or `#R<len>` a remote frame; `##<flags>`
+//! then 0 to 64 bytes for CAN FD. Data bytes may be separated by `.`; an
+//! optional ` R`/` T` direction follows the frame.
+//!
+//! The parser is hand-written and allocation-free: it is the hot path of a
+//! replay and of a report on an hour-long log.
+
+use std::fmt;
+
+use crate::event::{CanFrame, CanId, DataFrame, ErrorFrame, FdFrame, RemoteFrame, TimeNs, err_class};
+
+/// Longest line accepted: a 64-byte FD frame with dots and a long interface
+/// name fits easily; anything longer is corrupt.
+pub const MAX_LINE: usize = 512;
+
+/// A parsed log line; the interface borrows from the input.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct CandumpLine<'a> {
+    pub t_ns: TimeNs,
+    pub iface: &'a str,
+    pub frame: CanFrame,
+}
+
+/// Why a line is not a valid log line: the 1-based column and what was
+/// expected there.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub struct CandumpError {
+    pub column: usize,
+    pub expected: &'static str,
+}
+
+impl fmt::Display for CandumpError {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        write!(f, "column {}: expected {}", self.column, self.expected)
+    }
+}
+
+impl std::error::Error for CandumpError {}
+
+const HEX: [u8; 256] = {
+    let mut t = [0xFFu8; 256];
+    let mut i = 0;
+    while i < 10 {
+        t[b'0' as usize + i] = i as u8;
+        i += 1;
+    }
+    let mut i = 0;
+    while i < 6 {
+        t[b'a' as usize + i] = 10 + i as u8;
+        t[b'A' as usize + i] = 10 + i as u8;
+        i += 1;
+    }
+    t
+};
+
+#[inline(always)]
+fn err(column: usize, expected: &'static str) -> CandumpError {
+    CandumpError { column: column + 1, expected }
+}
+
+/// Parses the timestamp of `(SECONDS.FRACTION)` starting at `line[0] == '('`.
+/// Returns the time and the index after `)`.
+#[inline]
+pub fn parse_time(line: &[u8]) -> Result<(TimeNs, usize), CandumpError> {
+    if line.first() != Some(&b'(') {
+        return Err(err(0, "'(' opening the timestamp"));
+    }
+    parse_time_between(line, b')')
+}
+
+/// Parses `?SECONDS.FRACTION<close>` where `line[0]` is any opening byte
+/// (the recording format uses `[...]` for events that are not CAN frames).
+#[inline]
+pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), CandumpError> {
+    let mut i = 1;
+    let mut secs: i64 = 0;
+    let start = i;
+    while i < line.len() && line[i].is_ascii_digit() {
+        if i - start >= 10 {
+            return Err(err(i, "at most 10 digits of seconds"));
+        }
+        secs = secs * 10 + (line[i] - b'0') as i64;
+        i += 1;
+    }
+    if i == start {
+        return Err(err(i, "digits of seconds"));
+    }
+    if line.get(i) != Some(&b'.') {
+        return Err(err(i, "'.' between seconds and fraction"));
+    }
+    i += 1;
+    let fstart = i;
+    let mut frac: i64 = 0;
+    while i < line.len() && line[i].is_ascii_digit() {
+        if i - fstart >= 9 {
+            return Err(err(i, "at most 9 digits of fraction"));
+        }
+        frac = frac * 10 + (line[i] - b'0') as i64;
+        i += 1;
+    }
+    let digits = i - fstart;
+    if digits == 0 {
+        return Err(err(i, "digits of fraction"));
+    }
+    if line.get(i) != Some(&close) {
+        return Err(err(i, if close == b')' { "')' closing the timestamp" } else { "']' closing the timestamp" }));
+    }
+    const POW: [i64; 10] = [1_000_000_000, 100_000_000, 10_000_000, 1_000_000, 100_000, 10_000, 1000, 100, 10, 1];
+    if secs > i64::MAX / 1_000_000_000 - 1 {
+        return Err(err(1, "seconds within the year 2262"));
+    }
+    Ok((secs * 1_000_000_000 + frac * POW[digits], i + 1))
+}
+
+/// Parses one log line (without its line ending).
+pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
+    if line.len() > MAX_LINE {
+        return Err(err(MAX_LINE, "a line of at most 512 bytes"));
+    }
+    let (t_ns, mut i) = parse_time(line)?;
+    if line.get(i) != Some(&b' ') {
+        return Err(err(i, "a space after the timestamp"));
+    }
+    i += 1;
+    let istart = i;
+    while i < line.len() && line[i] != b' ' {
+        i += 1;
+    }
+    if i == istart {
+        return Err(err(i, "an interface name"));
+    }
+    let iface = std::str::from_utf8(&line[istart..i]).map_err(|_| err(istart, "an interface name in UTF-8"))?;
+    if line.get(i) != Some(&b' ') {
+        return Err(err(i, "a space after the interface name"));
+    }
+    i += 1;
+    let (frame, end) = parse_frame_at(line, i)?;
+    // Optional direction flag, then nothing.
+    let rest = &line[end..];
+    match rest {
+        [] | [b' ', b'R'] | [b' ', b'T'] => {}
+        _ if rest.iter().all(|b| *b == b' ' || *b == b'\t' || *b == b'\r') => {}
+        _ => return Err(err(end, "the end of the line (or ' R' / ' T') after the frame")),
+    }
+    Ok(CandumpLine { t_ns, iface, frame })
+}
+
+/// Parses a frame in candump syntax starting at `line[i]`; returns the frame
+/// and the index after it.
+#[inline]
+pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), CandumpError> {
+    let id_start = i;
+    let mut id: u32 = 0;
+    while i < line.len() {
+        let v = HEX[line[i] as usize];
+        if v == 0xFF {
+            break;
+        }
+        id = (id << 4) | v as u32;
+        i += 1;
+        if i - id_start > 8 {
+            return Err(err(i, "an id of 3 or 8 hex digits"));
+        }
+    }
+    let id_len = i - id_start;
+    if line.get(i) != Some(&b'#') {
+        return Err(err(i, if id_len == 0 { "a hex CAN id" } else { "'#' after the id" }));
+    }
+    i += 1;
+    let extended = match id_len {
+        3 => false,
+        8 => true,
+        _ => return Err(err(id_start, "an id of 3 hex digits (standard) or 8 (extended)")),
+    };
+    if !extended && id > CanId::STANDARD_MAX {
+        return Err(err(id_start, "a standard id up to 7FF"));
+    }
+    let is_error = extended && id & err_class::ERR_FLAG != 0;
+    if extended && id & !(CanId::EXTENDED_MAX | err_class::ERR_FLAG) != 0 {
+        return Err(err(id_start, "an extended id up to 1FFFFFFF (or an error frame with bit 20000000)"));
+    }
+    let can_id = if extended { CanId::Extended(id & CanId::EXTENDED_MAX) } else { CanId::Standard(id as u16) };
+
+    match line.get(i) {
+        Some(b'R') => {
+            i += 1;
+            let mut dlc = 0u8;
+            if let Some(&c) = line.get(i)
+                && HEX[c as usize] != 0xFF
+            {
+                dlc = HEX[c as usize];
+                i += 1;
+            }
+            if is_error {
+                return Err(err(id_start, "an error frame with data, not a remote request"));
+            }
+            Ok((CanFrame::Remote(RemoteFrame::new(can_id, dlc).expect("a hex digit is at most 15")), i))
+        }
+        Some(b'#') => {
+            i += 1;
+            let flags = match line.get(i).map(|c| HEX[*c as usize]) {
+                Some(v) if v != 0xFF => v,
+                _ => return Err(err(i, "a hex flags digit after '##'")),
+            };
+            i += 1;
+            let mut data = [0u8; 64];
+            let (n, end) = parse_data(line, i, &mut data, 64)?;
+            if is_error {
+                return Err(err(id_start, "an error frame in classic syntax"));
+            }
+            match FdFrame::new(can_id, flags, &data[..n]) {
+                Some(f) => Ok((CanFrame::Fd(f), end)),
+                None => Err(err(i, "a CAN FD length: 0-8, 12, 16, 20, 24, 32, 48 or 64 bytes")),
+            }
+        }
+        _ => {
+            let mut data = [0u8; 64];
+            let (n, mut end) = parse_data(line, i, &mut data, 8)?;
+            // Linux `len8_dlc`: `_<dlc>` after 8 bytes; the payload is what counts.
+            if line.get(end) == Some(&b'_') && n == 8 {
+                if line.get(end + 1).is_some_and(|c| HEX[*c as usize] != 0xFF) {
+                    end += 2;
+                } else {
+                    return Err(err(end + 1, "a hex DLC digit after '_'"));
+                }
+            }
+            let frame = if is_error {
+                CanFrame::Error(ErrorFrame::new(id & CanId::EXTENDED_MAX, &data[..n]).expect("checked"))
+            } else {
+                CanFrame::Data(DataFrame::new(can_id, &data[..n]).expect("at most 8"))
+            };
+            Ok((frame, end))
+        }
+    }
+}
+
+/// Hex byte pairs, optionally separated by '.', into `out`; at most `max`.
+#[inline(always)]
+fn parse_data(line: &[u8], mut i: usize, out: &mut [u8; 64], max: usize) -> Result<(usize, usize), CandumpError> {
+    let mut n = 0;
+    while i < line.len() {
+        let c = line[i];
+        if c == b'.' {
+            i += 1;
+            continue;
+        }
+        let hi = HEX[c as usize];
+        if hi == 0xFF {
+            break;
+        }
+        let lo = match line.get(i + 1) {
+            Some(&d) if HEX[d as usize] != 0xFF => HEX[d as usize],
+            _ => return Err(err(i + 1, "two hex digits per data byte")),
+        };
+        if n == max {
+            return Err(err(
+                i,
+                if max == 8 { "at most 8 data bytes in a classic frame" } else { "at most 64 data bytes" },
+            ));
+        }
+        out[n] = hi << 4 | lo;
+        n += 1;
+        i += 2;
+    }
+    Ok((n, i))
+}
+
+/// Appends `(SECONDS.FRACTION)`: six fraction digits when the time is whole
+/// microseconds (as candump writes), nine otherwise, so no time is rounded.
+pub fn write_time(out: &mut Vec<u8>, t_ns: TimeNs) {
+    use std::io::Write;
+    let secs = t_ns.div_euclid(1_000_000_000);
+    let ns = t_ns.rem_euclid(1_000_000_000);
+    if ns % 1000 == 0 {
+        let _ = write!(out, "({}.{:06})", secs, ns / 1000);
+    } else {
+        let _ = write!(out, "({secs}.{ns:09})");
+    }
+}
+
+/// Appends the frame in candump syntax (no line ending).
+pub fn write_frame(out: &mut Vec<u8>, frame: &CanFrame) {
+    use std::io::Write;
+    const DIGITS: &[u8; 16] = b"0123456789ABCDEF";
+    let hex = |out: &mut Vec<u8>, data: &[u8]| {
+        for b in data {
+            out.push(DIGITS[(b >> 4) as usize]);
+            out.push(DIGITS[(b & 15) as usize]);
+        }
+    };
+    match frame {
+        CanFrame::Data(f) => {
+            let _ = write!(out, "{}#", f.id());
+            hex(out, f.data());
+        }
+        CanFrame::Remote(f) => {
+            let _ = write!(out, "{}#R", f.id());
+            if f.dlc() > 0 {
+                out.push(DIGITS[f.dlc() as usize]);
+            }
+        }
+        CanFrame::Error(f) => {
+            let _ = write!(out, "{:08X}#", f.class() | err_class::ERR_FLAG);
+            hex(out, f.data());
+        }
+        CanFrame::Fd(f) => {
+            let _ = write!(out, "{}##{:X}", f.id(), f.flags());
+            hex(out, f.data());
+        }
+    }
+}
+
+/// Appends a whole log line: time, interface, frame, newline.
+pub fn write_line(out: &mut Vec<u8>, t_ns: TimeNs, iface: &str, frame: &CanFrame) {
+    write_time(out, t_ns);
+    out.push(b' ');
+    out.extend_from_slice(iface.as_bytes());
+    out.push(b' ');
+    write_frame(out, frame);
+    out.push(b'\n');
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn ok(s: &str) -> CandumpLine<'_> {
+        parse_line(s.as_bytes()).unwrap_or_else(|e| panic!("{s}: {e}"))
+    }
+
+    #[test]
+    fn reference_line() {
+        // REFERENCES.md, the candump log format example.
+        let l = ok("(1436509052.249713) can0 044#2A366C2BBA");
+        assert_eq!(l.t_ns, 1_436_509_052_249_713_000);
+        assert_eq!(l.iface, "can0");
+        assert_eq!(l.frame.id(), Some(CanId::Standard(0x44)));
+        assert_eq!(l.frame.data(), &[0x2A, 0x36, 0x6C, 0x2B, 0xBA]);
+    }
+
+    #[test]
+    fn every_frame_kind() {
+        // Id width decides the type (notes/crates.md): 00000123 is extended.
+        assert_eq!(ok("(1.0) can0 00000123#").frame.id(), Some(CanId::Extended(0x123)));
+        match ok("(1.5) can0 123#R").frame {
+            CanFrame::Remote(r) => assert_eq!((r.id(), r.dlc()), (CanId::Standard(0x123), 0)),
+            f => panic!("{f:?}"),
+        }
+        match ok("(1.5) can0 123#R4").frame {
+            CanFrame::Remote(r) => assert_eq!(r.dlc(), 4),
+            f => panic!("{f:?}"),
+        }
+        match ok("(1.5) can0 123##1112233").frame {
+            CanFrame::Fd(f) => assert_eq!((f.flags(), f.data()), (1, &[0x11u8, 0x22, 0x33][..])),
+            f => panic!("{f:?}"),
+        }
+        match ok("(1.5) can0 20000040#0000000000000000").frame {
+            CanFrame::Error(e) => assert!(e.is_bus_off()),
+            f => panic!("{f:?}"),
+        }
+        assert_eq!(ok("(1.5) can0 123#11.22.33").frame.data(), &[0x11, 0x22, 0x33]);
+        assert_eq!(ok("(1.5) can0 123#11 R").frame.data(), &[0x11]);
+        assert_eq!(ok("(1.5) can0 123#1122334455667788_C").frame.data().len(), 8);
+    }
+
+    #[test]
+    fn fraction_digits_scale() {
+        assert_eq!(ok("(5.1) c 123#").t_ns, 5_100_000_000);
+        assert_eq!(ok("(5.000000001) c 123#").t_ns, 5_000_000_001);
+    }
+
+    #[test]
+    fn errors_say_where_and_what() {
+        let e = |s: &str| parse_line(s.as_bytes()).unwrap_err();
+        assert_eq!(
+            e("1436509052.249713) can0 044#00"),
+            CandumpError { column: 1, expected: "'(' opening the timestamp" }
+        );
+        assert_eq!(e("(1.0) can0 0444#00").column, 12);
+        assert_eq!(e("(1.0) can0 800#00").expected, "a standard id up to 7FF");
+        assert_eq!(e("(1.0) can0 123#112233445566778899").expected, "at most 8 data bytes in a classic frame");
+        assert_eq!(e("(1.0) can0 123#1").expected, "two hex digits per data byte");
+        assert_eq!(
+            e("(1.0) can0 123##0112233445566778899").expected,
+            "a CAN FD length: 0-8, 12, 16, 20, 24, 32, 48 or 64 bytes"
+        );
+        assert_eq!(e("(1.0) can0 123#00 junk").expected, "the end of the line (or ' R' / ' T') after the frame");
+        assert_eq!(e("(99999999999.0) c 123#").expected, "at most 10 digits of seconds");
+        assert_eq!(e("(1.0)").expected, "a space after the timestamp");
+    }
+
+    #[test]
+    fn write_then_parse_round_trips() {
+        let frames = [
+            "(1436509052.249713) can0 044#2A366C2BBA",
+            "(1.000000) vcan1 1FFFFFFF#",
+            "(2.123456789) can0 7FF#R8",
+            "(3.000000) can0 12345678##5000102030405060708090A0B",
+            "(4.000000) can0 20000004#0010000000000000",
+        ];
+        for s in frames {
+            let l = ok(s);
+            let mut out = Vec::new();
+            write_line(&mut out, l.t_ns, l.iface, &l.frame);
+            assert_eq!(std::str::from_utf8(&out).unwrap().trim_end(), s);
+        }
+    }
+}

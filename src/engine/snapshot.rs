@@ -1,0 +1,76 @@
+//! Snapshots: the immutable state the engine publishes at each interval of
+//! stream time. Screens, reports and the headless JSON all read these.
+
+use std::sync::Arc;
+
+use crate::channel::ChannelId;
+use crate::event::{LinkState, SourceKind, TimeNs};
+
+/// One channel as of the snapshot time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct ChannelView {
+    pub id: ChannelId,
+    pub name: Arc<str>,
+    /// The SI unit the value is in.
+    pub unit: &'static str,
+    /// Latest value (valid or not: see `out_of_range`).
+    pub value: f64,
+    /// Seconds since the latest sample.
+    pub age_s: f64,
+    /// Range of valid values seen.
+    pub min: f64,
+    pub max: f64,
+    /// No sample for the stale threshold (3 expected periods by default).
+    pub stale: bool,
+    /// The latest value was outside its valid range or not finite.
+    pub out_of_range: bool,
+    pub samples: u64,
+}
+
+/// One source as of the snapshot time.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SourceView {
+    pub name: String,
+    pub kind: SourceKind,
+    pub events: u64,
+    pub rate_per_s: f64,
+    pub gaps: u64,
+    pub parse_errors: u64,
+    pub last_error: Option<String>,
+    pub link: Option<LinkState>,
+    /// Seconds since the source's last event.
+    pub age_s: Option<f64>,
+}
+
+/// Running totals.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
+pub struct Counters {
+    pub events: u64,
+    pub can_frames: u64,
+    pub samples: u64,
+    pub out_of_range: u64,
+    pub parse_errors: u64,
+    /// Gaps in stream time over 10 s that were jumped rather than filled.
+    pub time_jumps: u64,
+}
+
+/// The engine's published state.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Snapshot {
+    pub t_ns: TimeNs,
+    pub channels: Vec<ChannelView>,
+    pub sources: Vec<SourceView>,
+    pub counters: Counters,
+}
+
+impl Snapshot {
+    /// The view of a channel, if it has had samples.
+    pub fn channel(&self, id: ChannelId) -> Option<&ChannelView> {
+        self.channels.iter().find(|c| c.id == id)
+    }
+
+    /// The view of a channel by name.
+    pub fn channel_named(&self, name: &str) -> Option<&ChannelView> {
+        self.channels.iter().find(|c| &*c.name == name)
+    }
+}

@@ -1,0 +1,31 @@
+//! termvel: a terminal tool for the engineers who run vehicles at very high
+//! speed. It reads live telemetry, replays recorded runs and rehearses run
+//! plans, and derives what the engineer decides on: road-load power, battery
+//! state of power and boost time left, projected peak speed and the braking
+//! point.
+//!
+//! The pipeline (DESIGN.md): [`sources`] produce [`event::Event`]s;
+//! [`decode`] turns them into samples; the [`engine`] derives everything
+//! and publishes snapshots; the [`record`]er keeps every event; screens,
+//! reports and the headless printer read the snapshots.
+//!
+//! termvel is advisory. It is not a safety system and not a braking cue of
+//! record; the run director, track officials and local rules decide.
+
+pub mod channel;
+pub mod cli;
+pub mod cmd;
+pub mod config;
+pub mod decode;
+pub mod engine;
+pub mod event;
+pub mod headless;
+pub mod player;
+pub mod record;
+pub mod session;
+pub mod sources;
+pub mod units;
+
+/// The one-line caution every screen and report carries.
+pub const CAUTION: &str =
+    "Advisory only: the run director, track officials and local rules decide; not a safety system.";

@@ -1,0 +1,6 @@
+//! sources: where events come from. Sources do I/O and timestamping only;
+//! they hand raw events on and never decode or derive.
+
+pub mod file;
+
+pub use file::FileSource;
