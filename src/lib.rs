@@ -23,6 +23,7 @@ pub mod headless;
 pub mod player;
 pub mod record;
 pub mod session;
+pub mod sim;
 pub mod sources;
 pub mod units;
 

@@ -19,7 +19,7 @@ use tokio::sync::mpsc;
 use tokio::time::Instant;
 
 use crate::engine::{Engine, Snapshot};
-use crate::event::{Event, NS_PER_S, OPERATOR, Payload, SourceTable, TimeNs};
+use crate::event::{Event, NS_PER_S, OPERATOR, Payload, SESSION, SourceTable, TimeNs};
 use crate::record::{ReadStats, RecordingWriter};
 
 /// A finite, restartable stream of events in stream order.
@@ -217,7 +217,7 @@ pub async fn play<S: EventSource, K: SnapshotSink>(
                     }
                 }
             }
-        } else if !p.status.speed.is_finite() && p.seq % 1024 == 0 {
+        } else if !p.status.speed.is_finite() && p.seq.is_multiple_of(1024) {
             // As fast as possible, but let other tasks (the screen) run.
             tokio::task::yield_now().await;
         }
@@ -259,13 +259,24 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.status.position_ns = Some(ev.t_ns);
         let mut out = Vec::new();
         self.engine.feed(&ev, self.src.sources(), &mut |s| out.push(s));
+        let notes = self.engine.take_notes();
         if self.seq > self.recorded_upto {
             self.recorded_upto = self.seq;
-            if let Some(r) = self.recorder.as_mut()
-                && let Err(e) = r.write_event(&ev, self.src.sources())
-            {
-                tracing_error(&format!("recording stopped: {e}"));
-                self.recorder = None;
+            // Annotations in the source are the old run's; this session's
+            // own are written instead, before the event that triggered them.
+            let mut lines: Vec<Event> =
+                notes.into_iter().map(|(t, n)| Event::new(t, SESSION, Payload::Note(n))).collect();
+            if ev.is_input() {
+                lines.push(ev.clone());
+            }
+            if let Some(r) = self.recorder.as_mut() {
+                for e in &lines {
+                    if let Err(err) = r.write_event(e, self.src.sources()) {
+                        tracing_error(&format!("recording stopped: {err}"));
+                        self.recorder = None;
+                        break;
+                    }
+                }
             }
         }
         let seq = self.seq;
@@ -347,7 +358,11 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.operator_events.push((self.seq, ev.clone()));
         let mut out = Vec::new();
         self.engine.feed(&ev, self.src.sources(), &mut |s| out.push(s));
+        let notes = self.engine.take_notes();
         if let Some(r) = self.recorder.as_mut() {
+            for (t, n) in notes {
+                let _ = r.write_event(&Event::new(t, SESSION, Payload::Note(n)), self.src.sources());
+            }
             let _ = r.write_event(&ev, self.src.sources());
         }
         for s in out {
@@ -364,8 +379,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
             self.status.finished = false;
         }
         self.last_hidden = None;
-        loop {
-            let Some(ev) = self.pending.take().or_else(|| self.src.next_event()) else { break };
+        while let Some(ev) = self.pending.take().or_else(|| self.src.next_event()) {
             if ev.t_ns > target {
                 self.pending = Some(ev);
                 break;

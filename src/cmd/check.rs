@@ -187,6 +187,26 @@ pub fn check_texts(files: &[(String, String)]) -> (String, bool) {
                     warnings += 1;
                 }
             }
+            Parsed::Plan(p) => {
+                let boost = match p.driver.boost_start {
+                    config::plan::BoostStart::AtDistance(m) => format!("boost from {m:.0} m"),
+                    config::plan::BoostStart::AtSpeed(v) => format!("boost from {:.0} km/h", v * 3.6),
+                };
+                let _ = writeln!(
+                    out,
+                    "{}: plan \"{}\": seed {}, {:.1} °C, {:.0} hPa, {:.0} % RH, headwind {:.1} m/s; {boost}, brake at {:.0} m; {} fault{}",
+                    r.origin,
+                    p.name,
+                    p.seed,
+                    p.ambient.temp_c,
+                    p.ambient.pressure_pa / 100.0,
+                    p.ambient.humidity * 100.0,
+                    p.ambient.headwind_mps,
+                    p.driver.brake_at_m,
+                    p.faults.len(),
+                    if p.faults.len() == 1 { "" } else { "s" }
+                );
+            }
             Parsed::Alerts(a) => {
                 let _ = writeln!(
                     out,

@@ -8,6 +8,7 @@
 
 pub mod alerts;
 pub mod locate;
+pub mod plan;
 pub mod signals;
 pub mod track;
 pub mod vehicle;
@@ -190,6 +191,7 @@ fn humanise(msg: &str, key: &mut String) -> String {
     }
     if let Some(rest) = msg.strip_prefix("unknown field ") {
         let (field, allowed) = rest.split_once(", expected ").unwrap_or((rest, ""));
+        let allowed = allowed.strip_prefix("one of ").unwrap_or(allowed);
         return if allowed.is_empty() {
             format!("unknown key {field}; this table takes no keys")
         } else {
@@ -258,11 +260,13 @@ pub fn detect_kind(file: &str, src: &str) -> Result<ConfigKind, ConfigError> {
 
 /// One validated file.
 #[derive(Clone, Debug)]
+#[allow(clippy::large_enum_variant)] // built once per file read
 pub enum Parsed {
     Vehicle(Vehicle),
     Track(Track),
     Signals(Signals),
     Alerts(Alerts),
+    Plan(plan::Plan),
 }
 
 /// Result of validating one file: the value (if valid) and any warnings.
@@ -288,16 +292,7 @@ pub fn validate_text(origin: &str, text: &str) -> FileReport {
         ConfigKind::Track => track::validate(&mut ctx).map(Parsed::Track),
         ConfigKind::Signals => signals::validate(&mut ctx).map(Parsed::Signals),
         ConfigKind::Alerts => alerts::validate(&mut ctx).map(Parsed::Alerts),
-        ConfigKind::Plan => {
-            ctx.errors.push(ConfigError {
-                file: origin.into(),
-                line: 1,
-                column: 1,
-                key: "kind".into(),
-                message: "run plans are read by `termvel rehearse` and `termvel plan`, not in a config set".into(),
-            });
-            None
-        }
+        ConfigKind::Plan => plan::validate(&mut ctx).map(Parsed::Plan),
     };
     let parsed = if ctx.errors.is_empty() { parsed } else { None };
     FileReport { origin: origin.into(), kind: Some(kind), parsed, errors: ctx.errors, warnings: ctx.warnings }
@@ -363,7 +358,7 @@ impl ConfigSet {
                 Some(Parsed::Track(t)) => track = Some(t),
                 Some(Parsed::Signals(s)) => signals = Some(s),
                 Some(Parsed::Alerts(a)) => alerts = Some(a),
-                None => {}
+                Some(Parsed::Plan(_)) | None => {}
             }
         }
         for (kind, present) in [
@@ -474,12 +469,20 @@ pub fn interp(xs: &[f64], ys: &[f64], x: f64) -> f64 {
     }
 }
 
-/// Checks a table of (x, y) points: at least two, x strictly increasing,
-/// all finite. Returns the columns.
-pub fn check_table(ctx: &mut Ctx<'_>, pts: &Spanned<Vec<[f64; 2]>>, key: &str, what: &str) -> (Vec<f64>, Vec<f64>) {
+/// Checks a table of (x, y) points: at least `min_points`, x strictly
+/// increasing, all finite. Returns the columns.
+pub fn check_table(
+    ctx: &mut Ctx<'_>,
+    pts: &Spanned<Vec<[f64; 2]>>,
+    key: &str,
+    what: &str,
+    min_points: usize,
+) -> (Vec<f64>, Vec<f64>) {
     let v = pts.get_ref();
-    if v.len() < 2 {
-        ctx.err(pts.span(), key, format!("expected at least two [{what}] points, found {}", v.len()));
+    if v.len() < min_points {
+        let n = if min_points == 1 { "one".to_string() } else { min_points.to_string() };
+        let s = if min_points == 1 { "" } else { "s" };
+        ctx.err(pts.span(), key, format!("expected at least {n} [{what}] point{s}, found {}", v.len()));
     }
     for (i, w) in v.windows(2).enumerate() {
         if w[1][0] <= w[0][0] {
@@ -501,6 +504,63 @@ pub fn check_table(ctx: &mut Ctx<'_>, pts: &Spanned<Vec<[f64; 2]>>, key: &str, w
         ctx.err(pts.span(), key, "expected finite numbers, found nan or inf");
     }
     (v.iter().map(|p| p[0]).collect(), v.iter().map(|p| p[1]).collect())
+}
+
+/// The demo run plan compiled into the binary; its file names refer to
+/// the embedded set.
+pub const EMBEDDED_PLAN: (&str, &str) = ("demo-plan.toml", include_str!("../../config/demo-plan.toml"));
+
+/// Loads a run plan and the config set it names. `None`: the embedded demo.
+/// A plan's file names are relative to its directory; `override_set`
+/// replaces them (the `--config` option).
+pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(plan::Plan, ConfigSet), ConfigErrors> {
+    let (origin, text) = match path {
+        None => (format!("<embedded>/{}", EMBEDDED_PLAN.0), EMBEDDED_PLAN.1.to_string()),
+        Some(p) => match std::fs::read_to_string(p) {
+            Ok(t) => (p.display().to_string(), t),
+            Err(e) => return Err(ConfigErrors(vec![io_error(p, &e)])),
+        },
+    };
+    let report = validate_text(&origin, &text);
+    let plan = match (report.kind, report.parsed) {
+        (_, Some(Parsed::Plan(p))) => p,
+        (Some(k), Some(_)) => {
+            return Err(ConfigErrors(vec![ConfigError {
+                file: origin,
+                line: 1,
+                column: 1,
+                key: "kind".into(),
+                message: format!("expected a run plan (kind = \"plan\"), found a {} config", k.as_str()),
+            }]));
+        }
+        _ => return Err(ConfigErrors(report.errors)),
+    };
+    if !override_set.is_empty() {
+        return Ok((plan, ConfigSet::load(override_set)?));
+    }
+    let Some(path) = path else {
+        return Ok((plan, ConfigSet::embedded()));
+    };
+    let dir = path.parent().unwrap_or(Path::new("."));
+    let mut files = Vec::new();
+    for (kind, name) in
+        [("vehicle", &plan.vehicle), ("track", &plan.track), ("signals", &plan.signals), ("alerts", &plan.alerts)]
+    {
+        match name {
+            Some(n) => files.push(dir.join(n)),
+            None if kind == "alerts" => {}
+            None => {
+                return Err(ConfigErrors(vec![ConfigError {
+                    file: origin.clone(),
+                    line: 1,
+                    column: 1,
+                    key: kind.into(),
+                    message: format!("missing key `{kind}`: the plan must name its {kind} file (or give --config)"),
+                }]));
+            }
+        }
+    }
+    Ok((plan, ConfigSet::load(&files)?))
 }
 
 #[cfg(test)]

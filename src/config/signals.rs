@@ -127,7 +127,7 @@ pub fn signal_bits(start_bit: u16, bit_length: u8, order: ByteOrder) -> Vec<u32>
         if i > 0 {
             p = match order {
                 ByteOrder::Little => p + 1,
-                ByteOrder::Big if p % 8 == 0 => p + 15,
+                ByteOrder::Big if p.is_multiple_of(8) => p + 15,
                 ByteOrder::Big => p - 1,
             };
         }

@@ -79,7 +79,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Track> {
     }
     let (at, grade_pct) = match &raw.grade_profile {
         Some(p) => {
-            let (at, g) = check_table(ctx, p, "grade_profile", "distance m, grade %");
+            let (at, g) = check_table(ctx, p, "grade_profile", "distance m, grade %", 2);
             if g.iter().any(|x| x.abs() > 30.0) {
                 ctx.err(p.span(), "grade_profile", "expected grades within ±30 %");
             }

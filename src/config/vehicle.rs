@@ -33,6 +33,7 @@ struct RawChassis {
     rolling_crr: F,
     rolling_crr_speed2_s2_per_m2: F,
     driveline_efficiency: F,
+    grip_limit_g: Option<F>,
 }
 
 #[derive(Deserialize)]
@@ -63,6 +64,7 @@ struct RawMotor {
 #[serde(deny_unknown_fields)]
 struct RawBattery {
     energy_kwh: F,
+    rated_power_kw: F,
     soc_reserve: F,
     soc_max: F,
     cells_in_series: Spanned<u32>,
@@ -131,6 +133,8 @@ impl Combustion {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Battery {
     pub energy_j: f64,
+    /// Discharge power the pack is rated to deliver, fresh, W.
+    pub rated_power_w: f64,
     pub soc_reserve: f64,
     pub soc_max: f64,
     pub cells_in_series: u32,
@@ -172,6 +176,8 @@ pub struct Vehicle {
     pub crr0: f64,
     pub crr2_s2_m2: f64,
     pub driveline_efficiency: f64,
+    /// Largest drive force the tyres transmit, as a multiple of m·g (launch).
+    pub grip_limit_g: f64,
     pub combustion: Combustion,
     pub motor_rated_power_w: f64,
     pub motor_efficiency: f64,
@@ -230,8 +236,10 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
         "a coefficient in s²/m²",
     );
     let eta = ctx.range(&c.driveline_efficiency, "chassis.driveline_efficiency", 0.5, 1.0, "an efficiency");
+    let grip =
+        c.grip_limit_g.as_ref().map_or(1.0, |g| ctx.range(g, "chassis.grip_limit_g", 0.1, 3.0, "a multiple of g"));
 
-    let (curve_rpm, curve_torque_nm) = check_table(ctx, &raw.engine.torque_curve, "engine.torque_curve", "rpm, N·m");
+    let (curve_rpm, curve_torque_nm) = check_table(ctx, &raw.engine.torque_curve, "engine.torque_curve", "rpm, N·m", 2);
     if curve_torque_nm.iter().any(|t| *t < 0.0) {
         ctx.err(raw.engine.torque_curve.span(), "engine.torque_curve", "expected torques ≥ 0 N·m");
     }
@@ -258,6 +266,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
 
     let b = &raw.battery;
     let energy_kwh = ctx.range(&b.energy_kwh, "battery.energy_kwh", 0.1, 500.0, "an energy in kWh");
+    let rated_kw = ctx.range(&b.rated_power_kw, "battery.rated_power_kw", 1.0, 5000.0, "a power in kW");
     let soc_reserve = ctx.range(&b.soc_reserve, "battery.soc_reserve", 0.0, 0.9, "a state of charge (0..1)");
     let soc_max = ctx.range(&b.soc_max, "battery.soc_max", 0.1, 1.0, "a state of charge (0..1)");
     if soc_max <= soc_reserve {
@@ -331,6 +340,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
         crr0,
         crr2_s2_m2: crr2,
         driveline_efficiency: eta,
+        grip_limit_g: grip,
         combustion: Combustion {
             curve_rpm,
             curve_torque_nm,
@@ -344,6 +354,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
         motor_efficiency: motor_eff,
         battery: Battery {
             energy_j: energy_kwh * 3.6e6,
+            rated_power_w: rated_kw * 1e3,
             soc_reserve,
             soc_max,
             cells_in_series: cells,

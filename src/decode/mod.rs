@@ -8,12 +8,16 @@
 pub mod busload;
 pub mod can;
 pub mod candump;
+pub mod lines;
+pub mod nmea;
+pub mod slcan;
 
 pub use can::{CanCounters, CanMap, Sample};
 
-use crate::channel::ChannelTable;
+use crate::channel::{ChannelId, ChannelTable, canonical_dimension, ch};
 use crate::config::Signals;
-use crate::event::{Event, Payload, SourceId, SourceKind};
+use crate::event::{Event, Payload, SourceId, SourceKind, TimeNs};
+use crate::units::{Dimension, parse_unit};
 
 /// Decode problems of one source.
 #[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
@@ -30,6 +34,9 @@ pub struct Decoder {
     pub channels: ChannelTable,
     pub can: CanMap,
     per_source: Vec<SourceDecodeStats>,
+    lines_period_ns: TimeNs,
+    /// Line-telemetry keys seen, with their channel.
+    line_keys: Vec<(String, ChannelId)>,
 }
 
 impl Decoder {
@@ -38,7 +45,18 @@ impl Decoder {
     pub fn new(signals: &Signals) -> Decoder {
         let mut channels = ChannelTable::default();
         let can = CanMap::compile(signals, &mut channels);
-        Decoder { channels, can, per_source: Vec::new() }
+        for id in
+            [ch::GNSS_SPEED, ch::GNSS_LAT, ch::GNSS_LON, ch::GNSS_ALT, ch::GNSS_FIX, ch::GNSS_COURSE, ch::GNSS_SATS]
+        {
+            channels.expect_period(id, signals.gnss_period_ns);
+        }
+        Decoder {
+            channels,
+            can,
+            per_source: Vec::new(),
+            lines_period_ns: signals.lines_period_ns,
+            line_keys: Vec::new(),
+        }
     }
 
     /// Decode statistics of `source`.
@@ -67,8 +85,78 @@ impl Decoder {
     pub fn decode(&mut self, ev: &Event, kind: SourceKind, out: &mut Vec<Sample>) {
         match (&ev.payload, kind) {
             (Payload::Can(frame), _) => self.can.decode(ev.t_ns, frame, out),
-            (Payload::Line(_), _) => {}
+            (Payload::Line(line), SourceKind::Nmea) => self.decode_nmea(ev.t_ns, ev.source, line, out),
+            (Payload::Line(line), SourceKind::Lines) => self.decode_lines(ev.t_ns, ev.source, line, out),
             _ => {}
+        }
+    }
+
+    fn decode_nmea(&mut self, t_ns: TimeNs, source: SourceId, line: &[u8], out: &mut Vec<Sample>) {
+        let d = match nmea::parse_sentence(line) {
+            Ok(Some(d)) => d,
+            Ok(None) => return,
+            Err(e) => {
+                self.parse_error(source, format!("NMEA: {e}"));
+                return;
+            }
+        };
+        // Without a fix, speed and position are not truth.
+        let valid = d.fix != Some(0);
+        let mut push = |channel, v: Option<f64>, valid: bool| {
+            if let Some(value) = v {
+                out.push(Sample { t_ns, channel, value, valid: valid && value.is_finite() });
+            }
+        };
+        push(ch::GNSS_SPEED, d.speed_mps, valid);
+        push(ch::GNSS_COURSE, d.course_deg, valid);
+        push(ch::GNSS_LAT, d.lat_deg, valid);
+        push(ch::GNSS_LON, d.lon_deg, valid);
+        push(ch::GNSS_ALT, d.alt_m, valid);
+        push(ch::GNSS_FIX, d.fix.map(f64::from), true);
+        push(ch::GNSS_SATS, d.sats.map(f64::from), true);
+    }
+
+    fn decode_lines(&mut self, t_ns: TimeNs, source: SourceId, line: &[u8], out: &mut Vec<Sample>) {
+        let mut fields = Vec::new();
+        if let Err(e) = lines::parse(line, &mut fields) {
+            self.parse_error(source, format!("line telemetry: {e}"));
+            return;
+        }
+        let start = out.len();
+        for f in &fields {
+            let unit = match f.unit {
+                None => None,
+                Some(u) => match parse_unit(u) {
+                    Some(unit) => Some(unit),
+                    None => {
+                        out.truncate(start);
+                        self.parse_error(source, format!("line telemetry: {}: unknown unit \"{u}\"", f.key));
+                        return;
+                    }
+                },
+            };
+            let dim = canonical_dimension(f.key).or(unit.map(|u| u.dimension)).unwrap_or(Dimension::Plain);
+            if let Some(u) = unit
+                && !u.fits(dim)
+            {
+                out.truncate(start);
+                self.parse_error(
+                    source,
+                    format!("line telemetry: {}: unit {} is not a {}", f.key, f.unit.unwrap_or(""), dim.name()),
+                );
+                return;
+            }
+            let channel = match self.line_keys.iter().find(|(k, _)| k == f.key) {
+                Some((_, c)) => *c,
+                None => {
+                    let c = self.channels.intern(f.key, dim);
+                    self.channels.expect_period(c, self.lines_period_ns);
+                    self.line_keys.push((f.key.to_string(), c));
+                    c
+                }
+            };
+            let value = unit.map_or(f.value, |u| u.to_si(f.value));
+            out.push(Sample { t_ns, channel, value, valid: value.is_finite() });
         }
     }
 }

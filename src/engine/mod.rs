@@ -1,23 +1,36 @@
 //! engine: all derived state, as a pure function of the ordered event stream.
 //!
 //! The engine never reads a clock: time comes from the events. It decodes
-//! each event, updates the channel store and the per-source health, and at
-//! every multiple of the snapshot interval of stream time publishes an
-//! immutable [`Snapshot`]. The grid is aligned to whole multiples of the
-//! interval since the epoch, so a live run and its replay snapshot at the
-//! same instants and produce the same values, bit for bit.
+//! each event, updates the channel store, the per-source health and the
+//! online estimators (cheap, per sample), and at every multiple of the
+//! snapshot interval of stream time computes the derived quantities and the
+//! alerts and publishes an immutable [`Snapshot`]. The grid is aligned to
+//! whole multiples of the interval since the epoch, so a live run and its
+//! replay snapshot at the same instants and produce the same values, bit
+//! for bit.
 
+pub mod alerts;
+pub mod derived;
+pub mod estimators;
+pub mod physics;
+pub mod projection;
+pub mod rls;
 pub mod snapshot;
 pub mod store;
 
+pub use alerts::{Alert, AlertBook};
+pub use derived::Derived;
 pub use snapshot::{ChannelView, Counters, Snapshot, SourceView};
 pub use store::{ChannelState, ChannelStore};
 
 use std::sync::Arc;
 
-use crate::config::ConfigSet;
+use crate::channel::{ChannelId, ch};
+use crate::config::{ConfigSet, Severity};
 use crate::decode::{Decoder, Sample};
-use crate::event::{Event, LinkState, NS_PER_S, Payload, SourceKind, SourceTable, TimeNs};
+use crate::event::{Event, LinkState, NS_PER_S, Payload, SourceId, SourceKind, SourceTable, TimeNs};
+use derived::TickInputs;
+use estimators::{BalanceSample, DeratingTracker, HeatingRate, PackEstimator, RoadLoadEstimator};
 
 /// Settings of an engine run.
 #[derive(Clone, Debug)]
@@ -35,6 +48,15 @@ impl Default for EngineOptions {
 /// A gap in stream time longer than this is jumped over with one snapshot
 /// rather than filled with identical ones.
 pub const MAX_FILL_NS: TimeNs = 10 * NS_PER_S;
+/// Weather older than this is not used for air density.
+pub const WEATHER_MAX_AGE_NS: TimeNs = 60 * NS_PER_S;
+/// Time constant of the filter deriving acceleration from speed, s.
+pub const ACCEL_FILTER_S: f64 = 0.3;
+/// Time constant of the mean wind used for predictions, s.
+pub const WIND_MEAN_S: f64 = 15.0;
+/// A source that delivered at least this rate and then nothing for this
+/// long is reported silent.
+pub const SILENT_AFTER_NS: TimeNs = NS_PER_S;
 
 /// Per-source health, from the events alone.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -50,10 +72,18 @@ pub struct SourceHealth {
     pub link_reason: String,
     /// Arrival gaps longer than [`SourceHealth::GAP_NS`].
     pub gaps: u64,
-    /// Events in the current and previous one-second windows, for the rate.
     window_start_ns: TimeNs,
     window_count: u64,
     pub rate_per_s: f64,
+    /// CAN error frames, and among them bus-off, error-passive and
+    /// lost-arbitration reports.
+    pub error_frames: u64,
+    pub bus_off: u64,
+    pub error_passive: u64,
+    pub lost_arbitration: u64,
+    last_bus_error_ns: Option<TimeNs>,
+    parse_errors_seen: u64,
+    last_parse_error_ns: Option<TimeNs>,
 }
 
 impl SourceHealth {
@@ -86,15 +116,28 @@ pub struct Engine {
     pub decoder: Decoder,
     pub store: ChannelStore,
     opts: EngineOptions,
-    /// Latest stream time seen.
     now_ns: Option<TimeNs>,
     next_snapshot_ns: Option<TimeNs>,
+    last_tick_ns: Option<TimeNs>,
     pub health: Vec<SourceHealth>,
     pub counters: Counters,
     samples: Vec<Sample>,
-    /// Channel names, shared by every snapshot.
     names: Vec<Arc<str>>,
     marks: Vec<(TimeNs, String)>,
+    // Estimators and per-sample state.
+    road: RoadLoadEstimator,
+    pack: PackEstimator,
+    derate: DeratingTracker,
+    heating: HeatingRate,
+    odo_m: f64,
+    odo_last: Option<(TimeNs, f64)>,
+    accel_from_speed: Option<f64>,
+    /// (time, value) of the mean wind.
+    wind_mean: Option<(TimeNs, f64)>,
+    pub alerts: AlertBook,
+    derived: Derived,
+    /// Derived quantities rejected for being non-finite.
+    pub rejected_values: u64,
 }
 
 impl Engine {
@@ -103,17 +146,29 @@ impl Engine {
         let mut store = ChannelStore::new(config.alerts.limits.stale_after_periods);
         store.sync(&decoder.channels);
         let mut e = Engine {
+            road: RoadLoadEstimator::new(&config.vehicle),
+            pack: PackEstimator::new(&config.vehicle),
             config,
             decoder,
             store,
             opts,
             now_ns: None,
             next_snapshot_ns: None,
+            last_tick_ns: None,
             health: Vec::new(),
             counters: Counters::default(),
             samples: Vec::with_capacity(64),
             names: Vec::new(),
             marks: Vec::new(),
+            derate: DeratingTracker::default(),
+            heating: HeatingRate::default(),
+            odo_m: 0.0,
+            odo_last: None,
+            accel_from_speed: None,
+            wind_mean: None,
+            alerts: AlertBook::default(),
+            derived: Derived::default(),
+            rejected_values: 0,
         };
         e.sync_names();
         e
@@ -121,7 +176,7 @@ impl Engine {
 
     fn sync_names(&mut self) {
         while self.names.len() < self.decoder.channels.len() {
-            let id = crate::channel::ChannelId(self.names.len() as u16);
+            let id = ChannelId(self.names.len() as u16);
             self.names.push(Arc::from(self.decoder.channels.get(id).name.as_str()));
         }
     }
@@ -134,6 +189,16 @@ impl Engine {
     /// Operator marks seen so far.
     pub fn marks(&self) -> &[(TimeNs, String)] {
         &self.marks
+    }
+
+    /// The derived quantities of the latest tick.
+    pub fn derived(&self) -> &Derived {
+        &self.derived
+    }
+
+    /// Annotations (alert raises, clears, acknowledgements) since the last call.
+    pub fn take_notes(&mut self) -> Vec<(TimeNs, String)> {
+        self.alerts.take_notes()
     }
 
     /// Feeds one event. Snapshots due before the event's time are passed to
@@ -150,17 +215,26 @@ impl Engine {
         }
         self.health[idx].on_event(ev.t_ns);
         match &ev.payload {
-            Payload::Can(_) => {
+            Payload::Can(frame) => {
                 self.counters.can_frames += 1;
-                self.health[idx].can_frames += 1;
+                let h = &mut self.health[idx];
+                h.can_frames += 1;
+                if let crate::event::CanFrame::Error(e) = frame {
+                    h.error_frames += 1;
+                    h.last_bus_error_ns = Some(ev.t_ns);
+                    h.bus_off += u64::from(e.is_bus_off());
+                    h.error_passive += u64::from(e.is_error_passive());
+                    h.lost_arbitration += u64::from(e.is_lost_arbitration());
+                }
             }
             Payload::Line(_) => self.health[idx].lines += 1,
             Payload::Mark(text) => self.marks.push((ev.t_ns, text.clone())),
+            Payload::Ack(key) => self.alerts.ack(ev.t_ns, key),
             Payload::Link(state, reason) => {
                 self.health[idx].link = Some(*state);
                 self.health[idx].link_reason = reason.clone();
             }
-            Payload::Ack(_) | Payload::Tick | Payload::Note(_) => {}
+            Payload::Tick | Payload::Note(_) => {}
         }
         let kind = sources.get(ev.source).map_or(SourceKind::Can, |s| s.kind);
         self.samples.clear();
@@ -169,13 +243,85 @@ impl Engine {
             self.store.sync(&self.decoder.channels);
             self.sync_names();
         }
-        for s in &self.samples {
-            self.store.apply(s);
+        let samples = std::mem::take(&mut self.samples);
+        for s in &samples {
+            self.store.apply(s, ev.source);
+            if s.valid && s.value.is_finite() {
+                self.on_sample(s);
+            }
         }
-        self.counters.samples += self.samples.len() as u64;
+        self.counters.samples += samples.len() as u64;
+        self.samples = samples;
         if self.now_ns.is_none_or(|n| ev.t_ns > n) {
             self.now_ns = Some(ev.t_ns);
         }
+    }
+
+    /// The per-sample work: odometer, acceleration from speed and the
+    /// estimators, each only for the channels it needs.
+    #[inline]
+    fn on_sample(&mut self, s: &Sample) {
+        match s.channel {
+            ch::VEHICLE_SPEED => {
+                self.odometer(s.t_ns, s.value);
+                self.road_load_update(s.t_ns, s.value);
+            }
+            ch::GNSS_SPEED if self.store.fresh(ch::VEHICLE_SPEED, s.t_ns).is_none() => self.odometer(s.t_ns, s.value),
+            ch::BATTERY_VOLTAGE => {
+                if let Some(i) = self.store.fresh(ch::BATTERY_CURRENT, s.t_ns) {
+                    self.pack.update(s.value, i, self.store.fresh(ch::BATTERY_SOC, s.t_ns));
+                }
+            }
+            ch::AMBIENT_WIND => {
+                // Predictions use the mean wind, not the gust of the moment.
+                let (t0, w0) = self.wind_mean.unwrap_or((s.t_ns, s.value));
+                let dt = ((s.t_ns - t0) as f64 * 1e-9).clamp(0.0, WIND_MEAN_S);
+                self.wind_mean = Some((s.t_ns, w0 + (s.value - w0) * dt / WIND_MEAN_S));
+            }
+            ch::BATTERY_TEMP => self.heating.push(s.t_ns, s.value),
+            _ => {}
+        }
+    }
+
+    fn odometer(&mut self, t_ns: TimeNs, v: f64) {
+        if let Some((t0, v0)) = self.odo_last {
+            let dt = (t_ns - t0) as f64 * 1e-9;
+            if dt > 0.0 && dt < 2.0 {
+                self.odo_m += 0.5 * (v + v0) * dt;
+                let a = (v - v0) / dt;
+                let alpha = dt / (ACCEL_FILTER_S + dt);
+                self.accel_from_speed = Some(match self.accel_from_speed {
+                    Some(prev) => prev + alpha * (a - prev),
+                    None => a,
+                });
+            }
+        }
+        self.odo_last = Some((t_ns, v));
+    }
+
+    fn road_load_update(&mut self, t_ns: TimeNs, v: f64) {
+        let st = &self.store;
+        let Some(a) = st.fresh(ch::VEHICLE_ACCEL, t_ns).or(self.accel_from_speed) else { return };
+        let engine_w = st.fresh(ch::ENGINE_POWER, t_ns);
+        let motor_w = st.fresh(ch::MOTOR_POWER, t_ns);
+        if engine_w.is_none() && motor_w.is_none() {
+            return;
+        }
+        let sample = BalanceSample {
+            v_mps: v,
+            a_mps2: a,
+            rho: if self.derived.air_density > 0.0 { self.derived.air_density } else { return },
+            wind_mps: st
+                .last_valid(ch::AMBIENT_WIND)
+                .filter(|(_, ts)| t_ns - ts <= WEATHER_MAX_AGE_NS)
+                .map_or(0.0, |w| w.0),
+            grade: self.config.track.grade_at(self.odo_m),
+            engine_w: engine_w.unwrap_or(0.0),
+            motor_w: motor_w.unwrap_or(0.0),
+            throttle: st.fresh(ch::DRIVER_THROTTLE, t_ns).unwrap_or(1.0),
+            brake: st.fresh(ch::DRIVER_BRAKE, t_ns).unwrap_or(0.0),
+        };
+        self.road.update(&self.config.vehicle, &sample);
     }
 
     /// Emits the snapshots due up to `t_ns`.
@@ -187,6 +333,7 @@ impl Engine {
             return;
         };
         while t_ns > next {
+            self.tick(next, sources);
             sink(self.snapshot_at(next, sources));
             next += every;
             if t_ns - next > MAX_FILL_NS {
@@ -201,9 +348,223 @@ impl Engine {
     /// event, so the end of the stream is always shown.
     pub fn finish(&mut self, sources: &SourceTable, sink: &mut impl FnMut(Snapshot)) {
         if let Some(next) = self.next_snapshot_ns {
+            self.tick(next, sources);
             sink(self.snapshot_at(next, sources));
             self.next_snapshot_ns = Some(next + self.opts.snapshot_every_ns);
         }
+    }
+
+    fn tick_inputs(&self, t: TimeNs) -> TickInputs {
+        let st = &self.store;
+        let f = |id| st.fresh(id, t);
+        let speed = match (f(ch::VEHICLE_SPEED), f(ch::GNSS_SPEED)) {
+            (Some(v), _) => Some((v, "vehicle.speed", age(st, ch::VEHICLE_SPEED, t))),
+            (None, Some(v)) => Some((v, "gnss.speed", age(st, ch::GNSS_SPEED, t))),
+            _ => None,
+        };
+        let accel = match f(ch::VEHICLE_ACCEL) {
+            Some(a) => Some((a, "channel")),
+            None => self.accel_from_speed.filter(|_| speed.is_some()).map(|a| (a, "from speed")),
+        };
+        let recent = |id| st.last_valid(id).filter(|(_, ts)| t - ts <= WEATHER_MAX_AGE_NS);
+        let weather = match (recent(ch::AMBIENT_TEMP), recent(ch::AMBIENT_PRESSURE)) {
+            (Some((tc, t1)), Some((p, t2))) => {
+                let rh = recent(ch::AMBIENT_HUMIDITY);
+                let oldest = [Some(t1), Some(t2), rh.map(|r| r.1)].into_iter().flatten().min().unwrap_or(t1);
+                Some((tc, p, rh.map(|r| r.0), (t - oldest) as f64 * 1e-9))
+            }
+            _ => None,
+        };
+        let rated_motor = self.config.vehicle.motor_rated_power_w;
+        let boosting = match f(ch::DRIVER_BOOST) {
+            Some(b) => b >= 0.5,
+            None => f(ch::MOTOR_POWER).is_some_and(|p| p > 0.05 * rated_motor),
+        };
+        TickInputs {
+            speed,
+            distance_m: self.odo_m,
+            accel,
+            weather,
+            wind_mps: self.wind_mean.filter(|(ts, _)| t - ts <= WEATHER_MAX_AGE_NS).map(|w| w.1),
+            engine_w: f(ch::ENGINE_POWER),
+            motor_w: f(ch::MOTOR_POWER),
+            voltage_v: f(ch::BATTERY_VOLTAGE),
+            current_a: f(ch::BATTERY_CURRENT),
+            soc: f(ch::BATTERY_SOC),
+            temp_c: f(ch::BATTERY_TEMP),
+            power_limit_w: f(ch::BATTERY_POWER_LIMIT),
+            boosting,
+            throttle: f(ch::DRIVER_THROTTLE),
+            brake: f(ch::DRIVER_BRAKE),
+        }
+    }
+
+    /// The work of one snapshot tick: derived quantities, the derating
+    /// tracker and the alerts.
+    fn tick(&mut self, t: TimeNs, sources: &SourceTable) {
+        let dt = self.last_tick_ns.map_or(0.0, |l| (t - l) as f64 * 1e-9);
+        self.last_tick_ns = Some(t);
+        let inp = self.tick_inputs(t);
+        // The derating tracker runs on the ratio of the previous tick's
+        // deliverable power, then the derived block uses its fit.
+        self.derate.tick(dt, inp.boosting, self.derived.battery.derating_ratio.filter(|_| inp.boosting));
+        let mut d = derived::compute(
+            &self.config,
+            &inp,
+            &self.road.estimate(),
+            self.pack.estimate(),
+            self.derate.time_in_boost_s,
+            self.derate.fit,
+            self.heating.rate_c_per_s(),
+        );
+        // The engine rejects non-finite derived values rather than show them.
+        if !d.air_density.is_finite() || d.air_density <= 0.0 {
+            self.rejected_values += 1;
+            d.air_density = physics::air::isa_troposphere(0.0).2;
+        }
+        if d.projection.as_ref().is_some_and(|p| !p.peak_mps.is_finite()) {
+            self.rejected_values += 1;
+            d.projection = None;
+            d.projection_note = Some("rejected: non-finite result");
+        }
+        self.derived = d;
+        self.evaluate_alerts(t, sources, &inp);
+    }
+
+    fn evaluate_alerts(&mut self, t: TimeNs, sources: &SourceTable, inp: &TickInputs) {
+        let cfg = self.config.clone();
+        let lim = &cfg.alerts.limits;
+        let d = &self.derived;
+        let book = &mut self.alerts;
+        // Sources: down, silent, parse errors, CAN bus errors.
+        let mut quiet_sources: Vec<SourceId> = Vec::new();
+        for (id, info) in sources.iter() {
+            let Some(h) = self.health.get_mut(id.0 as usize) else { continue };
+            if !matches!(info.kind, SourceKind::Can | SourceKind::Nmea | SourceKind::Lines) {
+                continue;
+            }
+            let down = h.link == Some(LinkState::Down) || h.link == Some(LinkState::Retrying);
+            let silent = !down && h.events >= 10 && h.last_t_ns.is_some_and(|l| t - l > SILENT_AFTER_NS);
+            if down || silent {
+                quiet_sources.push(id);
+            }
+            let reason = h.link_reason.clone();
+            book.set(t, &format!("down:{}", info.name), Severity::Alarm, down, || {
+                format!("{} is down: {reason}", info.name)
+            });
+            let last = h.last_t_ns.unwrap_or(t);
+            book.set(t, &format!("silent:{}", info.name), Severity::Alarm, silent, || {
+                format!("{} silent for {:.1} s", info.name, (t - last) as f64 * 1e-9)
+            });
+            let pe = self.decoder.source_stats(id);
+            if pe.parse_errors > h.parse_errors_seen {
+                h.parse_errors_seen = pe.parse_errors;
+                h.last_parse_error_ns = Some(t);
+            }
+            let recent = h.last_parse_error_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
+            let n = pe.parse_errors;
+            book.set(t, &format!("parse:{}", info.name), Severity::Caution, recent, || {
+                format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default())
+            });
+            let bus = h.last_bus_error_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
+            let (ef, bo, ep, la) = (h.error_frames, h.bus_off, h.error_passive, h.lost_arbitration);
+            book.set(
+                t,
+                &format!("bus:{}", info.name),
+                if bo > 0 { Severity::Alarm } else { Severity::Caution },
+                bus,
+                || {
+                    format!(
+                        "{}: {ef} CAN error frames (bus-off {bo}, error-passive {ep}, lost arbitration {la})",
+                        info.name
+                    )
+                },
+            );
+        }
+        // Stale channels, unless their source is already reported quiet.
+        for (id, info) in self.decoder.channels.iter() {
+            let Some(stc) = self.store.get(id) else { continue };
+            if info.expected_period_ns.is_none() {
+                continue;
+            }
+            let stale = self.store.is_stale(id, t) && !quiet_sources.contains(&stc.source);
+            let age_s = (t - stc.t_ns) as f64 * 1e-9;
+            book.set(t, &format!("stale:{}", info.name), Severity::Caution, stale, || {
+                format!("{} stale: no value for {age_s:.1} s", info.name)
+            });
+        }
+        let b = &d.battery;
+        let running = d.speed_mps.is_some_and(|v| v > 5.0);
+        let ratio = b.derating_ratio.unwrap_or(1.0);
+        book.set(t, "derating", Severity::Caution, b.boosting && ratio < lim.derating_onset_ratio, || {
+            format!("battery derating: {:.0} % of rated power", ratio * 100.0)
+        });
+        let left = d.boost_left;
+        book.set(
+            t,
+            "boost-low",
+            Severity::Caution,
+            b.boosting && left.seconds.is_some_and(|s| s < lim.boost_left_low_s),
+            || {
+                format!(
+                    "boost left {:.1} s ({} limit)",
+                    left.seconds.unwrap_or(0.0),
+                    left.binding.map_or("?", |l| l.as_str())
+                )
+            },
+        );
+        let target_kmh = cfg.track.target_speed_mps * 3.6;
+        let peak = d.projection.as_ref().map(|p| p.peak_mps * 3.6);
+        book.set(
+            t,
+            "target",
+            Severity::Caution,
+            running && d.projection.as_ref().is_some_and(|p| !p.target_reachable),
+            || format!("target {target_kmh:.0} km/h out of reach: projected peak {:.0} km/h", peak.unwrap_or(0.0)),
+        );
+        let braking_now = inp.brake.is_some_and(|x| x > 0.1);
+        let br = d.braking;
+        let approach = running && !braking_now && br.is_some_and(|x| !x.passed && x.in_s < lim.braking_approach_s);
+        book.set(t, "brake-approach", Severity::Alarm, approach, || {
+            format!("braking point in {:.1} s ({:.0} m)", br.map_or(0.0, |x| x.in_s), br.map_or(0.0, |x| x.distance_m))
+        });
+        let passed = running && !braking_now && br.is_some_and(|x| x.passed);
+        book.set(t, "brake-passed", Severity::Alarm, passed, || {
+            format!("past the braking point by {:.0} m: brake", br.map_or(0.0, |x| -x.distance_m))
+        });
+        let ty = d.tyre;
+        book.set(t, "tyre", Severity::Alarm, ty.is_some_and(|x| x.margin_mps < lim.tyre_margin_low_mps), || {
+            format!("tyre speed margin {:.0} km/h", ty.map_or(0.0, |x| x.margin_mps * 3.6))
+        });
+        book.set(
+            t,
+            "tyre-projected",
+            Severity::Caution,
+            running && ty.is_some_and(|x| x.peak_margin_mps.is_some_and(|m| m < 0.0)),
+            || {
+                format!(
+                    "projected peak above the tyres' rating by {:.0} km/h",
+                    ty.and_then(|x| x.peak_margin_mps).map_or(0.0, |m| -m * 3.6)
+                )
+            },
+        );
+        let temp_limit = cfg.vehicle.battery.temp_limit_c;
+        let temp = b.temp_c;
+        let hot = temp.is_some_and(|x| x >= temp_limit - lim.battery_temp_margin_c);
+        let sev = if temp.is_some_and(|x| x >= temp_limit) { Severity::Alarm } else { Severity::Caution };
+        book.set(t, "battery-temp", sev, hot, || {
+            format!("pack at {:.1} °C (limit {temp_limit:.0} °C)", temp.unwrap_or(0.0))
+        });
+        // The engineer's own rules.
+        let store = &self.store;
+        let channels = &self.decoder.channels;
+        book.evaluate_rules(t, &cfg.alerts.rules, |name| {
+            if name.starts_with("derived.") {
+                d.value(name)
+            } else {
+                channels.find(name).and_then(|id| store.fresh(id, t))
+            }
+        });
     }
 
     /// The state at stream time `t_ns` (at or after the last event).
@@ -241,11 +602,25 @@ impl Engine {
                 last_error: ds.last_error,
                 link: h.link,
                 age_s: h.last_t_ns.map(|t| (t_ns - t) as f64 * 1e-9),
+                error_frames: h.error_frames,
             });
         }
         let mut counters = self.counters;
         counters.out_of_range = self.decoder.can.counters.out_of_range;
         counters.parse_errors = self.decoder.parse_errors();
-        Snapshot { t_ns, channels, sources: source_views, counters }
+        counters.rejected_values = self.rejected_values;
+        Snapshot {
+            t_ns,
+            channels,
+            sources: source_views,
+            counters,
+            derived: self.derived.clone(),
+            alerts: self.alerts.visible(),
+            marks: self.marks.len(),
+        }
     }
+}
+
+fn age(st: &ChannelStore, id: ChannelId, t: TimeNs) -> f64 {
+    st.get(id).map_or(f64::NAN, |s| (t - s.t_ns) as f64 * 1e-9)
 }

@@ -4,6 +4,7 @@
 use std::sync::Arc;
 
 use crate::channel::ChannelId;
+use crate::engine::{Alert, Derived};
 use crate::event::{LinkState, SourceKind, TimeNs};
 
 /// One channel as of the snapshot time.
@@ -40,6 +41,7 @@ pub struct SourceView {
     pub link: Option<LinkState>,
     /// Seconds since the source's last event.
     pub age_s: Option<f64>,
+    pub error_frames: u64,
 }
 
 /// Running totals.
@@ -52,6 +54,8 @@ pub struct Counters {
     pub parse_errors: u64,
     /// Gaps in stream time over 10 s that were jumped rather than filled.
     pub time_jumps: u64,
+    /// Derived values rejected for being non-finite.
+    pub rejected_values: u64,
 }
 
 /// The engine's published state.
@@ -61,6 +65,11 @@ pub struct Snapshot {
     pub channels: Vec<ChannelView>,
     pub sources: Vec<SourceView>,
     pub counters: Counters,
+    pub derived: Derived,
+    /// Alerts to show, newest first.
+    pub alerts: Vec<Alert>,
+    /// Operator marks so far.
+    pub marks: usize,
 }
 
 impl Snapshot {

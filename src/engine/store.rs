@@ -3,7 +3,7 @@
 
 use crate::channel::{ChannelId, ChannelTable};
 use crate::decode::Sample;
-use crate::event::TimeNs;
+use crate::event::{SourceId, TimeNs};
 
 /// What is known of one channel.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -21,6 +21,8 @@ pub struct ChannelState {
     pub max: f64,
     pub samples: u64,
     pub invalid: u64,
+    /// The source of the latest sample.
+    pub source: SourceId,
 }
 
 impl Default for ChannelState {
@@ -35,6 +37,7 @@ impl Default for ChannelState {
             max: f64::NEG_INFINITY,
             samples: 0,
             invalid: 0,
+            source: SourceId(0),
         }
     }
 }
@@ -63,11 +66,12 @@ impl ChannelStore {
         }
     }
 
-    /// Applies a sample. Non-finite values are stored as invalid.
+    /// Applies a sample from `source`. Non-finite values are stored as invalid.
     #[inline]
-    pub fn apply(&mut self, s: &Sample) {
+    pub fn apply(&mut self, s: &Sample, source: SourceId) {
         let Some(st) = self.states.get_mut(s.channel.0 as usize) else { return };
         st.samples += 1;
+        st.source = source;
         st.value = s.value;
         st.t_ns = s.t_ns;
         let valid = s.valid && s.value.is_finite();
@@ -117,6 +121,11 @@ impl ChannelStore {
         self.states.len()
     }
 
+    #[cfg(test)]
+    fn apply_test(&mut self, s: &Sample) {
+        self.apply(s, SourceId(2));
+    }
+
     pub fn is_empty(&self) -> bool {
         self.states.is_empty()
     }
@@ -137,7 +146,7 @@ mod tests {
         table.expect_period(ch::VEHICLE_SPEED, 10_000_000);
         let mut s = ChannelStore::new(3.0);
         s.sync(&table);
-        s.apply(&sample(1_000_000_000, 50.0, true));
+        s.apply_test(&sample(1_000_000_000, 50.0, true));
         assert!(!s.is_stale(ch::VEHICLE_SPEED, 1_030_000_000), "exactly 3 periods is not yet stale");
         assert!(s.is_stale(ch::VEHICLE_SPEED, 1_030_000_001));
         assert_eq!(s.fresh(ch::VEHICLE_SPEED, 1_020_000_000), Some(50.0));
@@ -148,9 +157,9 @@ mod tests {
     fn invalid_values_are_kept_apart() {
         let mut s = ChannelStore::new(3.0);
         s.sync(&ChannelTable::default());
-        s.apply(&sample(1, 50.0, true));
-        s.apply(&sample(2, 900.0, false));
-        s.apply(&sample(3, f64::NAN, true));
+        s.apply_test(&sample(1, 50.0, true));
+        s.apply_test(&sample(2, 900.0, false));
+        s.apply_test(&sample(3, f64::NAN, true));
         let st = s.get(ch::VEHICLE_SPEED).unwrap();
         assert_eq!((st.min, st.max, st.last_valid), (50.0, 50.0, 50.0));
         assert_eq!(st.invalid, 2);
