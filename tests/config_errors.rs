@@ -1,0 +1,266 @@
+//! Config errors as a user meets them: every malformed file is refused with
+//! the line, column, key and wording a person can act on, the shipped
+//! configs are accepted, and `termvel check` exits and prints as documented.
+//!
+//! Contents:
+//! - the corpus: every `tests/configs/bad/*.toml` names its expected error
+//!   in a `# expect: LINE:COLUMN KEY :: SUBSTRING` header, and
+//!   `validate_text` must report exactly that (golden files, checked one by
+//!   one, every mismatch reported as `file:line` before the test fails);
+//! - the configs in `config/` validate with no errors;
+//! - `termvel check` run as a process: exit status 0 or 2, the
+//!   `FILE:LINE:COL: KEY: message` form, an unreadable file, and the bus-load
+//!   summary and its warning threshold.
+
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+use termvel::config::validate_text;
+
+/// Where the corpus lives, relative to the crate root; also the prefix of
+/// every origin, so messages name files the way a user at the root types them.
+const BAD_DIR: &str = "tests/configs/bad";
+
+/// The corpus must cover at least the problems listed in its brief; a smaller
+/// count means files were lost, not that the checks got better.
+const MIN_CORPUS: usize = 24;
+
+/// Exit status of `termvel` for unusable input (`cmd::EXIT_UNUSABLE`).
+const EXIT_UNUSABLE: i32 = 2;
+
+fn root() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// The `*.toml` files of `dir` (relative to the crate root), sorted so
+/// failures come out in a stable order.
+fn toml_files(dir: &str) -> Vec<PathBuf> {
+    let mut files: Vec<PathBuf> = std::fs::read_dir(root().join(dir))
+        .unwrap_or_else(|e| panic!("{dir}: {e}"))
+        .map(|e| e.expect("directory entry").path())
+        .filter(|p| p.extension().is_some_and(|x| x == "toml"))
+        .collect();
+    files.sort();
+    files
+}
+
+/// What a corpus file's first line promises.
+#[derive(Debug)]
+struct Expect {
+    line: usize,
+    column: usize,
+    /// Empty when the header says `-` (an error without a key).
+    key: String,
+    substring: String,
+}
+
+/// Parses `# expect: LINE:COLUMN KEY :: SUBSTRING`.
+fn parse_expect(first_line: &str) -> Result<Expect, String> {
+    let bad = || format!("expected a first line `# expect: LINE:COLUMN KEY :: SUBSTRING`, found {first_line:?}");
+    let rest = first_line.strip_prefix("# expect: ").ok_or_else(bad)?;
+    let (location_key, substring) = rest.split_once(" :: ").ok_or_else(bad)?;
+    let (location, key) = location_key.split_once(' ').ok_or_else(bad)?;
+    let (line, column) = location.split_once(':').ok_or_else(bad)?;
+    Ok(Expect {
+        line: line.parse().map_err(|_| bad())?,
+        column: column.parse().map_err(|_| bad())?,
+        key: if key == "-" { String::new() } else { key.to_string() },
+        substring: substring.to_string(),
+    })
+}
+
+/// The origin a user at the crate root would type: `tests/configs/bad/x.toml`.
+fn origin(path: &Path) -> String {
+    format!("{BAD_DIR}/{}", path.file_name().expect("a file name").to_string_lossy())
+}
+
+#[test]
+fn every_bad_config_fails_where_its_header_says() {
+    let files = toml_files(BAD_DIR);
+    let mut failures = String::new();
+    for path in &files {
+        let origin = origin(path);
+        let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{origin}: {e}"));
+        let expect = match parse_expect(text.lines().next().unwrap_or("")) {
+            Ok(x) => x,
+            Err(e) => {
+                let _ = writeln!(failures, "{origin}:1: {e}");
+                continue;
+            }
+        };
+        let report = validate_text(&origin, &text);
+        let found = report.errors.iter().any(|e| {
+            e.line == expect.line
+                && e.column == expect.column
+                && e.key == expect.key
+                && e.message.contains(&expect.substring)
+        });
+        // Failures point at the line the error was expected on, so an editor
+        // that understands `file:line` jumps to the spot in question.
+        if !found {
+            let got: Vec<String> =
+                report.errors.iter().map(|e| format!("{}:{} {} :: {}", e.line, e.column, e.key, e.message)).collect();
+            let _ = writeln!(
+                failures,
+                "{origin}:{}: expected an error at {}:{} key {:?} containing {:?}; got {}",
+                expect.line,
+                expect.line,
+                expect.column,
+                expect.key,
+                expect.substring,
+                if got.is_empty() { "no errors".to_string() } else { got.join(" | ") }
+            );
+        } else if report.errors.len() > 1 {
+            // One problem per file: a second error means the file exercises
+            // more than its name says, and a regression in one check could
+            // hide behind the other.
+            let got: Vec<String> = report.errors.iter().map(|e| e.to_string()).collect();
+            let _ = writeln!(
+                failures,
+                "{origin}:{}: expected exactly one error, got {}: {}",
+                expect.line,
+                got.len(),
+                got.join(" | ")
+            );
+        }
+    }
+    assert!(failures.is_empty(), "config corpus mismatches:\n{failures}");
+}
+
+#[test]
+fn corpus_is_complete() {
+    let n = toml_files(BAD_DIR).len();
+    assert!(n >= MIN_CORPUS, "{BAD_DIR} holds {n} files, expected at least {MIN_CORPUS}");
+}
+
+#[test]
+fn shipped_configs_are_valid() {
+    let files = toml_files("config");
+    assert!(!files.is_empty(), "config/ holds no .toml files");
+    let mut failures = String::new();
+    for path in &files {
+        let origin = format!("config/{}", path.file_name().expect("a file name").to_string_lossy());
+        let text = std::fs::read_to_string(path).unwrap_or_else(|e| panic!("{origin}: {e}"));
+        let report = validate_text(&origin, &text);
+        for e in &report.errors {
+            let _ = writeln!(failures, "{e}");
+        }
+        if report.errors.is_empty() && report.parsed.is_none() {
+            let _ = writeln!(failures, "{origin}: no errors, but nothing was parsed");
+        }
+    }
+    assert!(failures.is_empty(), "shipped configs have errors:\n{failures}");
+}
+
+// ---------------------------------------------------------------------------
+// `termvel check`, run as a user runs it.
+
+/// Runs the built binary from the crate root (relative paths as in the docs).
+fn termvel(args: &[&str]) -> Output {
+    Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(args)
+        .current_dir(root())
+        .output()
+        .expect("the termvel binary runs")
+}
+
+fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+/// Stdout and stderr together, for messages whose stream is not the point.
+fn all_output(o: &Output) -> String {
+    format!("{}{}", String::from_utf8_lossy(&o.stdout), String::from_utf8_lossy(&o.stderr))
+}
+
+#[test]
+fn check_accepts_the_demo_set() {
+    let o = termvel(&[
+        "check",
+        "config/vehicle.toml",
+        "config/track.toml",
+        "config/signals.toml",
+        "config/alerts.toml",
+        "config/demo-plan.toml",
+    ]);
+    let out = all_output(&o);
+    assert_eq!(o.status.code(), Some(0), "{out}");
+    // "invalid:" also contains "valid:", so look for the summary line itself.
+    assert!(stdout(&o).lines().any(|l| l.starts_with("valid:")), "{out}");
+    assert!(out.contains("worst case"), "no bus-load line: {out}");
+}
+
+#[test]
+fn check_locates_an_error_and_exits_2() {
+    let file = format!("{BAD_DIR}/signals-scale-zero.toml");
+    let text = std::fs::read_to_string(root().join(&file)).expect("corpus file");
+    let x = parse_expect(text.lines().next().unwrap_or("")).expect("header");
+    let o = termvel(&["check", &file]);
+    let out = stdout(&o);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{}", all_output(&o));
+    // The form editors and terminals turn into a link: FILE:LINE:COL: KEY: message.
+    let located = format!("{file}:{}:{}: {}: ", x.line, x.column, x.key);
+    assert!(out.lines().any(|l| l.starts_with(&located) && l.contains(&x.substring)), "want {located}…: {out}");
+    assert!(out.lines().any(|l| l.starts_with("invalid:")), "{out}");
+}
+
+#[test]
+fn check_names_a_missing_file_and_exits_2() {
+    let missing = "config/no-such-file.toml";
+    let o = termvel(&["check", missing]);
+    let out = all_output(&o);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{out}");
+    assert!(out.contains(missing), "the missing file is not named: {out}");
+}
+
+/// A signals file of classic 8-byte frames with no signals: `(id, extended,
+/// period_ms)` per message. Empty messages draw a warning each, which does not
+/// change the exit status and keeps the file to what the bus load needs.
+fn signals_file(bitrate: u32, messages: &[(u32, bool, f64)]) -> String {
+    let mut s = format!("kind = \"signals\"\nbitrate = {bitrate}\n");
+    for (i, (id, extended, period_ms)) in messages.iter().enumerate() {
+        let frame = if *extended { "frame = \"extended\"\n" } else { "" };
+        let _ =
+            write!(s, "\n[[message]]\nid = 0x{id:X}\n{frame}name = \"m{i}\"\nperiod_ms = {period_ms}\nlength = 8\n");
+    }
+    s
+}
+
+/// Writes `text` to a temporary directory and runs `termvel check` on it.
+fn check_text(text: &str) -> Output {
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let path = dir.path().join("signals.toml");
+    std::fs::write(&path, text).expect("write the signals file");
+    termvel(&["check", path.to_str().expect("a UTF-8 temporary path")])
+}
+
+#[test]
+fn check_warns_when_the_bus_is_overloaded() {
+    // Three standard 8-byte frames every 1 ms on 500 kbit/s: 3 × 135 bits ×
+    // 1000/s = 405 000 bit/s, 81 % worst case (135 = 55 + 10·8, REFERENCES.md).
+    let text = signals_file(500_000, &[(0x100, false, 1.0), (0x101, false, 1.0), (0x102, false, 1.0)]);
+    let o = check_text(&text);
+    let out = stdout(&o);
+    assert!(out.contains("81.0 % worst case"), "{out}");
+    assert!(out.contains("above 70 %"), "no bus-load warning: {out}");
+    // A warning is not an error: the file is still usable.
+    assert_eq!(o.status.code(), Some(0), "{}", all_output(&o));
+}
+
+#[test]
+fn check_reports_the_reference_bus_load() {
+    // REFERENCES.md, "CAN frame length and bus load": 20 standard 8-byte
+    // messages at 100 Hz plus 10 extended 8-byte at 50 Hz on 500 kbit/s →
+    // 70.0 % worst case. By hand: 20 × 135 bits × 100/s + 10 × 160 bits × 50/s
+    // = 270 000 + 80 000 = 350 000 bit/s, and 350 000 / 500 000 = 0.700.
+    let mut messages: Vec<(u32, bool, f64)> = (0..20).map(|i| (0x100 + i, false, 10.0)).collect();
+    messages.extend((0..10).map(|i| (0x1800_0000 + i, true, 20.0)));
+    let o = check_text(&signals_file(500_000, &messages));
+    let out = stdout(&o);
+    assert_eq!(o.status.code(), Some(0), "{}", all_output(&o));
+    assert!(out.contains("30 messages"), "{out}");
+    assert!(out.contains("70.0 % worst case"), "{out}");
+    // Exactly at the threshold is not above it.
+    assert!(!out.contains("above 70 %"), "warned at exactly 70 %: {out}");
+}

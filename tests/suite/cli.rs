@@ -1,0 +1,87 @@
+//! The commands as a user runs them: exit codes, messages, recordings.
+
+use crate::util::{demo, stderr, stdout, termvel, write};
+
+#[test]
+fn commands_not_built_say_so_and_exit_2() {
+    for cmd in ["live", "report", "export"] {
+        let o = termvel(&[cmd]);
+        assert_eq!(o.status.code(), Some(2), "{cmd}");
+        assert!(stderr(&o).contains("not built yet"), "{cmd}: {}", stderr(&o));
+    }
+}
+
+#[test]
+fn replay_of_a_missing_file_names_it_and_exits_2() {
+    let o = termvel(&["replay", "no/such/file.tvrec", "--headless", "--no-record"]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(e.contains("no/such/file.tvrec") && e.lines().count() == 1, "{e}");
+}
+
+#[test]
+fn replay_of_garbage_is_unusable_input() {
+    let dir = tempfile::tempdir().unwrap();
+    let p = write(dir.path(), "junk.bin", [0u8, 159, 146, 150, 10, 255, 10, 1, 2, 3].repeat(50));
+    let o = termvel(&["replay", p.to_str().unwrap(), "--headless", "--no-record"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("no valid event"), "{}", stderr(&o));
+}
+
+#[test]
+fn headless_replay_prints_snapshots_and_a_summary() {
+    let o = termvel(&["replay", demo().to_str().unwrap(), "--headless", "--no-record", "--every", "1s"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    let lines: Vec<serde_json::Value> =
+        out.lines().map(|l| serde_json::from_str(l).expect("every line is JSON")).collect();
+    let (summary, snaps) = lines.split_last().unwrap();
+    let s = &summary["summary"];
+    assert!(s["events"].as_u64().unwrap() > 40_000);
+    assert_eq!(s["malformed_lines"], 0);
+    assert_eq!(s["torn_tail"], false);
+    assert_eq!(s["snapshots"].as_u64().unwrap() as usize, snaps.len());
+    // One snapshot a second of stream time, on whole seconds.
+    for w in snaps.windows(2) {
+        assert_eq!(w[1]["t_ns"].as_i64().unwrap() - w[0]["t_ns"].as_i64().unwrap(), 1_000_000_000);
+    }
+    let mid = &snaps[snaps.len() / 2];
+    let speed = &mid["channels"]["vehicle.speed"];
+    assert_eq!(speed["unit"], "m/s");
+    assert!(speed["age_s"].as_f64().unwrap() < 0.05);
+    assert!(mid["derived"]["air"]["density_kg_m3"].as_f64().unwrap() > 1.0);
+}
+
+#[test]
+fn a_torn_recording_replays_to_the_tear_and_says_where() {
+    let dir = tempfile::tempdir().unwrap();
+    let full = std::fs::read(demo()).unwrap();
+    let p = write(dir.path(), "torn.tvrec", &full[..full.len() * 2 / 3]);
+    let o = termvel(&["replay", p.to_str().unwrap(), "--headless", "--no-record"]);
+    assert!(o.status.success());
+    let out = stdout(&o);
+    let summary: serde_json::Value = serde_json::from_str(out.lines().last().unwrap()).unwrap();
+    assert_eq!(summary["summary"]["torn_tail"], true);
+    let line = summary["summary"]["torn_tail_line"].as_u64().unwrap();
+    let whole = full[..full.len() * 2 / 3].iter().filter(|b| **b == b'\n').count() as u64;
+    assert_eq!(line, whole + 1);
+    assert!(stderr(&o).contains(&format!("torn.tvrec:{line}: the last line is torn")), "{}", stderr(&o));
+}
+
+#[test]
+fn replay_records_a_copy_that_replays_the_same() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path().to_str().unwrap();
+    let a = termvel(&["replay", demo().to_str().unwrap(), "--headless", "--record-dir", d]);
+    assert!(a.status.success(), "{}", stderr(&a));
+    let rec: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().path()).collect();
+    assert_eq!(rec.len(), 1, "one new recording");
+    assert!(stderr(&a).contains(&rec[0].display().to_string()), "the recording's path is shown");
+    let b = termvel(&["replay", rec[0].to_str().unwrap(), "--headless", "--no-record"]);
+    assert!(b.status.success());
+    let strip = |s: String| s.lines().filter(|l| !l.starts_with("{\"summary\"")).map(str::to_owned).collect::<Vec<_>>();
+    assert!(strip(stdout(&a)) == strip(stdout(&b)), "the copy replays to the same snapshots");
+    // The copy carries this session's alert annotations.
+    let text = std::fs::read_to_string(&rec[0]).unwrap();
+    assert!(text.contains("] session note alert raise"), "alerts are annotated in the recording");
+}

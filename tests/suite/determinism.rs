@@ -1,0 +1,96 @@
+//! Determinism: the engine is a pure function of the event stream, so the
+//! same recording gives byte-identical snapshots however it is played.
+
+use std::sync::Arc;
+
+use termvel::config::ConfigSet;
+use termvel::engine::{Engine, EngineOptions, Snapshot};
+use termvel::headless::snapshot_json;
+use termvel::player::{Control, PlayerOptions, PlayerStatus, play};
+use termvel::sources::FileSource;
+
+use crate::util::{demo, snapshots_of, stdout, termvel};
+
+fn demo_config() -> Arc<ConfigSet> {
+    let src = FileSource::open(&demo()).unwrap();
+    let texts = src.header().configs.iter().map(|c| (c.origin.clone(), c.text.clone())).collect();
+    Arc::new(ConfigSet::from_texts(texts).unwrap())
+}
+
+/// Plays the demo through the player at `speed` on tokio's paused clock
+/// (so pacing costs no real time) with the given controls sent first;
+/// returns the snapshot lines.
+fn played(speed: f64, controls: Vec<Control>) -> Vec<String> {
+    let cfg = demo_config();
+    let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
+    let (tx, rx) = tokio::sync::mpsc::channel(16);
+    for c in controls {
+        tx.try_send(c).unwrap();
+    }
+    drop(tx);
+    let mut out = Vec::new();
+    let mut sink = |s: Arc<Snapshot>, _: &PlayerStatus| out.push(snapshot_json(&s).to_string());
+    let make = move || Engine::new(cfg.clone(), EngineOptions::default());
+    let opts = PlayerOptions { speed, start_paused: false, hold_at_end: false, recorder: None };
+    rt.block_on(play(FileSource::open(&demo()).unwrap(), make, opts, rx, &mut sink)).unwrap();
+    out
+}
+
+#[test]
+fn the_same_recording_twice_gives_identical_snapshots() {
+    let a = snapshots_of(FileSource::open(&demo()).unwrap(), demo_config());
+    let b = snapshots_of(FileSource::open(&demo()).unwrap(), demo_config());
+    assert!(a.len() > 900, "{} snapshots", a.len());
+    assert!(a == b, "two runs differ");
+    // The derived block is there and not trivially empty.
+    assert!(a[600].contains("\"projection\":{"), "{}", &a[600][..200]);
+}
+
+#[test]
+fn paced_and_as_fast_as_possible_give_identical_snapshots() {
+    let fast = played(f64::INFINITY, vec![]);
+    let paced = played(64.0, vec![]);
+    let slow = played(0.5, vec![]);
+    let straight = snapshots_of(FileSource::open(&demo()).unwrap(), demo_config());
+    assert_eq!(fast.len(), straight.len());
+    assert!(fast == straight, "the player changes nothing");
+    assert!(paced == fast, "x64 differs from as fast as possible");
+    assert!(slow == fast, "x0.5 differs from as fast as possible");
+}
+
+#[test]
+fn seeking_back_lands_on_exactly_the_straight_run() {
+    // Seek forward to 60 s in, then back to 20 s in: from there on the
+    // snapshots must be those of a straight run (the engine restarts and
+    // feeds forward; nothing of the later state leaks back).
+    let straight = snapshots_of(FileSource::open(&demo()).unwrap(), demo_config());
+    let t0_ns = serde_json::from_str::<serde_json::Value>(&straight[0]).unwrap()["t_ns"].as_i64().unwrap();
+    let seeked =
+        played(f64::INFINITY, vec![Control::SeekTo(t0_ns + 60_000_000_000), Control::SeekTo(t0_ns + 20_000_000_000)]);
+    // seeked = [where the forward seek landed, where the backward seek
+    // landed, then everything played from there to the end].
+    assert!(seeked.len() > 3);
+    let target = t0_ns + 20_000_000_000;
+    let landed = &seeked[1];
+    let t_landed = serde_json::from_str::<serde_json::Value>(landed).unwrap()["t_ns"].as_i64().unwrap();
+    // The last snapshot whose interval is complete at the target.
+    assert!(t_landed <= target && t_landed >= target - 100_000_000, "landed at {t_landed}, target {target}");
+    let j = straight.iter().position(|s| s == landed).expect("the landing snapshot is the straight run's");
+    assert_eq!(&seeked[1..], &straight[j..]);
+}
+
+#[test]
+fn the_binary_prints_the_same_bytes_paced_or_not() {
+    let file = demo();
+    let f = file.to_str().unwrap();
+    let a = termvel(&["replay", f, "--headless", "--no-record"]);
+    let b = termvel(&["replay", f, "--headless", "--no-record"]);
+    assert!(a.status.success() && b.status.success());
+    assert!(a.stdout == b.stdout, "two runs of the binary differ");
+    // The demo is about 110 s of stream: at x64 this takes under 2 s.
+    let paced = termvel(&["replay", f, "--headless", "--no-record", "--speed", "64"]);
+    assert!(paced.status.success());
+    assert!(paced.stdout == a.stdout, "x64 through the binary differs");
+    let last = stdout(&a).lines().last().unwrap().to_string();
+    assert!(last.starts_with("{\"summary\":"), "{last}");
+}
