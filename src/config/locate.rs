@@ -182,6 +182,17 @@ fn line_keys(line: &str, upto: usize) -> Option<Vec<String>> {
                 return Some(vec![key.trim_matches(|c| c == '"' || c == '\'').to_string()]);
             }
         }
+        // A line that starts with a bare key but has no `=` (a typo such as
+        // `bitrate 500000`): the key is its first word. Array continuations
+        // start with a digit, a quote or a bracket, so they are not taken.
+        let t = line.trim_start();
+        if t.starts_with(|c: char| c.is_ascii_alphabetic() || c == '_') {
+            let word: String =
+                t.chars().take_while(|c| c.is_ascii_alphanumeric() || *c == '_' || *c == '-' || *c == '.').collect();
+            if word != "true" && word != "false" && word != "inf" && word != "nan" {
+                return Some(vec![word]);
+            }
+        }
         return None;
     }
     Some(keys)
@@ -206,6 +217,12 @@ mod tests {
         assert_eq!(key_path_at(DOC, at("'y'")), "message[1].signal[1].opts.hi");
         assert_eq!(key_path_at(DOC, at("  2,")), "message[1].signal[1].list");
         assert_eq!(key_path_at(DOC, at("[[message]]\nid = 2")), "message[1]");
+    }
+
+    #[test]
+    fn a_key_without_equals_is_named() {
+        let doc = "kind = \"signals\"\nbitrate 500000\n";
+        assert_eq!(key_path_at(doc, doc.find("500000").unwrap() + 3), "bitrate");
     }
 
     #[test]

@@ -208,6 +208,11 @@ fn humanise(msg: &str, key: &mut String) -> String {
         }
         return format!("missing key `{name}`");
     }
+    if msg.starts_with("string values must be quoted") {
+        return "expected a value: a number, \"quoted text\", true or false, or a [list]; \
+                units belong in the key's name (e.g. period_ms = 10), not after the number"
+            .to_string();
+    }
     if let Some(rest) = msg.strip_prefix("unknown variant ") {
         let (found, allowed) = rest.split_once(", expected ").unwrap_or((rest, "?"));
         return format!("expected {allowed}, found {found}");
@@ -218,8 +223,11 @@ fn humanise(msg: &str, key: &mut String) -> String {
 fn plain_type(t: &str) -> String {
     match t {
         "f64" | "f32" => "a number".to_string(),
-        "u8" | "u16" | "u32" | "u64" | "usize" => format!("a whole number ≥ 0 (fits {t})"),
-        "i8" | "i16" | "i32" | "i64" => format!("a whole number (fits {t})"),
+        "u8" => "a whole number from 0 to 255".to_string(),
+        "u16" => "a whole number from 0 to 65535".to_string(),
+        "u32" => "a whole number from 0 to 4294967295".to_string(),
+        "u64" | "usize" => "a whole number ≥ 0".to_string(),
+        "i8" | "i16" | "i32" | "i64" => "a whole number".to_string(),
         "a boolean" | "bool" => "true or false".to_string(),
         other => other.to_string(),
     }

@@ -192,7 +192,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
             continue;
         };
         if let Some((j, _)) = messages.iter().enumerate().find(|(_, p): &(usize, &Message)| p.id == id) {
-            ctx.err(m.id.span(), &mk("id"), format!("expected a unique id; {id} is already message[{j}]"));
+            ctx.err(m.id.span(), &mk("id"), format!("expected a unique id; 0x{:X} is already message[{j}]", id.raw()));
         }
         let period_ms = ctx.range(&m.period_ms, &mk("period_ms"), 0.1, 60_000.0, "a period in ms");
         let length = *m.length.get_ref();

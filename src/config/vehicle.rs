@@ -187,11 +187,39 @@ pub struct Vehicle {
     /// The speed symbol as written, for display.
     pub tyre_symbol: Option<String>,
     pub tyre_radius_m: f64,
+    /// The full-load envelope tabulated every [`ENVELOPE_STEP_MPS`] (derived
+    /// from the engine and gearbox; see [`Vehicle::rebuild_envelope`]).
+    pub envelope_w: Vec<f64>,
 }
+
+/// Speed step of the tabulated full-load envelope, m/s.
+pub const ENVELOPE_STEP_MPS: f64 = 0.25;
+/// Highest speed tabulated, m/s (above it the envelope is held).
+pub const ENVELOPE_MAX_MPS: f64 = 200.0;
 
 impl Vehicle {
     pub fn effective_mass_kg(&self) -> f64 {
         self.mass_kg * self.rotating_mass_factor
+    }
+
+    /// Tabulates the combustion envelope; call after changing the engine,
+    /// gearbox or tyre radius.
+    pub fn rebuild_envelope(&mut self) {
+        let n = (ENVELOPE_MAX_MPS / ENVELOPE_STEP_MPS) as usize + 1;
+        self.envelope_w = (0..n)
+            .map(|i| self.combustion.envelope_power_w(i as f64 * ENVELOPE_STEP_MPS, self.tyre_radius_m))
+            .collect();
+    }
+
+    /// Full-load combustion shaft power at road speed `v_mps`, W: the
+    /// envelope over the gears, interpolated in the table (the projection
+    /// calls this four times a step; the table makes it a lookup).
+    #[inline]
+    pub fn full_load_power_w(&self, v_mps: f64) -> f64 {
+        let x = (v_mps.max(0.0) / ENVELOPE_STEP_MPS).min((self.envelope_w.len() - 1) as f64);
+        let i = (x as usize).min(self.envelope_w.len().saturating_sub(2));
+        let f = x - i as f64;
+        self.envelope_w[i] + (self.envelope_w[i + 1] - self.envelope_w[i]) * f
     }
 }
 
@@ -332,7 +360,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     };
     let radius = ctx.range(&t.rolling_radius_m, "tyre.rolling_radius_m", 0.15, 0.8, "a radius in m");
 
-    Some(Vehicle {
+    let mut vehicle = Vehicle {
         name: raw.name,
         mass_kg,
         rotating_mass_factor,
@@ -370,7 +398,12 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
         tyre_rated_mps: rated_kmh / 3.6,
         tyre_symbol: symbol,
         tyre_radius_m: radius,
-    })
+        envelope_w: Vec::new(),
+    };
+    if ctx.errors.is_empty() {
+        vehicle.rebuild_envelope();
+    }
+    Some(vehicle)
 }
 
 #[cfg(test)]

@@ -300,7 +300,7 @@ pub fn compute(
 
     // Road load at the present speed.
     let grade = track.grade_at(inp.distance_m);
-    let comb_env = |v: f64| veh.combustion.envelope_power_w(v, veh.tyre_radius_m);
+    let comb_env = |v: f64| veh.full_load_power_w(v);
     if let Some(v) = d.speed_mps {
         let rl = roadload::road_load(&roadload::RoadLoadInputs {
             v_mps: v,

@@ -99,17 +99,40 @@ pub struct Projection {
     pub points: Vec<(f64, f64, f64)>,
 }
 
-/// Drive power at the wheels at full demand, W, before the grip cap.
-fn drive_power_w(inp: &ProjectionInputs<'_>, t: f64, v: f64, boost_w: Option<f64>, energy_s: f64) -> f64 {
-    let veh = inp.vehicle;
-    let comb = veh.combustion.envelope_power_w(v, veh.tyre_radius_m);
-    let batt = match boost_w {
-        Some(w) => w,
-        None if t < energy_s => inp.boost.deliverable_after_w(t),
-        None => 0.0,
-    };
-    let motor = (batt * veh.motor_efficiency).min(veh.motor_rated_power_w);
-    veh.driveline_efficiency * (comb + motor)
+/// The battery's deliverable power along the curve, with the curve's value
+/// now computed once (the projection asks four times a step).
+#[derive(Clone, Copy)]
+struct Curve {
+    /// deliverable_now / ratio_now, and the curve's shape.
+    scale_w: f64,
+    t0_s: f64,
+    tau_s: f64,
+    floor: f64,
+    energy_s: f64,
+}
+
+impl Curve {
+    fn new(b: &BoostModel, energy_s: f64) -> Curve {
+        let now = derating_ratio(b.time_in_boost_s, b.tau_s, b.floor);
+        let scale_w = if b.available && now > 0.0 { b.deliverable_w / now } else { 0.0 };
+        Curve { scale_w, t0_s: b.time_in_boost_s, tau_s: b.tau_s, floor: b.floor, energy_s }
+    }
+
+    #[inline]
+    fn at(&self, t: f64) -> f64 {
+        if t >= self.energy_s || self.scale_w == 0.0 {
+            return 0.0;
+        }
+        self.scale_w * (self.floor + (1.0 - self.floor) * (-(self.t0_s + t) / self.tau_s).exp())
+    }
+}
+
+/// Drive power at the wheels at full demand with battery terminal power
+/// `batt_w`, W, before the grip cap.
+#[inline]
+fn drive_power_w(veh: &Vehicle, v: f64, batt_w: f64) -> f64 {
+    let motor = (batt_w * veh.motor_efficiency).min(veh.motor_rated_power_w);
+    veh.driveline_efficiency * (veh.full_load_power_w(v) + motor)
 }
 
 /// Road load at the wheels at `v` on level ground, W.
@@ -131,7 +154,7 @@ fn road_load_w(inp: &ProjectionInputs<'_>, v: f64, grade: f64) -> f64 {
 /// (bisection: drive power varies with speed through the gears, so this is
 /// not a pure cubic; with constant power it is the Cardano root, tested).
 pub fn terminal_speed(inp: &ProjectionInputs<'_>, boost_w: f64) -> f64 {
-    let surplus = |v: f64| drive_power_w(inp, 0.0, v, Some(boost_w), 0.0) - road_load_w(inp, v, 0.0);
+    let surplus = |v: f64| drive_power_w(inp.vehicle, v, boost_w) - road_load_w(inp, v, 0.0);
     let (mut lo, mut hi) = (1.0f64, 250.0f64);
     if surplus(hi) > 0.0 {
         return hi;
@@ -191,13 +214,16 @@ pub fn project(inp: &ProjectionInputs<'_>) -> Projection {
         wind_mps: inp.wind_mps,
         grade: 0.0,
     };
-    let energy_s = energy_time_s(&inp.boost);
+    let curve = Curve::new(&inp.boost, energy_time_s(&inp.boost));
     let grip_n = veh.grip_limit_g * G_MPS2 * veh.mass_kg;
     let stop_by = track.stop_by_m();
+    let weight_n = veh.mass_kg * G_MPS2;
     let power = |t: f64, x: f64, v: f64| {
-        let p = drive_power_w(inp, t, v, None, energy_s).min(grip_n * v.max(0.5));
-        // The grade enters as power: the motion parameters are level.
-        p - veh.mass_kg * G_MPS2 * track.grade_at(x).atan().sin() * v
+        let p = drive_power_w(veh, v, curve.at(t)).min(grip_n * v.max(0.5));
+        // The grade enters as power (the motion parameters are level):
+        // sin(atan g) = g / √(1 + g²).
+        let g = track.grade_at(x);
+        p - weight_n * g / (1.0 + g * g).sqrt() * v
     };
     let stop = |_t: f64, x: f64, v: f64| x + braking_distance(inp, v) >= stop_by;
     let traj = integrate(&params, inp.x0_m, inp.v0_mps, STEP_S, HORIZON_S, power, stop);
@@ -266,6 +292,7 @@ mod tests {
         c.curve_torque_nm = c.curve_rpm.iter().map(|rpm| 300e3 / (rpm * std::f64::consts::TAU / 60.0)).collect();
         c.redline_rpm = 9000.0;
         cfg.vehicle.crr2_s2_m2 = 0.0;
+        cfg.vehicle.rebuild_envelope();
         let inp = inputs(&cfg, 50.0);
         let p_wheel = cfg.vehicle.driveline_efficiency * 300e3;
         let k = 0.5 * 1.2 * 0.8;

@@ -248,19 +248,35 @@ fn check_warns_when_the_bus_is_overloaded() {
     assert_eq!(o.status.code(), Some(0), "{}", all_output(&o));
 }
 
+/// The REFERENCES.md example map: 20 standard 8-byte messages every 10 ms
+/// and 10 extended 8-byte messages every 20 ms on 500 kbit/s.
+fn reference_example() -> String {
+    let mut messages: Vec<(u32, bool, f64)> = (0..20).map(|i| (0x100 + i, false, 10.0)).collect();
+    messages.extend((0..10).map(|i| (0x1800_0000 + i, true, 20.0)));
+    signals_file(500_000, &messages)
+}
+
 #[test]
 fn check_reports_the_reference_bus_load() {
     // REFERENCES.md, "CAN frame length and bus load": 20 standard 8-byte
     // messages at 100 Hz plus 10 extended 8-byte at 50 Hz on 500 kbit/s →
     // 70.0 % worst case. By hand: 20 × 135 bits × 100/s + 10 × 160 bits × 50/s
     // = 270 000 + 80 000 = 350 000 bit/s, and 350 000 / 500 000 = 0.700.
-    let mut messages: Vec<(u32, bool, f64)> = (0..20).map(|i| (0x100 + i, false, 10.0)).collect();
-    messages.extend((0..10).map(|i| (0x1800_0000 + i, true, 20.0)));
-    let o = check_text(&signals_file(500_000, &messages));
+    let o = check_text(&reference_example());
     let out = stdout(&o);
     assert_eq!(o.status.code(), Some(0), "{}", all_output(&o));
     assert!(out.contains("30 messages"), "{out}");
     assert!(out.contains("70.0 % worst case"), "{out}");
-    // Exactly at the threshold is not above it.
+}
+
+// Regression: the per-message loads sum to 0.7000000000000004 in f64, which
+// a plain `>` took for "above 70 %" although the line reads 70.0 %.
+#[test]
+fn check_does_not_warn_at_exactly_the_threshold() {
+    // REFERENCES.md: this map loads the bus 70.0 % worst case, which is not
+    // above the 70 % warning threshold.
+    let o = check_text(&reference_example());
+    let out = stdout(&o);
+    assert!(out.contains("70.0 % worst case"), "{out}");
     assert!(!out.contains("above 70 %"), "warned at exactly 70 %: {out}");
 }
