@@ -29,7 +29,8 @@ python-can does not carry the information:
   classic-over-8-bytes  python-can accepts a classic frame of more than 8
       bytes (e.g. 12); termvel rejects it.
   len8-dlc-suffix    python-can raises on can-utils' `_<dlc>` suffix after 8
-      bytes (Linux len8_dlc); not in notes/crates.md, seen in canutils.py.
+      bytes, or after a remote length of 8 (`#R8_C`) (Linux len8_dlc); not in
+      notes/crates.md, seen in canutils.py.
   torn-tail          termvel skips a last line without its newline (a cut
       write) and reports it; python-can reads whatever the cut left.
 A rule applies only when both the line's syntax and python-can's outcome fit
@@ -145,6 +146,8 @@ def known_rejection(token: str, error: str) -> str | None:
         return "remote-hex-length"
     data = rest[1:] if fd else rest
     if not fd and re.match(rf"^(?:{HEX}{{2}}){{8}}_{HEX}$", data) and "'_" in error:
+        return "len8-dlc-suffix"
+    if not fd and re.match(rf"^[Rr]8_{HEX}$", rest) and "_" in error:
         return "len8-dlc-suffix"
     if "." in data and "." in error.split(":", 2)[-1]:
         return "dot-separator"

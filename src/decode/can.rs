@@ -32,6 +32,12 @@ struct CompiledSignal {
     /// Right shift that brings the least significant bit to bit 0.
     shift: u8,
     bits: u8,
+    /// Shift of the least significant bit in the frame's payload read as
+    /// one 64-bit word (little-endian word for `little` signals, big-endian
+    /// for `big`), for classic frames; `need` bytes must be present.
+    shift8: u8,
+    need: u8,
+    mask: u64,
     big: bool,
     signed: bool,
     scale: f64,
@@ -129,16 +135,59 @@ impl CanMap {
             self.counters.unmapped += 1;
             return;
         };
-        // Zero-padded copy so every window read is in bounds.
-        let mut buf = [0u8; 80];
-        buf[..data.len()].copy_from_slice(data);
         let len = data.len();
+        if len <= 8 {
+            // A classic payload is one 64-bit word: read it once both ways
+            // and take each signal with a shift and a mask.
+            let mut b = [0u8; 8];
+            b[..len].copy_from_slice(data);
+            let (le, be) = (u64::from_le_bytes(b), u64::from_be_bytes(b));
+            let msg = &self.messages[mi];
+            out.reserve(msg.signals.len());
+            for s in &msg.signals {
+                if s.need as usize > len {
+                    self.counters.short += 1;
+                    continue;
+                }
+                let word = if s.big { be } else { le };
+                let raw = (word >> s.shift8) & s.mask;
+                let raw = if s.signed && s.bits < 64 && raw >> (s.bits - 1) & 1 == 1 {
+                    (raw | !s.mask) as i64 as f64
+                } else if s.signed {
+                    raw as i64 as f64
+                } else {
+                    raw as f64
+                };
+                let phys = raw * s.scale + s.offset;
+                let valid = phys >= s.min && phys <= s.max;
+                if !valid {
+                    self.counters.out_of_range += 1;
+                }
+                out.push(Sample { t_ns, channel: s.channel, value: phys * s.si_factor + s.si_offset, valid });
+            }
+        } else {
+            // FD: a zero-padded copy so every window read is in bounds.
+            let mut buf = [0u8; 80];
+            buf[..len].copy_from_slice(data);
+            self.decode_signals(mi, t_ns, &buf, len, out);
+        }
+    }
+
+    #[inline(always)]
+    fn decode_signals<const N: usize>(
+        &mut self,
+        mi: usize,
+        t_ns: TimeNs,
+        buf: &[u8; N],
+        len: usize,
+        out: &mut Vec<Sample>,
+    ) {
         for s in &self.messages[mi].signals {
             if (s.lo + s.nbytes) as usize > len {
                 self.counters.short += 1;
                 continue;
             }
-            let raw = extract(&buf, s);
+            let raw = extract(buf, s);
             let phys = raw * s.scale + s.offset;
             let valid = phys >= s.min && phys <= s.max;
             if !valid {
@@ -150,7 +199,7 @@ impl CanMap {
 }
 
 #[inline(always)]
-fn extract(buf: &[u8; 80], s: &CompiledSignal) -> f64 {
+fn extract<const N: usize>(buf: &[u8; N], s: &CompiledSignal) -> f64 {
     let lo = s.lo as usize;
     let bits = s.bits as u32;
     let raw: u64 = if s.nbytes <= 8 {
@@ -197,12 +246,23 @@ fn compile_signal(m: &Message, s: &Signal, channels: &mut ChannelTable) -> Compi
             (msb / 8, lsb / 8, lsb % 8)
         }
     };
+    // In a 64-bit word of the first eight payload bytes, payload bit n is
+    // word bit n little-endian, and word bit (7 − n/8)·8 + n%8 big-endian.
+    let lsb = *positions.last().expect("at least one bit");
+    let lsb = if s.byte_order == ByteOrder::Little { positions[0] } else { lsb };
+    let shift8 = match s.byte_order {
+        ByteOrder::Little => lsb,
+        ByteOrder::Big => (7u32.saturating_sub(lsb / 8)) * 8 + lsb % 8,
+    };
     CompiledSignal {
         channel,
         lo: lo as u8,
         nbytes: (hi - lo + 1) as u8,
         shift: shift as u8,
         bits: s.bit_length,
+        shift8: shift8.min(63) as u8,
+        need: (hi + 1) as u8,
+        mask: if s.bit_length == 64 { u64::MAX } else { (1u64 << s.bit_length) - 1 },
         big: s.byte_order == ByteOrder::Big,
         signed: s.signed,
         scale: s.scale,

@@ -58,6 +58,54 @@ const HEX: [u8; 256] = {
     t
 };
 
+/// Eight ASCII decimal digits at `b[..8]` as a number, or `None` if any byte
+/// is not a digit (SWAR: the classic multiply-and-fold, Lemire's "fast
+/// integer parsing" technique).
+#[inline(always)]
+fn eight_digits(b: &[u8]) -> Option<u64> {
+    let c = u64::from_le_bytes(b.get(..8)?.try_into().ok()?);
+    let d = c.wrapping_sub(0x3030_3030_3030_3030);
+    // Every byte must be 0..=9: no borrow (high bit clear) and d + 6 < 16.
+    if (d | d.wrapping_add(0x0606_0606_0606_0606)) & 0xF0F0_F0F0_F0F0_F0F0 != 0 || c & 0x8080_8080_8080_8080 != 0 {
+        return None;
+    }
+    let d = (d.wrapping_mul(10) + (d >> 8)) & 0x00FF_00FF_00FF_00FF;
+    let d = (d.wrapping_mul(100) + (d >> 16)) & 0x0000_FFFF_0000_FFFF;
+    Some((d.wrapping_mul(10_000) + (d >> 32)) & 0xFFFF_FFFF)
+}
+
+/// Per-byte "in [lo, hi]" for bytes below 0x80: the high bit of each byte
+/// of the result says so.
+#[inline(always)]
+fn in_range(x: u64, lo: u8, hi: u8) -> u64 {
+    let ones = 0x0101_0101_0101_0101u64;
+    let ge = x.wrapping_add(ones * (0x80 - lo) as u64);
+    let gt = x.wrapping_add(ones * (0x80 - hi - 1) as u64);
+    ge & !gt & 0x8080_8080_8080_8080
+}
+
+/// Eight ASCII hex digits at `b[..8]` as four bytes, or `None` if any is
+/// not a hex digit (SWAR).
+#[inline(always)]
+fn eight_hex(b: &[u8]) -> Option<[u8; 4]> {
+    let c = u64::from_le_bytes(b.get(..8)?.try_into().ok()?);
+    if c & 0x8080_8080_8080_8080 != 0 {
+        return None;
+    }
+    // Digits are checked on the bytes as they are; letters after folding
+    // A-F to a-f (folding first would also turn 0x10..0x19 into digits).
+    let x = c | 0x2020_2020_2020_2020;
+    if in_range(c, b'0', b'9') | in_range(x, b'a', b'f') != 0x8080_8080_8080_8080 {
+        return None;
+    }
+    // Nibble = low four bits, plus 9 for letters (bit 6 set).
+    let n = (x & 0x0F0F_0F0F_0F0F_0F0F) + ((x >> 6) & 0x0101_0101_0101_0101) * 9;
+    let m = ((n << 4) | (n >> 8)) & 0x00FF_00FF_00FF_00FF;
+    let m = (m | (m >> 8)) & 0x0000_FFFF_0000_FFFF;
+    let m = (m | (m >> 16)) & 0xFFFF_FFFF;
+    Some((m as u32).to_le_bytes())
+}
+
 #[inline(always)]
 fn err(column: usize, expected: &'static str) -> CandumpError {
     CandumpError { column: column + 1, expected }
@@ -77,6 +125,20 @@ pub fn parse_time(line: &[u8]) -> Result<(TimeNs, usize), CandumpError> {
 /// (the recording format uses `[...]` for events that are not CAN frames).
 #[inline]
 pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), CandumpError> {
+    // Fast path for the common `(SSSSSSSSSS.UUUUUU)`: 10 digits of seconds,
+    // 6 of microseconds, read eight at a time.
+    if line.len() >= 19 && line[11] == b'.' && line[18] == close {
+        let frac = [b'0', b'0', line[12], line[13], line[14], line[15], line[16], line[17]];
+        if let (Some(hi), Some(us)) = (eight_digits(&line[1..9]), eight_digits(&frac))
+            && line[9].is_ascii_digit()
+            && line[10].is_ascii_digit()
+        {
+            let secs = hi * 100 + (line[9] - b'0') as u64 * 10 + (line[10] - b'0') as u64;
+            if secs <= (i64::MAX / 1_000_000_000 - 1) as u64 {
+                return Ok((secs as i64 * 1_000_000_000 + us as i64 * 1000, 19));
+            }
+        }
+    }
     let mut i = 1;
     let mut secs: i64 = 0;
     let start = i;
@@ -119,6 +181,15 @@ pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), Can
 
 /// Parses one log line (without its line ending).
 pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
+    let (t_ns, iface, frame) = parse_line_bytes(line)?;
+    let iface = std::str::from_utf8(iface)
+        .map_err(|_| err(line.iter().position(|b| *b == b' ').unwrap_or(0) + 1, "an interface name in UTF-8"))?;
+    Ok(CandumpLine { t_ns, iface, frame })
+}
+
+/// [`parse_line`] with the interface name left as bytes (the reader
+/// compares them with the previous line's before paying for validation).
+pub fn parse_line_bytes(line: &[u8]) -> Result<(TimeNs, &[u8], CanFrame), CandumpError> {
     if line.len() > MAX_LINE {
         return Err(err(MAX_LINE, "a line of at most 512 bytes"));
     }
@@ -134,7 +205,7 @@ pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
     if i == istart {
         return Err(err(i, "an interface name"));
     }
-    let iface = std::str::from_utf8(&line[istart..i]).map_err(|_| err(istart, "an interface name in UTF-8"))?;
+    let iface = &line[istart..i];
     if line.get(i) != Some(&b' ') {
         return Err(err(i, "a space after the interface name"));
     }
@@ -147,7 +218,7 @@ pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
         _ if rest.iter().all(|b| *b == b' ' || *b == b'\t' || *b == b'\r') => {}
         _ => return Err(err(end, "the end of the line (or ' R' / ' T') after the frame")),
     }
-    Ok(CandumpLine { t_ns, iface, frame })
+    Ok((t_ns, iface, frame))
 }
 
 /// Parses a frame in candump syntax starting at `line[i]`; returns the frame
@@ -187,19 +258,29 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
     let can_id = if extended { CanId::Extended(id & CanId::EXTENDED_MAX) } else { CanId::Standard(id as u16) };
 
     match line.get(i) {
-        Some(b'R') => {
+        Some(b'R') | Some(b'r') => {
             i += 1;
             let mut dlc = 0u8;
             if let Some(&c) = line.get(i)
                 && HEX[c as usize] != 0xFF
             {
                 dlc = HEX[c as usize];
+                if dlc > 8 {
+                    return Err(err(i, "a remote length from 0 to 8"));
+                }
                 i += 1;
+                // Linux `len8_dlc` on a remote frame: `R8_<dlc>`.
+                if dlc == 8 && line.get(i) == Some(&b'_') {
+                    match line.get(i + 1).map(|c| HEX[*c as usize]) {
+                        Some(d) if d != 0xFF => i += 2,
+                        _ => return Err(err(i + 1, "a hex DLC digit after '_'")),
+                    }
+                }
             }
             if is_error {
                 return Err(err(id_start, "an error frame with data, not a remote request"));
             }
-            Ok((CanFrame::Remote(RemoteFrame::new(can_id, dlc).expect("a hex digit is at most 15")), i))
+            Ok((CanFrame::Remote(RemoteFrame::new(can_id, dlc).expect("at most 8")), i))
         }
         Some(b'#') => {
             i += 1;
@@ -219,7 +300,7 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
             }
         }
         _ => {
-            let mut data = [0u8; 64];
+            let mut data = [0u8; 8];
             let (n, mut end) = parse_data(line, i, &mut data, 8)?;
             // Linux `len8_dlc`: `_<dlc>` after 8 bytes; the payload is what counts.
             if line.get(end) == Some(&b'_') && n == 8 {
@@ -241,11 +322,25 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
 
 /// Hex byte pairs, optionally separated by '.', into `out`; at most `max`.
 #[inline(always)]
-fn parse_data(line: &[u8], mut i: usize, out: &mut [u8; 64], max: usize) -> Result<(usize, usize), CandumpError> {
+fn parse_data<const N: usize>(
+    line: &[u8],
+    mut i: usize,
+    out: &mut [u8; N],
+    max: usize,
+) -> Result<(usize, usize), CandumpError> {
     let mut n = 0;
+    // Fast path: eight hex digits at a time while they last.
+    while n + 4 <= max
+        && let Some(b) = line.get(i..i + 8).and_then(eight_hex)
+    {
+        out[n..n + 4].copy_from_slice(&b);
+        n += 4;
+        i += 8;
+    }
     while i < line.len() {
         let c = line[i];
-        if c == b'.' {
+        // One '.' may separate two bytes (can-utils' own rule).
+        if c == b'.' && n > 0 && line.get(i + 1).is_some_and(|d| HEX[*d as usize] != 0xFF) {
             i += 1;
             continue;
         }
@@ -366,6 +461,11 @@ mod tests {
         assert_eq!(ok("(1.5) can0 123#11.22.33").frame.data(), &[0x11, 0x22, 0x33]);
         assert_eq!(ok("(1.5) can0 123#11 R").frame.data(), &[0x11]);
         assert_eq!(ok("(1.5) can0 123#1122334455667788_C").frame.data().len(), 8);
+        match ok("(1.5) can0 123#R8_C").frame {
+            CanFrame::Remote(r) => assert_eq!(r.dlc(), 8),
+            f => panic!("{f:?}"),
+        }
+        assert!(matches!(ok("(1.5) can0 123#r").frame, CanFrame::Remote(_)));
     }
 
     #[test]
@@ -392,6 +492,32 @@ mod tests {
         assert_eq!(e("(1.0) can0 123#00 junk").expected, "the end of the line (or ' R' / ' T') after the frame");
         assert_eq!(e("(99999999999.0) c 123#").expected, "at most 10 digits of seconds");
         assert_eq!(e("(1.0)").expected, "a space after the timestamp");
+        assert_eq!(e("(1.0) c 123#R9").expected, "a remote length from 0 to 8");
+        assert_eq!(e("(1.0) c 123#11..22").column, 15, "one separator between bytes");
+        assert_eq!(e("(1.0) c 123#.11").column, 13);
+    }
+
+    #[test]
+    fn swar_helpers_agree_with_bytewise_parsing() {
+        assert_eq!(eight_digits(b"12345678"), Some(12_345_678));
+        assert_eq!(eight_digits(b"00000009"), Some(9));
+        for bad in [b"1234567a", b"1234/678", b"12:45678", b" 2345678"] {
+            assert_eq!(eight_digits(bad), None, "{}", String::from_utf8_lossy(bad));
+        }
+        assert_eq!(eight_hex(b"0123ABef"), Some([0x01, 0x23, 0xAB, 0xEF]));
+        assert_eq!(eight_hex(b"ffFF0000"), Some([0xFF, 0xFF, 0, 0]));
+        for bad in [b"0123ABeg", b"0123AB:F", b"0123AB@F", b"0123AB`F", b"0123AB/F", b"0123AB\xC3F"] {
+            assert_eq!(eight_hex(bad), None, "{}", String::from_utf8_lossy(bad));
+        }
+        // Every byte value in every position: the SWAR check agrees with the table.
+        for pos in 0..8 {
+            for b in 0..=255u8 {
+                let mut s = *b"00000000";
+                s[pos] = b;
+                assert_eq!(eight_hex(&s).is_some(), HEX[b as usize] != 0xFF, "byte {b:#x} at {pos}");
+                assert_eq!(eight_digits(&s).is_some(), b.is_ascii_digit(), "byte {b:#x} at {pos}");
+            }
+        }
     }
 
     #[test]

@@ -78,6 +78,8 @@ pub struct RecordingReader<R: Read> {
     prev_t: Option<TimeNs>,
     /// Skipping the rest of an over-long line.
     skipping: bool,
+    /// The source of the previous CAN line (logs rarely switch interface).
+    last_can_source: Option<(String, crate::event::SourceId)>,
 }
 
 impl RecordingReader<File> {
@@ -108,6 +110,7 @@ impl<R: Read> RecordingReader<R> {
             stats: ReadStats::default(),
             prev_t: None,
             skipping: false,
+            last_can_source: None,
         };
         r.read_header()?;
         Ok(r)
@@ -192,7 +195,12 @@ impl<R: Read> RecordingReader<R> {
         let (s, e) = match self.next_raw().map_err(|e| self.io_err(e))? {
             Next::Line(s, e) => (s, e),
             Next::TooLong => {
-                return Err(self.header_err(1, "first line longer than 8192 bytes: not a recording or candump log"));
+                // Not a termvel header: a candump log whose first line is
+                // corrupt. Count it like any other bad line and read on.
+                self.header = Header { sources: SourceTable::default(), ..Header::default() };
+                self.stats.lines += 1;
+                self.malformed(format!("line longer than {MAX_LINE} bytes"));
+                return Ok(());
             }
             Next::End => {
                 if self.stats.torn_tail.is_some() {
@@ -340,18 +348,26 @@ impl<R: Read> RecordingReader<R> {
         match line.first() {
             None => Ok(None),
             Some(b'(') => {
-                let l = candump::parse_line(line).map_err(|e| format!("CAN line: {e}"))?;
-                let src = match self.header.sources.find(l.iface) {
+                let (t_ns, iface, frame) = candump::parse_line_bytes(line).map_err(|e| format!("CAN line: {e}"))?;
+                if let Some((name, id)) = &self.last_can_source
+                    && name.as_bytes() == iface
+                {
+                    return Ok(Some(Event::new(t_ns, *id, Payload::Can(frame))));
+                }
+                let iface =
+                    std::str::from_utf8(iface).map_err(|_| "CAN line: the interface name is not UTF-8".to_string())?;
+                let src = match self.header.sources.find(iface) {
                     Some(id) => {
                         let kind = self.header.sources.get(id).map(|i| i.kind);
                         if kind != Some(SourceKind::Can) {
-                            return Err(format!("CAN frame from source {} which is not a CAN source", l.iface));
+                            return Err(format!("CAN frame from source {iface} which is not a CAN source"));
                         }
                         id
                     }
-                    None => self.header.sources.intern(l.iface, SourceKind::Can),
+                    None => self.header.sources.intern(iface, SourceKind::Can),
                 };
-                Ok(Some(Event::new(l.t_ns, src, Payload::Can(l.frame))))
+                self.last_can_source = Some((iface.to_string(), src));
+                Ok(Some(Event::new(t_ns, src, Payload::Can(frame))))
             }
             Some(b'[') => {
                 let (t_ns, i) = candump::parse_time_between(line, b']').map_err(|e| format!("event line: {e}"))?;
