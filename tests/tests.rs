@@ -5,6 +5,7 @@
 //! - `determinism`: the same input gives byte-identical snapshots, run twice,
 //!   paced or as fast as possible, in-process and through the binary.
 //! - `cli`: the commands as a user runs them: exit codes and messages.
+//! - `crosscheck`: termvel against reference libraries (python-can).
 //! - `config_errors`: the malformed-config corpus (tests/configs/bad), each
 //!   file naming the location and message it must produce; `termvel check`.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
@@ -18,6 +19,8 @@ mod util;
 mod cli;
 #[path = "suite/config_errors.rs"]
 mod config_errors;
+#[path = "suite/crosscheck.rs"]
+mod crosscheck;
 #[path = "suite/determinism.rs"]
 mod determinism;
 #[path = "suite/recording.rs"]

@@ -1,0 +1,24 @@
+#!/usr/bin/env bash
+# Installs what termvel's tests need on a fresh machine of this kind, and
+# nothing when it is already there: Debian packages (tmux for the terminal
+# tests), and a Python venv in .venv with the independent reference
+# libraries the cross-checks use (python-can). Safe to run again.
+set -euo pipefail
+cd "$(dirname "$0")/.."
+
+need_apt=()
+command -v tmux >/dev/null 2>&1 || need_apt+=(tmux)
+if ((${#need_apt[@]})); then
+  sudo=""
+  [ "$(id -u)" -eq 0 ] || sudo="sudo"
+  echo "setup: installing ${need_apt[*]}"
+  $sudo apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${need_apt[@]}"
+fi
+
+if [ ! -x .venv/bin/python ] || ! .venv/bin/python -c 'import can' 2>/dev/null; then
+  echo "setup: creating .venv with tests/requirements.txt"
+  python3 -m venv .venv
+  .venv/bin/pip install -q --disable-pip-version-check -r tests/requirements.txt
+fi
+echo "setup: done"
