@@ -79,7 +79,7 @@ fn saturate(events: &[Event]) -> Vec<Event> {
         let mut t = w[0].t_ns + step_ns;
         while t < w[1].t_ns {
             filler += 1;
-            let frame = if filler % 2 == 0 {
+            let frame = if filler.is_multiple_of(2) {
                 match &w[0].payload {
                     Payload::Can(f) => *f,
                     _ => CanFrame::Data(DataFrame::new(CanId::Standard(0x0C4), &[0; 8]).unwrap()),

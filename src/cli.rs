@@ -23,7 +23,7 @@ pub struct Cli {
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// Rehearse a run plan with the simulator, on the screens or headless.
-    Rehearse(NotBuiltArgs),
+    Rehearse(RehearseArgs),
     /// Replay a termvel recording or a candump -L log.
     Replay(ReplayArgs),
     /// Watch a run live from SocketCAN and serial inputs.
@@ -65,6 +65,12 @@ pub struct RunOpts {
     pub config: Vec<PathBuf>,
 }
 
+impl Default for RunOpts {
+    fn default() -> Self {
+        RunOpts { headless: false, every: 100_000_000, no_record: false, record_dir: None, config: Vec::new() }
+    }
+}
+
 #[derive(Args, Debug)]
 pub struct ReplayArgs {
     /// A termvel recording (.tvrec) or a candump -L log.
@@ -75,6 +81,23 @@ pub struct ReplayArgs {
     #[arg(long, value_name = "FACTOR", value_parser = parse_speed)]
     pub speed: Option<f64>,
     /// Replay as fast as possible.
+    #[arg(long, alias = "fast", conflicts_with = "speed")]
+    pub as_fast_as_possible: bool,
+    /// Start paused.
+    #[arg(long)]
+    pub paused: bool,
+}
+
+#[derive(Args, Debug, Default)]
+pub struct RehearseArgs {
+    /// A run plan (.toml, kind = "plan"); default: the built-in demo plan.
+    pub plan: Option<PathBuf>,
+    #[command(flatten)]
+    pub run: RunOpts,
+    /// Pace at this factor of real time (0.1 to 64). Screens start at 1; headless runs go as fast as possible unless this is given.
+    #[arg(long, value_name = "FACTOR", value_parser = parse_speed)]
+    pub speed: Option<f64>,
+    /// Run as fast as possible.
     #[arg(long, alias = "fast", conflicts_with = "speed")]
     pub as_fast_as_possible: bool,
     /// Start paused.

@@ -25,8 +25,11 @@ pub mod record;
 pub mod session;
 pub mod sim;
 pub mod sources;
+pub mod ui;
 pub mod units;
 
 /// The one-line caution every screen and report carries.
-pub const CAUTION: &str =
-    "Advisory only: the run director, track officials and local rules decide; not a safety system.";
+/// It fits an 80-column screen with its warning sign; the longer text (not a
+/// safety system, not a braking cue of record) is on the help screen and in
+/// the README.
+pub const CAUTION: &str = "Advisory only: the run director, track officials and local rules decide.";

@@ -86,6 +86,9 @@ pub struct PlayerOutcome {
     pub sources: SourceTable,
     pub read_stats: ReadStats,
     pub snapshots: u64,
+    /// The recording written, and how many events went into it.
+    pub recording: Option<PathBuf>,
+    pub recorded_events: u64,
 }
 
 /// Settings of a player run.
@@ -97,6 +100,9 @@ pub struct PlayerOptions {
     /// headless runs end with the stream.
     pub hold_at_end: bool,
     pub recorder: Option<(RecordingWriter<std::fs::File>, PathBuf)>,
+    /// Where to record, while paced, how late each event is applied after
+    /// it was due (µs): the feed screen's histogram.
+    pub latency: Option<crate::ui::LatencyHistogram>,
 }
 
 /// Something that receives every snapshot with the player's status. The
@@ -191,15 +197,26 @@ pub async fn play<S: EventSource, K: SnapshotSink>(
         if let Some(limit) = p.step_until
             && ev.t_ns > limit
         {
+            // The step ends on the snapshot at `limit`: show it now.
             p.step_until = None;
             p.pending = Some(ev);
-            p.sink.status(&p.status);
+            p.status.position_ns = Some(limit);
+            let mut out = Vec::new();
+            p.engine.advance(limit + 1, p.src.sources(), &mut |s| out.push(s));
+            if out.is_empty() {
+                p.sink.status(&p.status);
+            }
+            for s in out {
+                p.emit(s);
+            }
             continue;
         }
+        let mut due_at = None;
         if p.status.speed.is_finite() && !stepping {
             let anchor = *p.anchor.get_or_insert((Instant::now(), ev.t_ns));
             let due_s = (ev.t_ns - anchor.1) as f64 * 1e-9 / p.status.speed;
             let due = anchor.0 + Duration::from_secs_f64(due_s.max(0.0));
+            due_at = Some(due);
             if due > Instant::now() {
                 tokio::select! {
                     _ = tokio::time::sleep_until(due) => {}
@@ -222,6 +239,11 @@ pub async fn play<S: EventSource, K: SnapshotSink>(
             tokio::task::yield_now().await;
         }
         p.feed_stream_event(ev, true);
+        if let (Some(due), Some(h)) = (due_at, &opts.latency)
+            && let Ok(mut h) = h.lock()
+        {
+            h.saturating_record(Instant::now().saturating_duration_since(due).as_micros().max(1) as u64);
+        }
     }
 }
 
@@ -395,10 +417,15 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
     }
 
     fn finish(mut self) -> PlayerOutcome {
-        if let Some(r) = self.recorder.as_mut() {
-            let _ = r.flush();
+        let recorded_events = self.recorder.as_ref().map_or(0, |r| r.events());
+        if let Some(r) = self.recorder.as_mut()
+            && let Err(e) = r.flush()
+        {
+            tracing_error(&format!("the recording could not be flushed: {e}"));
         }
         PlayerOutcome {
+            recording: self.status.recording.clone(),
+            recorded_events,
             read_stats: self.src.read_stats(),
             sources: self.src.sources().clone(),
             engine: self.engine,
@@ -407,6 +434,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
     }
 }
 
+/// Problems while playing go to the log (the screen may be drawn).
 fn tracing_error(msg: &str) {
-    eprintln!("termvel: {msg}");
+    tracing::error!("{msg}");
 }

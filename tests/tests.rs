@@ -8,6 +8,9 @@
 //! - `crosscheck`: termvel against reference libraries (python-can).
 //! - `config_errors`: the malformed-config corpus (tests/configs/bad), each
 //!   file naming the location and message it must produce; `termvel check`.
+//! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
+//! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
+//!   resizing, and the recording afterwards.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //!
 //! Shared helpers live in `suite/util.rs`.
@@ -25,5 +28,9 @@ mod crosscheck;
 mod determinism;
 #[path = "suite/recording.rs"]
 mod recording;
+#[path = "suite/screens.rs"]
+mod screens;
 #[path = "suite/signals.rs"]
 mod signals;
+#[path = "suite/tui.rs"]
+mod tui;

@@ -3,7 +3,9 @@
 //! unusable input or a command not built yet).
 
 pub mod check;
+pub mod rehearse;
 pub mod replay;
+pub mod session;
 
 use std::process::ExitCode;
 
@@ -16,10 +18,10 @@ pub const EXIT_UNUSABLE: u8 = 2;
 /// Runs the command line.
 pub fn dispatch(cli: Cli) -> ExitCode {
     let result = match cli.command {
-        None => not_built("termvel (the live rehearsal of the demo plan)"),
+        None => rehearse::run(crate::cli::RehearseArgs::default()),
         Some(Command::Check(a)) => check::run(&a),
         Some(Command::Replay(a)) => replay::run(a),
-        Some(Command::Rehearse(_)) => not_built("rehearse"),
+        Some(Command::Rehearse(a)) => rehearse::run(a),
         Some(Command::Live(_)) => not_built("live"),
         Some(Command::Report(_)) => not_built("report"),
         Some(Command::Export(_)) => not_built("export"),

@@ -78,6 +78,8 @@ pub struct CanMap {
     ext_index: Vec<(u32, u16)>,
     messages: Vec<CompiledMessage>,
     pub counters: CanCounters,
+    /// The message each channel is decoded from (the first, if several).
+    pub channel_message: Vec<(ChannelId, String)>,
 }
 
 impl CanMap {
@@ -87,16 +89,22 @@ impl CanMap {
         let mut std_index = vec![NONE; 0x800].into_boxed_slice();
         let mut ext_index = Vec::new();
         let mut messages = Vec::with_capacity(signals.messages.len());
+        let mut channel_message: Vec<(ChannelId, String)> = Vec::new();
         for (mi, m) in signals.messages.iter().enumerate() {
             match m.id {
                 CanId::Standard(id) => std_index[id as usize] = mi as u16,
                 CanId::Extended(id) => ext_index.push((id, mi as u16)),
             }
-            let compiled = m.signals.iter().map(|s| compile_signal(m, s, channels)).collect();
+            let compiled: Vec<CompiledSignal> = m.signals.iter().map(|s| compile_signal(m, s, channels)).collect();
+            for s in &compiled {
+                if !channel_message.iter().any(|(c, _)| *c == s.channel) {
+                    channel_message.push((s.channel, m.name.clone()));
+                }
+            }
             messages.push(CompiledMessage { signals: compiled });
         }
         ext_index.sort_unstable();
-        CanMap { std_index, ext_index, messages, counters: CanCounters::default() }
+        CanMap { std_index, ext_index, messages, counters: CanCounters::default(), channel_message }
     }
 
     fn message_index(&self, id: CanId) -> Option<usize> {

@@ -324,6 +324,16 @@ impl Engine {
         self.road.update(&self.config.vehicle, &sample);
     }
 
+    /// Emits the snapshots due before `t_ns` without an event (a step in a
+    /// paused replay, a clock in a live session). The same snapshots would
+    /// come with the next event later than them, so this changes nothing
+    /// but when they are seen.
+    pub fn advance(&mut self, t_ns: TimeNs, sources: &SourceTable, sink: &mut impl FnMut(Snapshot)) {
+        if self.next_snapshot_ns.is_some() {
+            self.advance_to(t_ns, sources, sink);
+        }
+    }
+
     /// Emits the snapshots due up to `t_ns`.
     fn advance_to(&mut self, t_ns: TimeNs, sources: &SourceTable, sink: &mut impl FnMut(Snapshot)) {
         let every = self.opts.snapshot_every_ns;
@@ -481,16 +491,33 @@ impl Engine {
                 },
             );
         }
-        // Stale channels, unless their source is already reported quiet.
+        // Stale channels, grouped by the CAN message they come in (or the
+        // source, for serial channels): one dropped message is one alert
+        // listing its channels. Not when the source is already reported quiet.
+        let mut groups: std::collections::BTreeMap<String, (Vec<&str>, f64)> = std::collections::BTreeMap::new();
         for (id, info) in self.decoder.channels.iter() {
             let Some(stc) = self.store.get(id) else { continue };
             if info.expected_period_ns.is_none() {
                 continue;
             }
-            let stale = self.store.is_stale(id, t) && !quiet_sources.contains(&stc.source);
-            let age_s = (t - stc.t_ns) as f64 * 1e-9;
-            book.set(t, &format!("stale:{}", info.name), Severity::Caution, stale, || {
-                format!("{} stale: no value for {age_s:.1} s", info.name)
+            let group = match self.decoder.can.channel_message.iter().find(|(c, _)| *c == id) {
+                Some((_, m)) => m.clone(),
+                None => sources.name(stc.source).to_string(),
+            };
+            let entry = groups.entry(group).or_insert((Vec::new(), 0.0));
+            if self.store.is_stale(id, t) && !quiet_sources.contains(&stc.source) {
+                entry.0.push(&info.name);
+                entry.1 = entry.1.max((t - stc.t_ns) as f64 * 1e-9);
+            }
+        }
+        for (group, (stale, age_s)) in &groups {
+            book.set(t, &format!("stale:{group}"), Severity::Caution, !stale.is_empty(), || {
+                let list = if stale.len() <= 2 {
+                    stale.join(", ")
+                } else {
+                    format!("{}, {} and {} more", stale[0], stale[1], stale.len() - 2)
+                };
+                format!("{group} stale {age_s:.1} s: {list}")
             });
         }
         let b = &d.battery;

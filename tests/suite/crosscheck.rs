@@ -47,6 +47,11 @@ fn candump_reader_agrees_with_python_can() {
     assert!(out.status.success(), "cross-check failed:\n{text}\n{}", String::from_utf8_lossy(&out.stderr));
     let summary = text.lines().find(|l| l.starts_with("summary:")).expect("a summary line");
     assert!(summary.contains("failures: 0"), "{summary}");
-    let compared: u64 = summary.split("frames compared equal: ").nth(1).and_then(|s| s.split(';').next()).and_then(|n| n.parse().ok()).unwrap_or(0);
+    let compared: u64 = summary
+        .split("frames compared equal: ")
+        .nth(1)
+        .and_then(|s| s.split(';').next())
+        .and_then(|n| n.parse().ok())
+        .unwrap_or(0);
     assert!(compared > 20_000, "{summary}");
 }

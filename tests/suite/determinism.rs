@@ -31,7 +31,7 @@ fn played(speed: f64, controls: Vec<Control>) -> Vec<String> {
     let mut out = Vec::new();
     let mut sink = |s: Arc<Snapshot>, _: &PlayerStatus| out.push(snapshot_json(&s).to_string());
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
-    let opts = PlayerOptions { speed, start_paused: false, hold_at_end: false, recorder: None };
+    let opts = PlayerOptions { speed, start_paused: false, hold_at_end: false, recorder: None, latency: None };
     rt.block_on(play(FileSource::open(&demo()).unwrap(), make, opts, rx, &mut sink)).unwrap();
     out
 }

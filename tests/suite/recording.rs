@@ -45,7 +45,7 @@ fn every_payload_round_trips() {
         Event::new(1_000_002_000, can, Payload::Can(CanFrame::Fd(FdFrame::new(id, 1, &[7; 48]).unwrap()))),
         Event::new(1_000_003_000, gnss, Payload::Line(b"$GPRMC,1*00 with \\ and \x01 and \xff".to_vec())),
         Event::new(1_000_004_000, OPERATOR, Payload::Mark("boost on at the 2 km board, 5 °C colder".into())),
-        Event::new(1_000_005_000, OPERATOR, Payload::Ack("stale:ambient.temp".into())),
+        Event::new(1_000_005_000, OPERATOR, Payload::Ack("stale:weather".into())),
         Event::new(1_000_006_000, gnss, Payload::Link(LinkState::Down, "device vanished".into())),
         Event::new(1_000_007_000, SESSION, Payload::Tick),
         Event::new(1_000_008_000, SESSION, Payload::Note("alert raise caution x: y".into())),

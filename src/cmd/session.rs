@@ -1,0 +1,213 @@
+//! Running a finite event stream (a replay, a rehearsal) to its end: on the
+//! screens or headless, recording unless told not to. Shared by `replay`
+//! and `rehearse`.
+
+use std::io::Write;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+use std::sync::Arc;
+
+use tokio::sync::{mpsc, oneshot, watch};
+
+use crate::cli::RunOpts;
+use crate::config::ConfigSet;
+use crate::engine::{Engine, EngineOptions, Snapshot};
+use crate::headless::{Summary, snapshot_json};
+use crate::player::{self, EventSource, PlayerOptions, PlayerOutcome, PlayerStatus, SnapshotSink};
+use crate::session;
+use crate::ui;
+use crate::ui::app::{App, Mode, SessionInfo, UiFrame};
+
+/// How to run a session.
+pub struct SessionSpec {
+    pub mode: Mode,
+    /// The word in the recording's file name.
+    pub command: &'static str,
+    pub run: RunOpts,
+    pub config: Arc<ConfigSet>,
+    /// Initial pace; `None`: x1 on the screens, as fast as possible headless.
+    pub speed: Option<f64>,
+    pub paused: bool,
+    /// The file read, for messages about skipped lines.
+    pub file: Option<PathBuf>,
+}
+
+/// Runs `src` to its end (headless) or until the user quits (screens).
+pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Result<ExitCode> {
+    let recorder = if spec.run.no_record {
+        None
+    } else {
+        let dir = spec.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
+        match session::create_recording(&dir, spec.command, &spec.config, src.sources()) {
+            Ok((w, p)) => {
+                eprintln!("termvel: recording to {}", p.display());
+                Some((w, p))
+            }
+            Err(e) => {
+                return super::unusable(format!(
+                    "cannot create a recording in {}: {e} (use --no-record or --record-dir)",
+                    dir.display()
+                ));
+            }
+        }
+    };
+    let opts = EngineOptions { snapshot_every_ns: spec.run.every };
+    let make_engine = {
+        let config = spec.config.clone();
+        move || Engine::new(config.clone(), opts.clone())
+    };
+    if spec.run.headless {
+        let popts = PlayerOptions {
+            speed: spec.speed.unwrap_or(f64::INFINITY),
+            start_paused: false,
+            hold_at_end: false,
+            recorder,
+            latency: None,
+        };
+        let stdout = std::io::stdout();
+        let mut printer = JsonPrinter { out: std::io::BufWriter::new(stdout.lock()), broken: false };
+        let rt = tokio::runtime::Builder::new_current_thread().enable_time().build()?;
+        let (_tx, rx) = mpsc::channel(16);
+        let outcome =
+            rt.block_on(player::play(src, make_engine, popts, rx, &mut printer)).map_err(anyhow::Error::msg)?;
+        let summary = summarise(&outcome);
+        if !printer.broken {
+            let _ = writeln!(printer.out, "{}", summary.json());
+            let _ = printer.out.flush();
+        }
+        drop(printer);
+        return finish(&spec, &outcome);
+    }
+
+    // On the screens: the player in its own task, the UI on this one.
+    let _log = init_log_file();
+    let latency = ui::latency_histogram();
+    let popts = PlayerOptions {
+        speed: spec.speed.unwrap_or(1.0),
+        start_paused: spec.paused,
+        hold_at_end: true,
+        recorder,
+        latency: Some(latency.clone()),
+    };
+    let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
+    let (frames_tx, frames_rx) = watch::channel(None);
+    let (ctl_tx, ctl_rx) = mpsc::channel(64);
+    let (done_tx, done_rx) = oneshot::channel();
+    let app = App::new(
+        SessionInfo { mode: spec.mode.clone(), config: spec.config.clone() },
+        crate::ui::theme::Theme::from_env(),
+    );
+    let outcome = rt.block_on(async move {
+        let player = tokio::spawn(async move {
+            let mut sink = UiSink { tx: frames_tx, last: None };
+            let r = player::play(src, make_engine, popts, ctl_rx, &mut sink).await;
+            let _ = done_tx.send(());
+            r
+        });
+        let ui_result = ui::run(app, frames_rx, ctl_tx, latency, done_rx).await;
+        let outcome = tokio::time::timeout(std::time::Duration::from_secs(10), player).await;
+        (ui_result, outcome)
+    });
+    let (ui_result, outcome) = outcome;
+    ui_result?;
+    match outcome {
+        Ok(Ok(Ok(o))) => finish(&spec, &o),
+        Ok(Ok(Err(e))) => Err(anyhow::anyhow!(e)),
+        Ok(Err(e)) => Err(anyhow::anyhow!("the player failed: {e}")),
+        Err(_) => Err(anyhow::anyhow!("the player did not stop within 10 s")),
+    }
+}
+
+fn finish(spec: &SessionSpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
+    if let Some(f) = &spec.file {
+        report_read_problems(f, o);
+        if o.read_stats.events == 0 {
+            return super::unusable(format!(
+                "{}: no valid event in the file: not a termvel recording or candump log",
+                f.display()
+            ));
+        }
+    }
+    if let Some(p) = &o.recording {
+        eprintln!("termvel: recorded {} events to {}", o.recorded_events, p.display());
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Tracing to a file in the data directory (never to the screen).
+fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGuard> {
+    let dir = session::default_record_dir().parent()?.join("logs");
+    std::fs::create_dir_all(&dir).ok()?;
+    let appender = tracing_appender::rolling::never(dir, "termvel.log");
+    let (writer, guard) = tracing_appender::non_blocking(appender);
+    let _ = tracing_subscriber::fmt().with_writer(writer).with_ansi(false).try_init();
+    Some(guard)
+}
+
+/// The closing summary of a played stream.
+pub fn summarise(o: &PlayerOutcome) -> Summary {
+    let snap_counters = o.engine.snapshot_at(o.engine.now_ns().unwrap_or(0), &o.sources).counters;
+    let mut s = Summary::from_counters(&snap_counters);
+    s.snapshots = o.snapshots;
+    s.malformed_lines = o.read_stats.malformed;
+    s.time_reversals = o.read_stats.time_reversals;
+    s.torn_tail = o.read_stats.torn_tail.is_some();
+    s.torn_tail_line = o.read_stats.torn_tail.as_ref().map(|t| t.line);
+    s
+}
+
+/// Tells the user, on stderr, what was skipped and where.
+pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
+    let st = &o.read_stats;
+    for e in st.errors.iter().take(10) {
+        eprintln!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
+    }
+    if st.malformed > 10 {
+        eprintln!("termvel: … and {} more malformed lines", st.malformed - 10);
+    }
+    if let Some(t) = &st.torn_tail {
+        eprintln!(
+            "termvel: {}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss); everything before it was replayed",
+            file.display(),
+            t.line,
+            t.bytes
+        );
+    }
+}
+
+struct JsonPrinter<W: Write> {
+    out: W,
+    /// The reader went away (`| head`): stop printing, keep running.
+    broken: bool,
+}
+
+impl<W: Write> SnapshotSink for JsonPrinter<W> {
+    fn snapshot(&mut self, snap: Arc<Snapshot>, _status: &PlayerStatus) {
+        if self.broken {
+            return;
+        }
+        if serde_json::to_writer(&mut self.out, &snapshot_json(&snap)).is_err() || self.out.write_all(b"\n").is_err() {
+            self.broken = true;
+        }
+    }
+}
+
+/// Publishes the latest snapshot and status to the screens. The watch
+/// channel keeps only the latest: a slow screen skips, the player never waits.
+struct UiSink {
+    tx: watch::Sender<Option<Arc<UiFrame>>>,
+    last: Option<Arc<Snapshot>>,
+}
+
+impl SnapshotSink for UiSink {
+    fn snapshot(&mut self, snap: Arc<Snapshot>, status: &PlayerStatus) {
+        self.last = Some(snap.clone());
+        let _ = self.tx.send(Some(Arc::new(UiFrame { snapshot: snap, status: status.clone() })));
+    }
+
+    fn status(&mut self, status: &PlayerStatus) {
+        if let Some(s) = &self.last {
+            let _ = self.tx.send(Some(Arc::new(UiFrame { snapshot: s.clone(), status: status.clone() })));
+        }
+    }
+}

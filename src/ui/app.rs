@@ -1,0 +1,447 @@
+//! The screens' state: what is shown, and everything the keys change. State
+//! changes only in the handlers here ([`App::on_frame`], [`App::on_key`],
+//! [`App::on_tick`]); drawing reads it and changes nothing.
+
+use std::sync::Arc;
+
+use crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
+
+use super::format::Units;
+use super::theme::Theme;
+use crate::config::ConfigSet;
+use crate::engine::Snapshot;
+use crate::event::{NS_PER_S, TimeNs};
+use crate::player::{Control, PlayerStatus};
+
+/// The screens.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Screen {
+    Run,
+    Power,
+    Battery,
+    Feed,
+    Channels,
+    Help,
+}
+
+impl Screen {
+    pub const ALL: [Screen; 6] =
+        [Screen::Run, Screen::Power, Screen::Battery, Screen::Feed, Screen::Channels, Screen::Help];
+
+    pub fn name(self) -> &'static str {
+        match self {
+            Screen::Run => "run",
+            Screen::Power => "power",
+            Screen::Battery => "battery",
+            Screen::Feed => "feed",
+            Screen::Channels => "channels",
+            Screen::Help => "help",
+        }
+    }
+
+    /// The key that opens it.
+    pub fn key(self) -> char {
+        match self {
+            Screen::Run => '1',
+            Screen::Power => '2',
+            Screen::Battery => '3',
+            Screen::Feed => '4',
+            Screen::Channels => '5',
+            Screen::Help => '?',
+        }
+    }
+}
+
+/// What kind of session the screens show.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Mode {
+    Replay { file: String },
+    Rehearsal { plan: String },
+    Live,
+}
+
+/// Fixed facts of the session.
+#[derive(Clone, Debug)]
+pub struct SessionInfo {
+    pub mode: Mode,
+    pub config: Arc<ConfigSet>,
+}
+
+/// What the player publishes: the latest snapshot and where it is.
+#[derive(Clone, Debug)]
+pub struct UiFrame {
+    pub snapshot: Arc<Snapshot>,
+    pub status: PlayerStatus,
+}
+
+/// Latency figures for the feed screen, read from the shared histogram.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct LatencyView {
+    pub count: u64,
+    pub p50_us: u64,
+    pub p99_us: u64,
+    pub max_us: u64,
+    /// (upper bound µs, count) per power-of-two bucket.
+    pub buckets: Vec<(u64, u64)>,
+}
+
+/// What a key asks of the outside.
+#[derive(Clone, Debug, PartialEq)]
+pub enum Action {
+    Player(Control),
+    Quit,
+}
+
+/// Ticks a first `q` waits for the second.
+pub const QUIT_ARM_TICKS: u32 = 40;
+/// Ticks a transient message stays on the status line.
+pub const MESSAGE_TICKS: u32 = 60;
+/// Seek steps, ns.
+pub const SEEK_SHORT_NS: TimeNs = 5 * NS_PER_S;
+pub const SEEK_LONG_NS: TimeNs = 30 * NS_PER_S;
+
+/// The screens' state.
+pub struct App {
+    pub info: SessionInfo,
+    pub theme: Theme,
+    pub frame: Option<Arc<UiFrame>>,
+    pub screen: Screen,
+    pub units: Units,
+    /// Channel filter text, and whether keys go to it.
+    pub filter: String,
+    pub filtering: bool,
+    pub scroll: usize,
+    /// The text of a mark being typed.
+    pub prompt: Option<String>,
+    quit_armed: u32,
+    pub message: Option<(String, u32)>,
+    pub marks_made: u32,
+    /// (distance m, speed m/s) behind the car, one point every few metres.
+    pub trace: Vec<(f64, f64)>,
+    /// (time in boost s, deliverable/rated) measured while boosting.
+    pub derating: Vec<(f64, f64)>,
+    pub latency: LatencyView,
+    /// Snapshots seen and drawn frames, for the feed screen.
+    pub snapshots_seen: u64,
+}
+
+impl App {
+    pub fn new(info: SessionInfo, theme: Theme) -> App {
+        App {
+            info,
+            theme,
+            frame: None,
+            screen: Screen::Run,
+            units: Units::Metric,
+            filter: String::new(),
+            filtering: false,
+            scroll: 0,
+            prompt: None,
+            quit_armed: 0,
+            message: None,
+            marks_made: 0,
+            trace: Vec::new(),
+            derating: Vec::new(),
+            latency: LatencyView::default(),
+            snapshots_seen: 0,
+        }
+    }
+
+    pub fn snapshot(&self) -> Option<&Snapshot> {
+        self.frame.as_deref().map(|f| &*f.snapshot)
+    }
+
+    pub fn status(&self) -> Option<&PlayerStatus> {
+        self.frame.as_deref().map(|f| &f.status)
+    }
+
+    /// A new snapshot: keep it and extend the histories the charts draw.
+    pub fn on_frame(&mut self, f: Arc<UiFrame>) {
+        self.snapshots_seen += 1;
+        let d = &f.snapshot.derived;
+        if let Some(v) = d.speed_mps {
+            let x = d.distance_m;
+            // Back in distance: a seek backwards; drop what is now ahead.
+            if self.trace.last().is_some_and(|p| x < p.0 - 1.0) {
+                self.trace.retain(|p| p.0 <= x);
+                self.derating.clear();
+            }
+            if self.trace.last().is_none_or(|p| x - p.0 >= 5.0 || (v - p.1).abs() > 2.0) {
+                self.trace.push((x, v));
+            }
+        }
+        let b = &d.battery;
+        if b.boosting
+            && let Some(r) = b.derating_ratio
+        {
+            if self.derating.last().is_some_and(|p| b.time_in_boost_s < p.0 - 0.5) {
+                self.derating.clear();
+            }
+            if self.derating.last().is_none_or(|p| b.time_in_boost_s - p.0 >= 0.25) {
+                self.derating.push((b.time_in_boost_s, r));
+            }
+        }
+        self.frame = Some(f);
+    }
+
+    /// A clock tick (the frame rate): age the transient state.
+    pub fn on_tick(&mut self) {
+        self.quit_armed = self.quit_armed.saturating_sub(1);
+        if let Some((_, n)) = &mut self.message {
+            *n = n.saturating_sub(1);
+            if *n == 0 {
+                self.message = None;
+            }
+        }
+    }
+
+    fn say(&mut self, text: impl Into<String>) {
+        self.message = Some((text.into(), MESSAGE_TICKS));
+    }
+
+    /// A key press. Returns what the outside must do.
+    pub fn on_key(&mut self, key: KeyEvent) -> Vec<Action> {
+        if key.kind == KeyEventKind::Release {
+            return vec![];
+        }
+        if key.modifiers.contains(KeyModifiers::CONTROL) && key.code == KeyCode::Char('c') {
+            return vec![Action::Quit];
+        }
+        // Typing a mark.
+        if let Some(text) = &mut self.prompt {
+            match key.code {
+                KeyCode::Enter => {
+                    let text = std::mem::take(text);
+                    self.prompt = None;
+                    self.marks_made += 1;
+                    let text = if text.trim().is_empty() {
+                        format!("mark {}", self.marks_made)
+                    } else {
+                        text.trim().to_string()
+                    };
+                    self.say(format!("marked: {text}"));
+                    return vec![Action::Player(Control::Mark(text))];
+                }
+                KeyCode::Esc => {
+                    self.prompt = None;
+                    self.say("mark cancelled");
+                }
+                KeyCode::Backspace => {
+                    text.pop();
+                }
+                KeyCode::Char(c) if text.chars().count() < 80 => text.push(c),
+                _ => {}
+            }
+            return vec![];
+        }
+        // Typing a channel filter.
+        if self.filtering {
+            match key.code {
+                KeyCode::Enter => self.filtering = false,
+                KeyCode::Esc => {
+                    self.filtering = false;
+                    self.filter.clear();
+                }
+                KeyCode::Backspace => {
+                    self.filter.pop();
+                }
+                KeyCode::Char(c) if self.filter.len() < 40 => {
+                    self.filter.push(c);
+                    self.scroll = 0;
+                }
+                _ => {}
+            }
+            return vec![];
+        }
+        let control = |c: Control| vec![Action::Player(c)];
+        match key.code {
+            KeyCode::Char('q') => {
+                if self.quit_armed > 0 {
+                    return vec![Action::Quit];
+                }
+                self.quit_armed = QUIT_ARM_TICKS;
+                self.say("press q again to quit");
+                vec![]
+            }
+            KeyCode::Char(c @ ('1'..='5' | '?')) => {
+                if let Some(s) = Screen::ALL.iter().find(|s| s.key() == c) {
+                    self.screen = *s;
+                }
+                vec![]
+            }
+            KeyCode::Char('h') => {
+                self.screen = Screen::Help;
+                vec![]
+            }
+            // Tab cycles the five data screens (from help it starts over).
+            KeyCode::Tab => {
+                let i = Screen::ALL[..5].iter().position(|s| *s == self.screen).map_or(0, |i| (i + 1) % 5);
+                self.screen = Screen::ALL[i];
+                vec![]
+            }
+            KeyCode::BackTab => {
+                let i = Screen::ALL[..5].iter().position(|s| *s == self.screen).map_or(4, |i| (i + 4) % 5);
+                self.screen = Screen::ALL[i];
+                vec![]
+            }
+            KeyCode::Char(' ') | KeyCode::Char('p') => control(Control::TogglePause),
+            KeyCode::Char('+') | KeyCode::Char('=') => control(Control::Faster),
+            KeyCode::Char('-') => control(Control::Slower),
+            KeyCode::Right | KeyCode::Char('.') => control(Control::SeekBy(SEEK_SHORT_NS)),
+            KeyCode::Left | KeyCode::Char(',') => control(Control::SeekBy(-SEEK_SHORT_NS)),
+            KeyCode::Char('>') => control(Control::SeekBy(SEEK_LONG_NS)),
+            KeyCode::Char('<') => control(Control::SeekBy(-SEEK_LONG_NS)),
+            KeyCode::Char('s') => control(Control::Step),
+            KeyCode::Char('m') => {
+                self.prompt = Some(String::new());
+                vec![]
+            }
+            KeyCode::Char('a') => {
+                let n = self.snapshot().map_or(0, |s| s.alerts.iter().filter(|a| !a.acked).count());
+                self.say(format!("acknowledged {n} alert{}", if n == 1 { "" } else { "s" }));
+                control(Control::Ack("*".into()))
+            }
+            KeyCode::Char('u') => {
+                self.units = self.units.toggle();
+                vec![]
+            }
+            KeyCode::Char('/') if self.screen == Screen::Channels => {
+                self.filtering = true;
+                vec![]
+            }
+            KeyCode::Esc if self.screen == Screen::Channels => {
+                self.filter.clear();
+                vec![]
+            }
+            KeyCode::Down | KeyCode::Char('j') => {
+                self.scroll = self.scroll.saturating_add(1);
+                vec![]
+            }
+            KeyCode::Up | KeyCode::Char('k') => {
+                self.scroll = self.scroll.saturating_sub(1);
+                vec![]
+            }
+            KeyCode::PageDown => {
+                self.scroll = self.scroll.saturating_add(10);
+                vec![]
+            }
+            KeyCode::PageUp => {
+                self.scroll = self.scroll.saturating_sub(10);
+                vec![]
+            }
+            _ => vec![],
+        }
+    }
+
+    /// Whether the quit key waits for its second press.
+    pub fn quit_armed(&self) -> bool {
+        self.quit_armed > 0
+    }
+}
+
+/// Every key the screens understand, for the help screen: (keys, what).
+pub const KEYS: &[(&str, &str)] = &[
+    ("1 2 3 4 5", "run, power, battery, feed, channels screens"),
+    ("Tab  Shift-Tab", "next / previous screen"),
+    ("? or h", "this help"),
+    ("Space or p", "pause / resume"),
+    ("+  -", "faster / slower (x0.1 … x64, then as fast as possible)"),
+    ("→ .   ← ,", "seek 5 s forward / back"),
+    (">  <", "seek 30 s forward / back"),
+    ("s", "step one snapshot (pauses)"),
+    ("m", "mark: type a note; Enter records it, Esc cancels"),
+    ("a", "acknowledge every alert shown"),
+    ("u", "units: km/h and kW, or mph and hp"),
+    ("/  Esc", "channels screen: filter by name / clear the filter"),
+    ("↑ ↓  PgUp PgDn", "scroll the channel list"),
+    ("q q  or Ctrl-C", "quit (q twice, so one stray key cannot end a session)"),
+];
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn app() -> App {
+        App::new(SessionInfo { mode: Mode::Live, config: Arc::new(ConfigSet::embedded()) }, Theme { color: false })
+    }
+
+    fn key(c: KeyCode) -> KeyEvent {
+        KeyEvent::new(c, KeyModifiers::NONE)
+    }
+
+    #[test]
+    fn screens_switch_by_number_and_tab() {
+        let mut a = app();
+        a.on_key(key(KeyCode::Char('3')));
+        assert_eq!(a.screen, Screen::Battery);
+        a.on_key(key(KeyCode::Tab));
+        assert_eq!(a.screen, Screen::Feed);
+        a.on_key(key(KeyCode::Tab));
+        a.on_key(key(KeyCode::Tab));
+        assert_eq!(a.screen, Screen::Run, "tab wraps over the five data screens");
+        a.on_key(key(KeyCode::BackTab));
+        assert_eq!(a.screen, Screen::Channels);
+        a.on_key(key(KeyCode::Char('?')));
+        assert_eq!(a.screen, Screen::Help);
+    }
+
+    #[test]
+    fn player_keys() {
+        let mut a = app();
+        assert_eq!(a.on_key(key(KeyCode::Char(' '))), vec![Action::Player(Control::TogglePause)]);
+        assert_eq!(a.on_key(key(KeyCode::Right)), vec![Action::Player(Control::SeekBy(5 * NS_PER_S))]);
+        assert_eq!(a.on_key(key(KeyCode::Char('<'))), vec![Action::Player(Control::SeekBy(-30 * NS_PER_S))]);
+        assert_eq!(a.on_key(key(KeyCode::Char('+'))), vec![Action::Player(Control::Faster)]);
+        assert_eq!(a.on_key(key(KeyCode::Char('s'))), vec![Action::Player(Control::Step)]);
+        assert_eq!(a.on_key(key(KeyCode::Char('a'))), vec![Action::Player(Control::Ack("*".into()))]);
+    }
+
+    #[test]
+    fn quitting_takes_two_presses_or_ctrl_c() {
+        let mut a = app();
+        assert!(a.on_key(key(KeyCode::Char('q'))).is_empty());
+        assert!(a.quit_armed());
+        assert_eq!(a.on_key(key(KeyCode::Char('q'))), vec![Action::Quit]);
+        let mut a = app();
+        a.on_key(key(KeyCode::Char('q')));
+        for _ in 0..QUIT_ARM_TICKS {
+            a.on_tick();
+        }
+        assert!(a.on_key(key(KeyCode::Char('q'))).is_empty(), "the first press expired");
+        assert_eq!(a.on_key(KeyEvent::new(KeyCode::Char('c'), KeyModifiers::CONTROL)), vec![Action::Quit]);
+    }
+
+    #[test]
+    fn marks_are_typed_then_sent() {
+        let mut a = app();
+        assert!(a.on_key(key(KeyCode::Char('m'))).is_empty());
+        for c in "boost on".chars() {
+            assert!(a.on_key(key(KeyCode::Char(c))).is_empty(), "typing does not trigger other keys");
+        }
+        assert_eq!(a.screen, Screen::Run, "the digits and letters went into the prompt");
+        assert_eq!(a.on_key(key(KeyCode::Enter)), vec![Action::Player(Control::Mark("boost on".into()))]);
+        a.on_key(key(KeyCode::Char('m')));
+        assert_eq!(a.on_key(key(KeyCode::Enter)), vec![Action::Player(Control::Mark("mark 2".into()))]);
+        a.on_key(key(KeyCode::Char('m')));
+        a.on_key(key(KeyCode::Char('x')));
+        assert!(a.on_key(key(KeyCode::Esc)).is_empty());
+        assert!(a.prompt.is_none());
+    }
+
+    #[test]
+    fn the_filter_takes_keys_only_on_the_channels_screen() {
+        let mut a = app();
+        a.on_key(key(KeyCode::Char('/')));
+        assert!(!a.filtering);
+        a.on_key(key(KeyCode::Char('5')));
+        a.on_key(key(KeyCode::Char('/')));
+        for c in "batt".chars() {
+            a.on_key(key(KeyCode::Char(c)));
+        }
+        assert_eq!(a.filter, "batt");
+        a.on_key(key(KeyCode::Enter));
+        assert!(!a.filtering);
+        a.on_key(key(KeyCode::Esc));
+        assert!(a.filter.is_empty());
+    }
+}

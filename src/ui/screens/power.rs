@@ -1,0 +1,249 @@
+//! The power screen: the road-load breakdown (aero, rolling, grade,
+//! inertial) as numbers and meters; the drag and rolling-resistance
+//! estimates with their uncertainty and whether they have converged; the
+//! air density and where it came from; and power against speed: road load at
+//! the present estimates, power available, and where the car is now.
+
+use ratatui::Frame;
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::symbols::Marker;
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, LegendPosition, Paragraph};
+
+use crate::engine::Snapshot;
+use crate::engine::derived::AirOrigin;
+use crate::engine::physics::roadload::{RoadLoadInputs, road_load};
+use crate::ui::app::App;
+use crate::ui::format;
+use crate::ui::widgets::meter::Meter;
+
+pub fn draw(f: &mut Frame, area: Rect, app: &App) {
+    let Some(s) = app.snapshot() else {
+        f.render_widget(Paragraph::new("waiting for the first snapshot…").style(app.theme.dim()), area);
+        return;
+    };
+    let [top, chart] = Layout::vertical([Constraint::Length(10), Constraint::Min(6)]).areas(area);
+    let [breakdown, estimate] = Layout::horizontal([Constraint::Percentage(55), Constraint::Percentage(45)]).areas(top);
+    draw_breakdown(f, breakdown, app, s);
+    draw_estimate(f, estimate, app, s);
+    draw_curve(f, chart, app, s);
+}
+
+fn draw_breakdown(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let u = app.units;
+    let block = Block::new().borders(Borders::TOP).title(Span::styled(" road load now ", t.heading()));
+    let inner = block.inner(area);
+    f.render_widget(block, area);
+    let Some(r) = &s.derived.road_load else {
+        f.render_widget(Paragraph::new(Span::styled(" no fresh speed: nothing to compute", t.doubtful())), inner);
+        return;
+    };
+    let full = r.available_w.max(r.demand_w).max(r.total_w).max(1.0) * 1.05;
+    let rows: Vec<(&str, Option<f64>, String)> = vec![
+        ("aero", Some(r.aero_w), format::power(u, Some(r.aero_w))),
+        ("rolling", Some(r.rolling_w), format::power(u, Some(r.rolling_w))),
+        (
+            "grade",
+            Some(r.grade_w.abs()),
+            format!("{}{}", if r.grade_w < 0.0 { "−" } else { "" }, format::power(u, Some(r.grade_w.abs()))),
+        ),
+        ("road", Some(r.total_w), format!("{} total", format::power(u, Some(r.total_w)))),
+        (
+            "inertia",
+            Some(r.inertial_w.abs()),
+            format!("{}{}", if r.inertial_w < 0.0 { "−" } else { "" }, format::power(u, Some(r.inertial_w.abs()))),
+        ),
+        ("demand", Some(r.demand_w.max(0.0)), format!("{} road + inertia", format::power(u, Some(r.demand_w)))),
+        ("wheels", r.wheel_w.map(|w| w.max(0.0)), format!("{} measured", format::power(u, r.wheel_w))),
+        ("avail.", Some(r.available_w), format!("{} at full demand", format::power(u, Some(r.available_w)))),
+        ("margin", Some(r.margin_w.max(0.0)), format!("{} to accelerate", format::power(u, Some(r.margin_w)))),
+    ];
+    let lines = Layout::vertical(vec![Constraint::Length(1); rows.len()]).split(inner);
+    for (i, (label, v, text)) in rows.into_iter().enumerate() {
+        if i >= lines.len() {
+            break;
+        }
+        let bar = if label == "margin" && r.margin_w < 0.0 {
+            t.limit()
+        } else if label == "avail." {
+            t.good()
+        } else {
+            t.ahead()
+        };
+        f.render_widget(
+            Meter {
+                label,
+                value: v,
+                full,
+                mark: Some(r.available_w),
+                text,
+                label_style: t.label(),
+                bar_style: bar,
+                mark_style: t.limit(),
+                text_style: t.value(),
+                label_width: 8,
+                text_width: 22,
+            },
+            lines[i],
+        );
+    }
+}
+
+fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let d = &s.derived;
+    let e = &d.estimate;
+    let block = Block::new()
+        .borders(Borders::TOP | Borders::LEFT)
+        .title(Span::styled(" drag and rolling estimate ", t.heading()));
+    let inner = block.inner(area);
+    f.render_widget(block, area);
+    let state = if e.converged {
+        Span::styled("converged ✓", t.good())
+    } else {
+        Span::styled("not converged: the vehicle file's values are used", t.doubtful())
+    };
+    let veh = &app.info.config.vehicle;
+    let mut lines = vec![
+        Line::from(vec![
+            Span::styled(" CdA ", t.label()),
+            Span::styled(format!("{:.3} ± {:.3} m²", e.cda_m2.value, e.cda_m2.sd), t.value()),
+            Span::styled(format!("  (file {:.3})", veh.cda_m2), t.dim()),
+        ]),
+        Line::from(vec![
+            Span::styled(" Crr ", t.label()),
+            Span::styled(format!("{:.4} ± {:.4}", e.crr.value, e.crr.sd), t.value()),
+            Span::styled(format!("  (file {:.4})", veh.crr0), t.dim()),
+        ]),
+        Line::from(vec![Span::raw(" "), state]),
+        Line::styled(
+            format!(" {} samples over {:.0} m/s of speed; {} coasting", e.samples, e.speed_span_mps, e.coast_samples),
+            t.label(),
+        ),
+    ];
+    match e.coast {
+        Some((c, r)) => lines.push(Line::styled(
+            format!(" coast-down alone: CdA {:.3} ± {:.3}, Crr {:.4} ± {:.4}", c.value, c.sd, r.value, r.sd),
+            t.label(),
+        )),
+        None => lines.push(Line::styled(" coast-down alone: not enough coasting yet", t.dim())),
+    }
+    let air = match d.air_origin {
+        Some(AirOrigin::Measured { age_s, humidity_assumed }) => Span::styled(
+            format!(
+                "measured (CIPM-2007), {} old{}",
+                format::age(age_s),
+                if humidity_assumed { ", humidity assumed 50 %" } else { "" }
+            ),
+            if age_s > 5.0 { t.doubtful() } else { t.label() },
+        ),
+        _ => Span::styled(
+            format!("standard atmosphere at {:.0} m: no weather data", app.info.config.track.elevation_m),
+            t.doubtful(),
+        ),
+    };
+    lines.push(Line::from(vec![
+        Span::styled(" air ", t.label()),
+        Span::styled(format!("{:.4} kg/m³ ", d.air_density), t.value()),
+        air,
+    ]));
+    let accel = match d.accel_mps2 {
+        Some(a) => format!("{a:.2} m/s² ({})", d.accel_source),
+        None => format::UNKNOWN.into(),
+    };
+    lines.push(Line::from(vec![Span::styled(" accel ", t.label()), Span::styled(accel, t.value())]));
+    f.render_widget(Paragraph::new(lines), inner);
+}
+
+fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let u = app.units;
+    let cfg = &app.info.config;
+    let veh = &cfg.vehicle;
+    let d = &s.derived;
+    let vmax = veh.tyre_rated_mps.max(cfg.track.target_speed_mps) * 1.05;
+    let (cda, crr) = d.road_load.map_or((veh.cda_m2, veh.crr0), |r| (r.cda_m2, r.crr));
+    let boost_now = d.battery.deliverable_w.unwrap_or(0.0);
+    let n = 80;
+    let mut road = Vec::with_capacity(n + 1);
+    let mut avail = Vec::with_capacity(n + 1);
+    let mut engine_only = Vec::with_capacity(n + 1);
+    let mut top = 0.0f64;
+    for i in 0..=n {
+        let v = vmax * i as f64 / n as f64;
+        let rl = road_load(&RoadLoadInputs {
+            v_mps: v,
+            wind_mps: 0.0,
+            rho: d.air_density,
+            cda_m2: cda,
+            crr0: crr,
+            crr2_s2_m2: veh.crr2_s2_m2,
+            mass_kg: veh.mass_kg,
+            grade: 0.0,
+        })
+        .total_w;
+        let comb = veh.full_load_power_w(v);
+        let motor = (boost_now * veh.motor_efficiency).min(veh.motor_rated_power_w);
+        let a = veh.driveline_efficiency * (comb + motor);
+        let e = veh.driveline_efficiency * comb;
+        top = top.max(a);
+        road.push((u.speed(v), u.power(rl)));
+        avail.push((u.speed(v), u.power(a)));
+        engine_only.push((u.speed(v), u.power(e)));
+    }
+    let pmax = u.power(top * 1.15);
+    let road: Vec<(f64, f64)> = road.into_iter().filter(|p| p.1 <= pmax).collect();
+    let now: Vec<(f64, f64)> = match (d.speed_mps, d.road_load.and_then(|r| r.wheel_w)) {
+        (Some(v), Some(w)) => vec![(u.speed(v), u.power(w))],
+        _ => vec![],
+    };
+    let datasets = vec![
+        Dataset::default()
+            .name("road load")
+            .marker(Marker::Braille)
+            .graph_type(GraphType::Line)
+            .style(t.behind())
+            .data(&road),
+        Dataset::default()
+            .name("available")
+            .marker(Marker::Braille)
+            .graph_type(GraphType::Line)
+            .style(t.good())
+            .data(&avail),
+        Dataset::default()
+            .name("engine only ···")
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(t.dim())
+            .data(&engine_only),
+        Dataset::default()
+            .name("now ■")
+            .marker(Marker::Block)
+            .graph_type(GraphType::Scatter)
+            .style(t.limit())
+            .data(&now),
+    ];
+    let su = u.speed_unit();
+    let pu = u.power_unit();
+    let chart = Chart::new(datasets)
+        .block(Block::new().borders(Borders::TOP).title(Span::styled(
+            format!(" power at the wheels ({pu}) against speed ({su}), level road, no wind "),
+            t.heading(),
+        )))
+        .x_axis(
+            Axis::default()
+                .bounds([0.0, u.speed(vmax)])
+                .labels(["0".to_string(), format!("{:.0}", u.speed(vmax) / 2.0), format!("{:.0}", u.speed(vmax))])
+                .style(t.label()),
+        )
+        .y_axis(
+            Axis::default()
+                .bounds([0.0, pmax])
+                .labels(["0".to_string(), format!("{:.0}", pmax / 2.0), format!("{pmax:.0}")])
+                .style(t.label()),
+        )
+        .legend_position(Some(LegendPosition::TopLeft))
+        .hidden_legend_constraints((Constraint::Ratio(1, 2), Constraint::Ratio(1, 2)));
+    f.render_widget(chart, area);
+}

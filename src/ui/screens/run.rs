@@ -1,0 +1,431 @@
+//! The run screen: what the engineer watches during a pull. Speed in large
+//! figures with its source and age; meters for power demand against power
+//! available, state of charge and boost time left with the binding limit;
+//! the projected peak with its band, the braking point and the target; the
+//! speed trace over distance with the projection drawn ahead of the car;
+//! and the alerts, newest first.
+
+use ratatui::Frame;
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::style::Style;
+use ratatui::symbols::Marker;
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, Paragraph};
+
+use crate::engine::Snapshot;
+use crate::engine::derived::Derived;
+use crate::ui::app::App;
+use crate::ui::format::{self, Units};
+use crate::ui::theme::severity_tag;
+use crate::ui::widgets::figures::{self, Figures};
+use crate::ui::widgets::meter::Meter;
+
+pub fn draw(f: &mut Frame, area: Rect, app: &App) {
+    let Some(s) = app.snapshot() else {
+        f.render_widget(Paragraph::new("waiting for the first snapshot…").style(app.theme.dim()), area);
+        return;
+    };
+    let alerts_w = if area.width >= 140 { 44 } else { 28 };
+    let [top, summary, bottom] =
+        Layout::vertical([Constraint::Length(5), Constraint::Length(3), Constraint::Min(6)]).areas(area);
+    let [speed_area, meters] = Layout::horizontal([Constraint::Length(36), Constraint::Min(30)]).areas(top);
+    let [chart, alerts] = Layout::horizontal([Constraint::Min(30), Constraint::Length(alerts_w)]).areas(bottom);
+    draw_speed(f, speed_area, app, s);
+    draw_meters(f, meters, app, &s.derived);
+    draw_summary(f, summary, app, s);
+    draw_trace(f, chart, app, s);
+    draw_alerts(f, alerts, app, s);
+}
+
+fn draw_speed(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let d = &s.derived;
+    let u = app.units;
+    let (age, stale) = match s.channel_named(d.speed_source) {
+        Some(c) => (format::age(c.age_s), c.stale),
+        None => (format::UNKNOWN.to_string(), true),
+    };
+    let head = if d.speed_mps.is_some() {
+        Line::from(vec![
+            Span::styled(" SPEED ", t.heading()),
+            Span::styled(format!("{} · {age} old", d.speed_source), if stale { t.doubtful() } else { t.label() }),
+        ])
+    } else {
+        Line::from(vec![Span::styled(" SPEED ", t.heading()), Span::styled("no fresh speed channel", t.doubtful())])
+    };
+    f.render_widget(Paragraph::new(head), Rect { height: 1, ..area });
+    let text = match d.speed_mps {
+        Some(v) => format!("{:.1}", u.speed(v)),
+        None => "---.-".into(),
+    };
+    let w = figures::width(&text);
+    let style = if d.speed_mps.is_none() || stale { t.doubtful() } else { t.figure() };
+    let fig_area =
+        Rect::new(area.x + 1, area.y + 1, w.min(area.width.saturating_sub(1)), 3.min(area.height.saturating_sub(1)));
+    f.render_widget(Figures { text: &text, style }, fig_area);
+    let unit_x = area.x + 1 + w + 1;
+    if unit_x + 5 < area.x + area.width {
+        f.render_widget(Paragraph::new(Span::styled(u.speed_unit(), t.label())), Rect::new(unit_x, area.y + 3, 5, 1));
+    }
+    let tyre = d
+        .tyre
+        .map(|ty| format!("tyres {} {} below rating", format::num(Some(u.speed(ty.margin_mps)), 0), u.speed_unit()));
+    if let Some(line) = tyre {
+        let style = if d.tyre.is_some_and(|ty| ty.margin_mps < app.info.config.alerts.limits.tyre_margin_low_mps) {
+            t.severity(crate::config::Severity::Alarm)
+        } else {
+            t.label()
+        };
+        f.render_widget(
+            Paragraph::new(Span::styled(format!(" {line}"), style)),
+            Rect::new(area.x, area.y + 4, area.width, 1),
+        );
+    }
+}
+
+fn meter<'a>(
+    app: &App,
+    label: &'a str,
+    value: Option<f64>,
+    full: f64,
+    mark: Option<f64>,
+    text: String,
+    bar: Style,
+) -> Meter<'a> {
+    let t = &app.theme;
+    Meter {
+        label,
+        value,
+        full,
+        mark,
+        text,
+        label_style: t.label(),
+        bar_style: bar,
+        mark_style: t.limit(),
+        text_style: t.value(),
+        label_width: 8,
+        text_width: 24,
+    }
+}
+
+fn draw_meters(f: &mut Frame, area: Rect, app: &App, d: &Derived) {
+    let t = &app.theme;
+    let u = app.units;
+    let rows = Layout::vertical([Constraint::Length(1); 5]).split(area);
+    let cfg = &app.info.config;
+    // Demand against available.
+    if let Some(r) = &d.road_load {
+        let full = r.available_w.max(r.demand_w).max(1.0) * 1.08;
+        let text = format!("{} of {}", format::power(u, Some(r.demand_w)), format::power(u, Some(r.available_w)));
+        f.render_widget(meter(app, "demand", Some(r.demand_w), full, Some(r.available_w), text, t.ahead()), rows[0]);
+        let text = format!("{} road load", format::power(u, Some(r.total_w)));
+        f.render_widget(meter(app, "road", Some(r.total_w), full, Some(r.available_w), text, t.behind()), rows[1]);
+    } else {
+        f.render_widget(Paragraph::new(Span::styled("demand  — no speed", t.doubtful())), rows[0]);
+    }
+    // State of charge with the reserve marked.
+    let b = &d.battery;
+    let reserve = cfg.vehicle.battery.soc_reserve;
+    let soc_text = match b.soc {
+        Some(soc) => format!("{:.0} %  reserve {:.0} %", soc * 100.0, reserve * 100.0),
+        None => format::UNKNOWN.into(),
+    };
+    let low = b.soc.is_some_and(|s| s < reserve + 0.05);
+    f.render_widget(
+        meter(app, "charge", b.soc, 1.0, Some(reserve), soc_text, if low { t.limit() } else { t.good() }),
+        rows[2],
+    );
+    // Boost time left and which limit binds.
+    let l = &d.boost_left;
+    let secs = l.seconds;
+    let binding = l.binding.map_or("no limit", |b| b.as_str());
+    let text = format!("{} {binding}{}", format::seconds(secs), if l.curve_fitted { "" } else { " (prior)" });
+    let short = secs.is_some_and(|s| s < cfg.alerts.limits.boost_left_low_s);
+    let style = if short {
+        t.limit()
+    } else if l.curve_fitted {
+        t.good()
+    } else {
+        t.doubtful()
+    };
+    f.render_widget(meter(app, "boost", secs, 60.0, None, text, style), rows[3]);
+    // Deliverable battery power against rated.
+    let text = format!("{} of {} rated", format::power(u, b.deliverable_w), format::power(u, Some(b.rated_w)));
+    f.render_widget(
+        meter(app, "battery", b.deliverable_w, b.rated_w * 1.05, Some(b.rated_w), text, t.ahead()),
+        rows[4],
+    );
+}
+
+fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let u = app.units;
+    let d = &s.derived;
+    let su = u.speed_unit();
+    let mut lines = Vec::new();
+    match &d.projection {
+        Some(p) => {
+            let basis = if p.converged {
+                Span::styled("  estimates converged", t.good())
+            } else {
+                Span::styled("  unconverged: using priors", t.doubtful())
+            };
+            lines.push(Line::from(vec![
+                Span::styled(" PEAK   ", t.heading()),
+                Span::styled(format!("{} {su}", format::num(Some(u.speed(p.peak_mps)), 0)), t.value()),
+                Span::styled(
+                    format!(
+                        " ({}–{})  at {}, {}",
+                        format::num(Some(u.speed(p.peak_low_mps)), 0),
+                        format::num(Some(u.speed(p.peak_high_mps)), 0),
+                        format::distance(u, Some(p.peak_at_m)),
+                        if p.peak_in_s < 0.5 {
+                            "now".to_string()
+                        } else {
+                            format!("in {}", format::seconds(Some(p.peak_in_s)))
+                        }
+                    ),
+                    t.label(),
+                ),
+                basis,
+            ]));
+            let target = format!("{} {su}", format::num(Some(u.speed(p.target_mps)), 0));
+            let verdict = if p.target_reachable {
+                match (p.target_in_s, p.target_at_m) {
+                    (Some(ts), Some(xm)) if ts > 0.0 => Span::styled(
+                        format!("reachable: in {} at {}", format::seconds(Some(ts)), format::distance(u, Some(xm))),
+                        t.good(),
+                    ),
+                    _ => Span::styled("reached".to_string(), t.good()),
+                }
+            } else {
+                Span::styled(
+                    "OUT OF REACH before the braking point".to_string(),
+                    t.severity(crate::config::Severity::Caution),
+                )
+            };
+            lines.push(Line::from(vec![
+                Span::styled(" TARGET ", t.heading()),
+                Span::styled(format!("{target}  "), t.value()),
+                verdict,
+            ]));
+        }
+        None => {
+            let why = d.projection_note.unwrap_or("no projection");
+            lines.push(Line::from(vec![
+                Span::styled(" PEAK   ", t.heading()),
+                Span::styled(format!("— ({why})"), t.doubtful()),
+            ]));
+            lines.push(Line::from(vec![
+                Span::styled(" TARGET ", t.heading()),
+                Span::styled(
+                    format!("{} {su}", format::num(Some(u.speed(app.info.config.track.target_speed_mps)), 0)),
+                    t.value(),
+                ),
+            ]));
+        }
+    }
+    match d.braking {
+        Some(b) if b.passed => lines.push(Line::from(vec![
+            Span::styled(" BRAKE  ", t.heading()),
+            Span::styled(
+                format!("PASSED by {} — brake now", format::distance(u, Some(-b.distance_m))),
+                t.severity(crate::config::Severity::Alarm),
+            ),
+        ])),
+        Some(b) => lines.push(Line::from(vec![
+            Span::styled(" BRAKE  ", t.heading()),
+            Span::styled(format!("in {}", format::seconds(Some(b.in_s))), t.value()),
+            Span::styled(
+                format!(
+                    " · {} to go · at {} · stopping {}",
+                    format::distance(u, Some(b.distance_m)),
+                    format::distance(u, Some(b.point_m)),
+                    format::distance(u, Some(b.stopping_m))
+                ),
+                t.label(),
+            ),
+        ])),
+        None => lines
+            .push(Line::from(vec![Span::styled(" BRAKE  ", t.heading()), Span::styled(format::UNKNOWN, t.doubtful())])),
+    }
+    f.render_widget(Paragraph::new(lines), area);
+}
+
+fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let u = app.units;
+    let cfg = &app.info.config;
+    let d = &s.derived;
+    let zone = cfg.track.zone_length_m;
+    let vmax = (cfg.vehicle.tyre_rated_mps.max(cfg.track.target_speed_mps) * 1.05).max(10.0);
+    let y = |v: f64| u.speed(v);
+    let behind: Vec<(f64, f64)> = app.trace.iter().map(|&(x, v)| (x, y(v))).collect();
+    let ahead: Vec<(f64, f64)> =
+        d.projection.as_ref().map(|p| p.trajectory.iter().map(|&(x, v)| (x, y(v))).collect()).unwrap_or_default();
+    let target = [(0.0, y(cfg.track.target_speed_mps)), (zone, y(cfg.track.target_speed_mps))];
+    let brake: Vec<(f64, f64)> =
+        d.braking.map(|b| (0..=20).map(|i| (b.point_m, y(vmax) * i as f64 / 20.0)).collect()).unwrap_or_default();
+    let stop_by = cfg.track.stop_by_m();
+    let end: Vec<(f64, f64)> = (0..=20).map(|i| (stop_by, y(vmax) * i as f64 / 20.0)).collect();
+    // Drawn in this order: references first, the car and its projection on top.
+    let datasets = vec![
+        Dataset::default()
+            .name("target")
+            .marker(Marker::Braille)
+            .graph_type(GraphType::Line)
+            .style(t.label())
+            .data(&target),
+        Dataset::default()
+            .name("stop by ┊")
+            .marker(Marker::Braille)
+            .graph_type(GraphType::Scatter)
+            .style(t.dim())
+            .data(&end),
+        Dataset::default()
+            .name("brake ┆")
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(t.limit())
+            .data(&brake),
+        Dataset::default()
+            .name("driven")
+            .marker(Marker::Braille)
+            .graph_type(GraphType::Line)
+            .style(t.behind())
+            .data(&behind),
+        Dataset::default()
+            .name("projected •••")
+            .marker(Marker::Dot)
+            .graph_type(GraphType::Scatter)
+            .style(t.ahead())
+            .data(&ahead),
+    ];
+    let km = |m: f64| format!("{:.1}", m / 1000.0);
+    let chart = Chart::new(datasets)
+        .block(
+            Block::new()
+                .borders(Borders::TOP)
+                .title(Span::styled(format!(" speed over distance ({}, km) ", u.speed_unit()), t.heading())),
+        )
+        .x_axis(Axis::default().bounds([0.0, zone]).labels([km(0.0), km(zone / 2.0), km(zone)]).style(t.label()))
+        .y_axis(
+            Axis::default()
+                .bounds([0.0, y(vmax)])
+                .labels(["0".to_string(), format!("{:.0}", y(vmax) / 2.0), format!("{:.0}", y(vmax))])
+                .style(t.label()),
+        )
+        .legend_position(Some(ratatui::widgets::LegendPosition::BottomRight))
+        .hidden_legend_constraints((Constraint::Ratio(1, 2), Constraint::Ratio(1, 2)));
+    f.render_widget(chart, area);
+}
+
+fn draw_alerts(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
+    let t = &app.theme;
+    let block = Block::new()
+        .borders(Borders::TOP | Borders::LEFT)
+        .title(Span::styled(" alerts · a acknowledges ", t.heading()));
+    let inner = block.inner(area);
+    f.render_widget(block, area);
+    let mut lines: Vec<Line> = Vec::new();
+    if s.alerts.is_empty() {
+        lines.push(Line::styled(" none", t.good()));
+    }
+    let width = inner.width.saturating_sub(1) as usize;
+    for (shown, a) in s.alerts.iter().enumerate() {
+        let ago = (s.t_ns - a.raised_ns) as f64 * 1e-9;
+        let state = match (a.active, a.acked) {
+            (true, false) => "",
+            (true, true) => " ✓",
+            (false, false) => " cleared",
+            (false, true) => " ✓ cleared",
+        };
+        let text = wrap(&a.message, width, 2);
+        // Keep a line for "… n more" unless this is the last alert.
+        let need = 1 + text.len() + usize::from(shown + 1 < s.alerts.len());
+        if lines.len() + need > inner.height as usize {
+            lines.push(Line::styled(format!(" … {} more", s.alerts.len() - shown), t.label()));
+            break;
+        }
+        let style = if a.acked || !a.active { t.dim() } else { t.severity(a.severity) };
+        lines.push(Line::from(vec![
+            Span::styled(severity_tag(a.severity), style),
+            Span::styled(format!(" {}{state}", format::age(ago)), t.label()),
+        ]));
+        for part in text {
+            lines.push(Line::styled(format!(" {part}"), if a.active && !a.acked { t.value() } else { t.dim() }));
+        }
+    }
+    f.render_widget(Paragraph::new(lines), inner);
+}
+
+/// Word-wraps `text` to `width` characters, at most `max` lines (the last
+/// cut with "…" if the text goes on).
+fn wrap(text: &str, width: usize, max: usize) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut cur = String::new();
+    for word in text.split_whitespace() {
+        let n = cur.chars().count();
+        if n > 0 && n + 1 + word.chars().count() > width {
+            lines.push(std::mem::take(&mut cur));
+        }
+        if !cur.is_empty() {
+            cur.push(' ');
+        }
+        cur.push_str(word);
+    }
+    if !cur.is_empty() {
+        lines.push(cur);
+    }
+    if lines.len() > max {
+        lines.truncate(max);
+        let last = &mut lines[max - 1];
+        let keep: String = last.chars().take(width.saturating_sub(1)).collect();
+        *last = format!("{keep}…");
+    }
+    for l in &mut lines {
+        if l.chars().count() > width {
+            *l = l.chars().take(width.saturating_sub(1)).collect::<String>() + "…";
+        }
+    }
+    lines
+}
+
+/// The run screen for terminals below 80×24: speed, alerts, and what is hidden.
+pub fn draw_small(f: &mut Frame, area: Rect, app: &App) {
+    let t = &app.theme;
+    let mut lines = vec![Line::styled(
+        format!("terminal {}×{} is below 80×24: showing speed and alerts only;", area.width, area.height),
+        t.doubtful(),
+    )];
+    lines.push(Line::styled("enlarge it for the projection, meters and charts.", t.doubtful()));
+    if let Some(s) = app.snapshot() {
+        let u: Units = app.units;
+        lines.push(Line::from(vec![
+            Span::styled("SPEED ", t.heading()),
+            Span::styled(format!("{} {}", format::speed(u, s.derived.speed_mps), u.speed_unit()), t.figure()),
+        ]));
+        for a in s.alerts.iter().filter(|a| a.active) {
+            lines.push(Line::from(vec![
+                Span::styled(severity_tag(a.severity), t.severity(a.severity)),
+                Span::raw(format!(" {}", a.message)),
+            ]));
+        }
+    }
+    f.render_widget(Paragraph::new(lines).wrap(ratatui::widgets::Wrap { trim: true }), area);
+}
+
+#[cfg(test)]
+mod tests {
+    use super::wrap;
+
+    #[test]
+    fn wraps_words_and_marks_a_cut() {
+        assert_eq!(
+            wrap("target 365 km/h out of reach: projected peak 362 km/h", 26, 2),
+            vec!["target 365 km/h out of", "reach: projected peak 362…"]
+        );
+        assert_eq!(wrap("short", 26, 2), vec!["short"]);
+        assert_eq!(wrap("averyveryveryverylongword x", 10, 2), vec!["averyvery…", "x"]);
+    }
+}

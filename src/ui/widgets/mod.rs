@@ -1,0 +1,4 @@
+//! Widgets of termvel's own: large figures and labelled meters.
+
+pub mod figures;
+pub mod meter;

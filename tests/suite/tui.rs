@@ -1,0 +1,192 @@
+//! termvel in a real terminal: tmux runs it, the test presses keys and reads
+//! the screen with `capture-pane`, as a user would. Each test has its own
+//! tmux server (a private socket), so they run in parallel.
+
+use std::path::Path;
+use std::process::Command;
+use std::time::{Duration, Instant};
+
+use crate::util::{demo, root};
+
+struct Tmux {
+    socket: String,
+}
+
+impl Tmux {
+    /// Starts `cmd` in a new tmux server with a `w`×`h` window. After the
+    /// command ends the pane stays (remain-on-exit), so what it printed can
+    /// be read.
+    fn start(name: &str, cmd: &str, w: u16, h: u16) -> Tmux {
+        let socket = format!("termvel-test-{}-{name}", std::process::id());
+        let t = Tmux { socket };
+        let status = Command::new("tmux")
+            .args(["-L", &t.socket, "-f", "/dev/null", "new-session", "-d", "-x", &w.to_string(), "-y", &h.to_string()])
+            .arg(format!("cd {} && {cmd}; echo '[exited' $? ']'; sleep 60", root().display()))
+            .env_remove("NO_COLOR")
+            .status()
+            .expect("tmux is installed (scripts/setup.sh installs it)");
+        assert!(status.success());
+        t
+    }
+
+    fn run(&self, args: &[&str]) -> String {
+        let out = Command::new("tmux").args(["-L", &self.socket]).args(args).output().expect("tmux runs");
+        String::from_utf8_lossy(&out.stdout).into_owned()
+    }
+
+    fn screen(&self) -> String {
+        self.run(&["capture-pane", "-p"])
+    }
+
+    fn keys(&self, keys: &[&str]) {
+        for k in keys {
+            self.run(&["send-keys", k]);
+            std::thread::sleep(Duration::from_millis(80));
+        }
+    }
+
+    fn type_text(&self, text: &str) {
+        self.run(&["send-keys", "-l", text]);
+    }
+
+    /// Waits until the screen satisfies `pred`, up to `secs`.
+    fn wait(&self, secs: f64, what: &str, pred: impl Fn(&str) -> bool) -> String {
+        let deadline = Instant::now() + Duration::from_secs_f64(secs);
+        loop {
+            let s = self.screen();
+            if pred(&s) {
+                return s;
+            }
+            assert!(Instant::now() < deadline, "waited {secs} s for {what}; the screen:\n{s}");
+            std::thread::sleep(Duration::from_millis(100));
+        }
+    }
+
+    /// Whether the pane shows the alternate screen (a full-screen program).
+    fn alternate_on(&self) -> bool {
+        self.run(&["display-message", "-p", "#{alternate_on}"]).trim() == "1"
+    }
+
+    fn pid(&self) -> u32 {
+        // The pane runs a shell; termvel is its child.
+        let shell: u32 = self.run(&["display-message", "-p", "#{pane_pid}"]).trim().parse().expect("pane pid");
+        let out = Command::new("pgrep").args(["-P", &shell.to_string(), "termvel"]).output().expect("pgrep");
+        String::from_utf8_lossy(&out.stdout).lines().next().and_then(|l| l.trim().parse().ok()).expect("termvel's pid")
+    }
+}
+
+impl Drop for Tmux {
+    fn drop(&mut self) {
+        let _ = Command::new("tmux").args(["-L", &self.socket, "kill-server"]).status();
+    }
+}
+
+fn bin() -> String {
+    env!("CARGO_BIN_EXE_termvel").to_string()
+}
+
+/// Position of the replay in the status line, in tenths of a second.
+fn position(screen: &str) -> Option<u64> {
+    let i = screen.find("replay ")?;
+    let rest = &screen[i + 7..];
+    let tok = rest.split_whitespace().next()?;
+    let (m, s) = tok.split_once(':')?;
+    let (s, tenth) = s.split_once('.')?;
+    Some(m.parse::<u64>().ok()? * 600 + s.parse::<u64>().ok()? * 10 + tenth.parse::<u64>().ok()?)
+}
+
+fn recordings(dir: &Path) -> Vec<std::path::PathBuf> {
+    std::fs::read_dir(dir).map(|r| r.filter_map(|e| e.ok().map(|e| e.path())).collect()).unwrap_or_default()
+}
+
+#[test]
+fn an_engineer_walks_through_the_screens() {
+    let dir = tempfile::tempdir().unwrap();
+    let cmd = format!("{} replay {} --record-dir {} --speed 4", bin(), demo().display(), dir.path().display());
+    let t = Tmux::start("walk", &cmd, 110, 32);
+    t.wait(15.0, "the run screen", |s| s.contains("SPEED") && s.contains("PEAK") && s.contains("Advisory only"));
+    assert!(t.alternate_on(), "a full-screen program uses the alternate screen");
+    for (key, expect) in [
+        ("2", "road load now"),
+        ("3", "deliverable power and boost left"),
+        ("4", "sources"),
+        ("5", "channels"),
+        ("?", "keys"),
+        ("1", "speed over distance"),
+    ] {
+        t.keys(&[key]);
+        t.wait(5.0, expect, |s| s.contains(expect));
+    }
+    // Seek forward 30 s, pause, then seek back 5 s: the position goes back.
+    t.keys(&[">"]);
+    t.wait(5.0, "the long seek", |s| position(s).is_some_and(|p| p >= 300));
+    t.keys(&["Space"]);
+    let paused = t.wait(5.0, "paused", |s| s.contains("PAUSED"));
+    let before = position(&paused).expect("a position");
+    t.keys(&["Left"]);
+    let after = t.wait(5.0, "the seek", |s| position(s).is_some_and(|p| p + 30 < before));
+    assert!(position(&after).unwrap() + 30 < before);
+    // Step one snapshot while paused.
+    let p0 = position(&after).unwrap();
+    t.keys(&["s"]);
+    t.wait(5.0, "a step", |s| position(s).is_some_and(|p| p > p0 && p <= p0 + 2));
+    // A mark with a note.
+    t.keys(&["m"]);
+    t.type_text("boost felt late");
+    t.wait(5.0, "the prompt", |s| s.contains("mark: boost felt late"));
+    t.keys(&["Enter"]);
+    t.wait(5.0, "the confirmation", |s| s.contains("marked: boost felt late"));
+    // Acknowledge, units, and quit with q twice.
+    t.keys(&["a"]);
+    t.wait(5.0, "the acknowledgement", |s| s.contains("acknowledged"));
+    t.keys(&["u"]);
+    t.wait(5.0, "mph", |s| s.contains("mph"));
+    t.keys(&["q"]);
+    t.wait(5.0, "the quit prompt", |s| s.contains("press q again to quit"));
+    t.keys(&["q"]);
+    let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+    assert!(end.contains("[exited 0 ]"), "{end}");
+    assert!(!t.alternate_on(), "the terminal is back from the alternate screen");
+    assert!(end.contains("termvel: recorded"), "{end}");
+    let rec = recordings(dir.path());
+    assert_eq!(rec.len(), 1);
+    let text = std::fs::read_to_string(&rec[0]).unwrap();
+    assert!(text.contains(" op mark boost felt late\n"), "the mark is in the recording");
+    assert!(text.contains(" op ack *\n"), "the acknowledgement is in the recording");
+    assert!(text.ends_with('\n'), "the recording ends with a whole line");
+}
+
+#[test]
+fn sigterm_and_sighup_leave_a_clean_terminal_and_recording() {
+    for (sig, name) in [("-TERM", "term"), ("-HUP", "hup")] {
+        let dir = tempfile::tempdir().unwrap();
+        let cmd = format!("{} rehearse --record-dir {} --speed 2", bin(), dir.path().display());
+        let t = Tmux::start(name, &cmd, 100, 30);
+        t.wait(15.0, "the run screen", |s| s.contains("SPEED"));
+        std::thread::sleep(Duration::from_millis(800));
+        let pid = t.pid();
+        assert!(Command::new("kill").args([sig, &pid.to_string()]).status().unwrap().success());
+        let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+        assert!(end.contains("[exited 0 ]"), "{sig}: {end}");
+        assert!(!t.alternate_on(), "{sig}: the terminal is restored");
+        let rec = recordings(dir.path());
+        assert_eq!(rec.len(), 1, "{sig}");
+        let text = std::fs::read_to_string(&rec[0]).unwrap();
+        assert!(text.ends_with('\n'), "{sig}: the recording was closed cleanly, not torn");
+        let mut r = termvel::record::RecordingReader::open(&rec[0]).unwrap();
+        r.drain();
+        assert!(r.stats.events > 100 && r.stats.torn_tail.is_none() && r.stats.malformed == 0, "{sig}: {:?}", r.stats);
+    }
+}
+
+#[test]
+fn a_small_terminal_then_a_resize() {
+    let cmd = format!("{} replay {} --no-record", bin(), demo().display());
+    let t = Tmux::start("small", &cmd, 70, 20);
+    t.wait(15.0, "the small-terminal view", |s| s.contains("is below 80×24") && s.contains("SPEED"));
+    t.run(&["resize-window", "-x", "120", "-y", "36"]);
+    t.wait(10.0, "the full run screen after the resize", |s| s.contains("PEAK") && s.contains("speed over distance"));
+    t.keys(&["C-c"]);
+    let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+    assert!(end.contains("[exited 0 ]"), "{end}");
+}
