@@ -215,6 +215,7 @@ fn projection(bencher: Bencher) {
             time_in_boost_s: 3.0,
             rated_w: 245e3,
             energy_j: 11e6,
+            soc_fade_per_s: 0.0,
         },
     };
     bencher.bench(|| project(divan::black_box(&inp)).peak_mps);

@@ -88,7 +88,7 @@ pub fn derived_json(d: &Derived) -> Value {
             "margin_w": num(r.margin_w),
             "cda_m2": num(r.cda_m2),
             "crr": num(r.crr),
-            "from_estimate": r.from_estimate,
+            "estimate_converged": r.estimate_converged,
         })
     });
     let e = &d.estimate;

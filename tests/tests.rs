@@ -8,6 +8,10 @@
 //! - `crosscheck`: termvel against reference libraries (python-can).
 //! - `config_errors`: the malformed-config corpus (tests/configs/bad), each
 //!   file naming the location and message it must produce; `termvel check`.
+//! - `ground_truth`: the engine's estimates and predictions against the
+//!   simulator's truth (CdA, projected peak, boost time left).
+//! - `rehearsal`: injected faults raise the right alerts at the right time,
+//!   and the rehearsal's recording replays to the same alerts.
 //! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
 //! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
 //!   resizing, and the recording afterwards.
@@ -26,8 +30,12 @@ mod config_errors;
 mod crosscheck;
 #[path = "suite/determinism.rs"]
 mod determinism;
+#[path = "suite/ground_truth.rs"]
+mod ground_truth;
 #[path = "suite/recording.rs"]
 mod recording;
+#[path = "suite/rehearsal.rs"]
+mod rehearsal;
 #[path = "suite/screens.rs"]
 mod screens;
 #[path = "suite/signals.rs"]

@@ -114,14 +114,17 @@ impl Combustion {
         v_mps / tyre_radius_m * self.ratios[gear] * self.final_drive * 60.0 / std::f64::consts::TAU
     }
 
-    /// Best full-load shaft power over the gears at road speed `v_mps`
-    /// (the envelope a driver at full throttle follows, shifts ignored),
-    /// never below the power at the lowest curve point of top gear.
+    /// Full-load shaft power at road speed `v_mps` in the gear a full-throttle
+    /// run uses: the highest power among the gears the car may be in, a gear
+    /// being usable up to the upshift speed (the top gear up to the
+    /// redline). Shift interruptions are ignored.
     pub fn envelope_power_w(&self, v_mps: f64, tyre_radius_m: f64) -> f64 {
         let mut best = 0.0f64;
+        let top = self.ratios.len() - 1;
         for g in 0..self.ratios.len() {
             let rpm = self.rpm_at(g, v_mps, tyre_radius_m).max(self.curve_rpm[0]);
-            if rpm <= self.redline_rpm {
+            let limit = if g == top { self.redline_rpm } else { self.upshift_rpm };
+            if rpm <= limit {
                 best = best.max(self.power_w(rpm));
             }
         }

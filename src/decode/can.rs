@@ -54,6 +54,14 @@ struct CompiledMessage {
     signals: Vec<CompiledSignal>,
 }
 
+/// Frames received per message, for the rate check.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct MessageCount {
+    pub name: String,
+    pub period_ns: TimeNs,
+    pub frames: u64,
+}
+
 /// Counters kept while decoding CAN frames.
 #[derive(Clone, Copy, Debug, Default, PartialEq, Eq, serde::Serialize)]
 pub struct CanCounters {
@@ -80,6 +88,8 @@ pub struct CanMap {
     pub counters: CanCounters,
     /// The message each channel is decoded from (the first, if several).
     pub channel_message: Vec<(ChannelId, String)>,
+    /// Frames received per message, in the map's order.
+    pub message_counts: Vec<MessageCount>,
 }
 
 impl CanMap {
@@ -104,7 +114,12 @@ impl CanMap {
             messages.push(CompiledMessage { signals: compiled });
         }
         ext_index.sort_unstable();
-        CanMap { std_index, ext_index, messages, counters: CanCounters::default(), channel_message }
+        let message_counts = signals
+            .messages
+            .iter()
+            .map(|m| MessageCount { name: m.name.clone(), period_ns: m.period_ns, frames: 0 })
+            .collect();
+        CanMap { std_index, ext_index, messages, counters: CanCounters::default(), channel_message, message_counts }
     }
 
     fn message_index(&self, id: CanId) -> Option<usize> {
@@ -143,6 +158,7 @@ impl CanMap {
             self.counters.unmapped += 1;
             return;
         };
+        self.message_counts[mi].frames += 1;
         let len = data.len();
         if len <= 8 {
             // A classic payload is one 64-bit word: read it once both ways

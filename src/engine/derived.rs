@@ -1,7 +1,7 @@
 //! The derived quantities a snapshot carries, and their computation at each
 //! snapshot tick from the channel store and the estimators.
 
-use super::estimators::{DeratingFit, Estimated, RoadLoadEstimate};
+use super::estimators::{DeratingFit, Estimated, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior};
 use super::physics::{air, battery as bat, braking, roadload};
 use super::projection::{BoostModel, ProjectionInputs, project};
 use crate::config::ConfigSet;
@@ -51,10 +51,11 @@ pub struct RoadLoadView {
     pub available_w: f64,
     /// Available minus road load: what is left to accelerate with.
     pub margin_w: f64,
-    /// The CdA and Crr these use, and whether they are the converged estimate.
+    /// The CdA and Crr these use (the estimator's current values) and
+    /// whether the estimate has converged.
     pub cda_m2: f64,
     pub crr: f64,
-    pub from_estimate: bool,
+    pub estimate_converged: bool,
 }
 
 /// The battery now.
@@ -242,11 +243,20 @@ pub fn compute(
         d.accel_mps2 = Some(a);
         d.accel_source = src;
     }
-    let (cda, crr, from_estimate) = if estimate.converged {
-        (estimate.cda_m2.value, estimate.crr.value, true)
+    // The estimator's current values (its prior, the vehicle file's, blended
+    // with the data so far) once the data has told it something: each
+    // coefficient's standard deviation under half its prior's. Before that
+    // the first seconds of data can mislead more than the file does.
+    // Whether the estimate has converged is carried along and shown.
+    let informative = |e: super::estimators::Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
+    let cda = if informative(estimate.cda_m2, RoadLoadEstimatorPrior::cda_sd(veh)) {
+        estimate.cda_m2.value
     } else {
-        (veh.cda_m2, veh.crr0, false)
+        veh.cda_m2
     };
+    let crr =
+        if informative(estimate.crr, RoadLoadEstimatorPrior::crr_sd(veh)) { estimate.crr.value } else { veh.crr0 };
+    let from_estimate = estimate.converged;
 
     // Battery.
     let rated_w = b.rated_power_w;
@@ -288,7 +298,29 @@ pub fn compute(
         _ => (b.derate_tau_s, b.derate_floor, false),
     };
     let energy_j = bv.energy_above_reserve_j.unwrap_or(0.0);
+    // With the vehicle file's curve (a ratio), add the fall of the
+    // current-limited power with the open-circuit voltage as charge is
+    // drawn: d(ln P)/dt = (dP/dOCV)·(dOCV/dsoc)·(dsoc/dt)/P. A fitted curve
+    // has it in already.
+    let soc_fade_per_s = match (curve_fitted, pack, bv.deliverable_w) {
+        (false, Some(p), Some(deliv)) if deliv > 0.0 => {
+            let slope = if p.ocv_slope_v.value > 0.0 && p.ocv_slope_v.sd < 0.3 * p.ocv_slope_v.value {
+                p.ocv_slope_v.value
+            } else {
+                0.8 * b.cells_in_series as f64
+            };
+            let r = if p.converged { p.resistance_ohm.value } else { b.resistance_ohm };
+            let (v_lim, i_lim) = (
+                bat::voltage_limited_power_w(p.ocv_v.value, r, b.pack_min_v()),
+                bat::current_limited_power_w(p.ocv_v.value, r, b.max_current_a),
+            );
+            let (hppc, dp_docv) = if i_lim <= v_lim { (i_lim, b.max_current_a) } else { (v_lim, b.pack_min_v() / r) };
+            if hppc > 0.0 { (dp_docv * slope * deliv / (b.energy_j * hppc)).clamp(0.0, 0.05) } else { 0.0 }
+        }
+        _ => 0.0,
+    };
     let boost = BoostModel {
+        soc_fade_per_s,
         available: energy_j > 0.0 && bv.deliverable_w.is_some_and(|p| p > 0.0),
         deliverable_w: bv.deliverable_w.unwrap_or(0.0),
         tau_s: tau,
@@ -335,7 +367,7 @@ pub fn compute(
             margin_w: available - rl.total_w,
             cda_m2: cda,
             crr,
-            from_estimate,
+            estimate_converged: from_estimate,
         });
     }
 

@@ -90,12 +90,20 @@ impl RoadLoadEstimator {
     /// Expected relative noise of the drive force (the power signals).
     pub const KAPPA: f64 = 0.01;
 
+    /// Prior standard deviations: the vehicle file's values are held loosely.
+    pub fn cda_sd(vehicle: &Vehicle) -> f64 {
+        0.3 * vehicle.cda_m2
+    }
+    pub fn crr_sd(vehicle: &Vehicle) -> f64 {
+        0.5 * vehicle.crr0.max(0.002)
+    }
+
     pub fn new(vehicle: &Vehicle) -> RoadLoadEstimator {
         // The prior is the vehicle file's values, loosely held. The
         // recursion runs on samples normalised by their expected noise, so
         // its unit noise is 1.
         let prior = [vehicle.cda_m2, vehicle.crr0];
-        let sd = [0.3 * vehicle.cda_m2, 0.5 * vehicle.crr0.max(0.002)];
+        let sd = [Self::cda_sd(vehicle), Self::crr_sd(vehicle)];
         RoadLoadEstimator {
             all: Rls2::new(prior, sd, 1.0, Self::LAMBDA),
             coast: Rls2::new(prior, sd, 1.0, Self::LAMBDA),
@@ -181,6 +189,9 @@ pub struct PackEstimator {
 pub struct PackEstimate {
     pub ocv_v: Estimated,
     pub resistance_ohm: Estimated,
+    /// How the open-circuit voltage rises with the state of charge, V per
+    /// unit of state of charge.
+    pub ocv_slope_v: Estimated,
     pub converged: bool,
 }
 
@@ -226,7 +237,8 @@ impl PackEstimator {
         let ocv = Estimated { value: r.theta[0] + r.theta[1] * self.soc, sd: r.prediction_var(phi).sqrt() };
         let res = Estimated { value: r.theta[2], sd: sd[2] };
         let converged = self.i_hi - self.i_lo >= 50.0 && res.value > 0.0 && res.sd < 0.1 * res.value;
-        Some(PackEstimate { ocv_v: ocv, resistance_ohm: res, converged })
+        let ocv_slope_v = Estimated { value: r.theta[1], sd: sd[1] };
+        Some(PackEstimate { ocv_v: ocv, resistance_ohm: res, ocv_slope_v, converged })
     }
 }
 

@@ -52,11 +52,55 @@ pub const MAX_FILL_NS: TimeNs = 10 * NS_PER_S;
 pub const WEATHER_MAX_AGE_NS: TimeNs = 60 * NS_PER_S;
 /// Time constant of the filter deriving acceleration from speed, s.
 pub const ACCEL_FILTER_S: f64 = 0.3;
-/// Time constant of the mean wind used for predictions, s.
-pub const WIND_MEAN_S: f64 = 15.0;
+/// Window of the mean wind used for predictions, ns: a moving average
+/// rejects gusts far better than an exponential filter of the same memory.
+pub const WIND_WINDOW_NS: TimeNs = 30 * NS_PER_S;
+/// Window of the message-rate check, ns.
+pub const RATE_WINDOW_NS: TimeNs = 2 * NS_PER_S;
+/// A message below this fraction of its configured rate is short.
+pub const RATE_SHORT: f64 = 0.8;
+/// Wheel and GNSS speed may differ by this much (m/s, or this fraction,
+/// whichever is larger) before they disagree.
+pub const SPEED_AGREE_MPS: f64 = 3.0;
+pub const SPEED_AGREE_FRAC: f64 = 0.05;
+/// ... for this long before the alert.
+pub const SPEED_DISAGREE_NS: TimeNs = NS_PER_S;
+/// The projection must say "out of reach" this long before the alert.
+pub const TARGET_PERSIST_NS: TimeNs = 2 * NS_PER_S;
+/// A source back up may take this long to deliver before its channels count as stale.
+pub const RETURN_GRACE_NS: TimeNs = NS_PER_S;
 /// A source that delivered at least this rate and then nothing for this
 /// long is reported silent.
 pub const SILENT_AFTER_NS: TimeNs = NS_PER_S;
+
+/// The mean wind over the last [`WIND_WINDOW_NS`] (predictions use the
+/// wind the car will meet on average, not the gust of the moment).
+#[derive(Clone, Debug, Default)]
+struct WindMean {
+    samples: std::collections::VecDeque<(TimeNs, f64)>,
+    sum: f64,
+}
+
+impl WindMean {
+    fn push(&mut self, t_ns: TimeNs, w: f64) {
+        self.samples.push_back((t_ns, w));
+        self.sum += w;
+        while let Some(&(t0, w0)) = self.samples.front() {
+            if t_ns - t0 > WIND_WINDOW_NS || self.samples.len() > 10_000 {
+                self.samples.pop_front();
+                self.sum -= w0;
+            } else {
+                break;
+            }
+        }
+    }
+
+    /// The mean, unless the latest sample is older than the weather limit.
+    fn mean(&self, t_ns: TimeNs) -> Option<f64> {
+        let &(last, _) = self.samples.back()?;
+        (t_ns - last <= WEATHER_MAX_AGE_NS).then(|| self.sum / self.samples.len() as f64)
+    }
+}
 
 /// Per-source health, from the events alone.
 #[derive(Clone, Debug, Default, PartialEq)]
@@ -70,6 +114,8 @@ pub struct SourceHealth {
     /// that never said.
     pub link: Option<LinkState>,
     pub link_reason: String,
+    /// When the source last reported itself up again.
+    pub up_since_ns: Option<TimeNs>,
     /// Arrival gaps longer than [`SourceHealth::GAP_NS`].
     pub gaps: u64,
     window_start_ns: TimeNs,
@@ -132,12 +178,20 @@ pub struct Engine {
     odo_m: f64,
     odo_last: Option<(TimeNs, f64)>,
     accel_from_speed: Option<f64>,
-    /// (time, value) of the mean wind.
-    wind_mean: Option<(TimeNs, f64)>,
+    /// The wind's recent samples for the mean the predictions use.
+    wind: WindMean,
     pub alerts: AlertBook,
     derived: Derived,
     /// Derived quantities rejected for being non-finite.
     pub rejected_values: u64,
+    /// Per-message frame counts at the start of the rate window, and when.
+    rate_window: (TimeNs, Vec<u64>),
+    /// Messages short of their rate in the last window: (name, fraction).
+    short_messages: Vec<(String, f64)>,
+    /// Since when wheel and GNSS speed disagree.
+    speed_disagree_since: Option<TimeNs>,
+    /// Since when the projection has said the target is out of reach.
+    target_lost_since: Option<TimeNs>,
 }
 
 impl Engine {
@@ -165,10 +219,14 @@ impl Engine {
             odo_m: 0.0,
             odo_last: None,
             accel_from_speed: None,
-            wind_mean: None,
+            wind: WindMean::default(),
             alerts: AlertBook::default(),
             derived: Derived::default(),
             rejected_values: 0,
+            rate_window: (0, Vec::new()),
+            short_messages: Vec::new(),
+            speed_disagree_since: None,
+            target_lost_since: None,
         };
         e.sync_names();
         e
@@ -231,8 +289,12 @@ impl Engine {
             Payload::Mark(text) => self.marks.push((ev.t_ns, text.clone())),
             Payload::Ack(key) => self.alerts.ack(ev.t_ns, key),
             Payload::Link(state, reason) => {
-                self.health[idx].link = Some(*state);
-                self.health[idx].link_reason = reason.clone();
+                let h = &mut self.health[idx];
+                if *state == LinkState::Up && h.link.is_some_and(|l| l != LinkState::Up) {
+                    h.up_since_ns = Some(ev.t_ns);
+                }
+                h.link = Some(*state);
+                h.link_reason = reason.clone();
             }
             Payload::Tick | Payload::Note(_) => {}
         }
@@ -272,12 +334,7 @@ impl Engine {
                     self.pack.update(s.value, i, self.store.fresh(ch::BATTERY_SOC, s.t_ns));
                 }
             }
-            ch::AMBIENT_WIND => {
-                // Predictions use the mean wind, not the gust of the moment.
-                let (t0, w0) = self.wind_mean.unwrap_or((s.t_ns, s.value));
-                let dt = ((s.t_ns - t0) as f64 * 1e-9).clamp(0.0, WIND_MEAN_S);
-                self.wind_mean = Some((s.t_ns, w0 + (s.value - w0) * dt / WIND_MEAN_S));
-            }
+            ch::AMBIENT_WIND => self.wind.push(s.t_ns, s.value),
             ch::BATTERY_TEMP => self.heating.push(s.t_ns, s.value),
             _ => {}
         }
@@ -395,7 +452,7 @@ impl Engine {
             distance_m: self.odo_m,
             accel,
             weather,
-            wind_mps: self.wind_mean.filter(|(ts, _)| t - ts <= WEATHER_MAX_AGE_NS).map(|w| w.1),
+            wind_mps: self.wind.mean(t),
             engine_w: f(ch::ENGINE_POWER),
             motor_w: f(ch::MOTOR_POWER),
             voltage_v: f(ch::BATTERY_VOLTAGE),
@@ -438,7 +495,32 @@ impl Engine {
             d.projection_note = Some("rejected: non-finite result");
         }
         self.derived = d;
+        self.check_message_rates(t);
         self.evaluate_alerts(t, sources, &inp);
+    }
+
+    /// Every [`RATE_WINDOW_NS`], compares each message's frames with what
+    /// its period promises; a message that has arrived at all but below
+    /// [`RATE_SHORT`] of its rate is short (lost frames, a failing node).
+    fn check_message_rates(&mut self, t: TimeNs) {
+        let counts = &self.decoder.can.message_counts;
+        if self.rate_window.1.len() != counts.len() {
+            self.rate_window = (t, counts.iter().map(|c| c.frames).collect());
+            return;
+        }
+        let span = t - self.rate_window.0;
+        if span < RATE_WINDOW_NS {
+            return;
+        }
+        self.short_messages.clear();
+        for (c, &before) in counts.iter().zip(&self.rate_window.1) {
+            let got = (c.frames - before) as f64;
+            let expected = span as f64 / c.period_ns as f64;
+            if c.frames > 0 && expected >= 5.0 && got > 0.0 && got < RATE_SHORT * expected {
+                self.short_messages.push((c.name.clone(), got / expected));
+            }
+        }
+        self.rate_window = (t, counts.iter().map(|c| c.frames).collect());
     }
 
     fn evaluate_alerts(&mut self, t: TimeNs, sources: &SourceTable, inp: &TickInputs) {
@@ -455,7 +537,10 @@ impl Engine {
             }
             let down = h.link == Some(LinkState::Down) || h.link == Some(LinkState::Retrying);
             let silent = !down && h.events >= 10 && h.last_t_ns.is_some_and(|l| t - l > SILENT_AFTER_NS);
-            if down || silent {
+            // A source just back up has a moment to deliver before its
+            // channels count as stale.
+            let returning = h.up_since_ns.is_some_and(|u| t - u < RETURN_GRACE_NS);
+            if down || silent || returning {
                 quiet_sources.push(id);
             }
             let reason = h.link_reason.clone();
@@ -520,6 +605,40 @@ impl Engine {
                 format!("{group} stale {age_s:.1} s: {list}")
             });
         }
+        // Messages short of their rate (frames lost on the way).
+        let short = &self.short_messages;
+        for c in &self.decoder.can.message_counts {
+            let s = short.iter().find(|(n, _)| *n == c.name);
+            book.set(t, &format!("rate:{}", c.name), Severity::Caution, s.is_some(), || {
+                format!("{} arriving at {:.0} % of its rate: frames lost", c.name, s.map_or(0.0, |x| x.1 * 100.0))
+            });
+        }
+        // Channels reading outside their valid range.
+        for (id, info) in self.decoder.channels.iter() {
+            let Some(stc) = self.store.get(id) else { continue };
+            if stc.invalid == 0 {
+                continue;
+            }
+            let out = !stc.valid && t - stc.t_ns < 5 * NS_PER_S;
+            let v = stc.value;
+            book.set(t, &format!("range:{}", info.name), Severity::Caution, out, || {
+                format!("{} reads {v:.4} {}: outside its valid range, not used", info.name, info.dimension.si_unit())
+            });
+        }
+        // Wheel speed against GNSS speed: a stuck or failing speed sensor.
+        let disagree = match (self.store.fresh(ch::VEHICLE_SPEED, t), self.store.fresh(ch::GNSS_SPEED, t)) {
+            (Some(w), Some(g)) => (w - g).abs() > SPEED_AGREE_MPS.max(SPEED_AGREE_FRAC * g.abs()),
+            _ => false,
+        };
+        let since = if disagree { Some(*self.speed_disagree_since.get_or_insert(t)) } else { None };
+        if !disagree {
+            self.speed_disagree_since = None;
+        }
+        let (w, g) =
+            (self.store.fresh(ch::VEHICLE_SPEED, t).unwrap_or(0.0), self.store.fresh(ch::GNSS_SPEED, t).unwrap_or(0.0));
+        book.set(t, "speed-disagree", Severity::Caution, since.is_some_and(|s| t - s >= SPEED_DISAGREE_NS), || {
+            format!("wheel speed {:.1} m/s and GNSS {:.1} m/s disagree: a sensor may be stuck", w, g)
+        });
         let b = &d.battery;
         let running = d.speed_mps.is_some_and(|v| v > 5.0);
         let ratio = b.derating_ratio.unwrap_or(1.0);
@@ -542,13 +661,16 @@ impl Engine {
         );
         let target_kmh = cfg.track.target_speed_mps * 3.6;
         let peak = d.projection.as_ref().map(|p| p.peak_mps * 3.6);
-        book.set(
-            t,
-            "target",
-            Severity::Caution,
-            running && d.projection.as_ref().is_some_and(|p| !p.target_reachable),
-            || format!("target {target_kmh:.0} km/h out of reach: projected peak {:.0} km/h", peak.unwrap_or(0.0)),
-        );
+        // A prediction hovering at the target should not flap the alert:
+        // out of reach for TARGET_PERSIST_NS before it is raised.
+        let lost = running && d.projection.as_ref().is_some_and(|p| !p.target_reachable);
+        let lost_since = if lost { Some(*self.target_lost_since.get_or_insert(t)) } else { None };
+        if !lost {
+            self.target_lost_since = None;
+        }
+        book.set(t, "target", Severity::Caution, lost_since.is_some_and(|s| t - s >= TARGET_PERSIST_NS), || {
+            format!("target {target_kmh:.0} km/h out of reach: projected peak {:.0} km/h", peak.unwrap_or(0.0))
+        });
         let braking_now = inp.brake.is_some_and(|x| x > 0.1);
         let br = d.braking;
         let approach = running && !braking_now && br.is_some_and(|x| !x.passed && x.in_s < lim.braking_approach_s);

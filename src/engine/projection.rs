@@ -39,6 +39,12 @@ pub struct BoostModel {
     /// Energy above the reserve, J, and the open-circuit voltage and
     /// resistance that turn terminal power into energy drawn.
     pub energy_j: f64,
+    /// How fast the deliverable power falls with the energy drawn, as a
+    /// fraction per second at the present draw: the current-limited power
+    /// I_max·(OCV − I_max·R) falls with the open-circuit voltage as the
+    /// state of charge drops. 0 when the derating curve is a fit of the
+    /// measured limit (which has this in it already).
+    pub soc_fade_per_s: f64,
 }
 
 impl BoostModel {
@@ -51,7 +57,7 @@ impl BoostModel {
         }
         let now = derating_ratio(self.time_in_boost_s, self.tau_s, self.floor);
         let later = derating_ratio(self.time_in_boost_s + dt, self.tau_s, self.floor);
-        if now <= 0.0 { 0.0 } else { self.deliverable_w * later / now }
+        if now <= 0.0 { 0.0 } else { self.deliverable_w * later / now * (1.0 - self.soc_fade_per_s * dt).max(0.0) }
     }
 
     /// Deliverable power once the curve has settled at its floor, W.
@@ -109,13 +115,14 @@ struct Curve {
     tau_s: f64,
     floor: f64,
     energy_s: f64,
+    fade: f64,
 }
 
 impl Curve {
     fn new(b: &BoostModel, energy_s: f64) -> Curve {
         let now = derating_ratio(b.time_in_boost_s, b.tau_s, b.floor);
         let scale_w = if b.available && now > 0.0 { b.deliverable_w / now } else { 0.0 };
-        Curve { scale_w, t0_s: b.time_in_boost_s, tau_s: b.tau_s, floor: b.floor, energy_s }
+        Curve { scale_w, t0_s: b.time_in_boost_s, tau_s: b.tau_s, floor: b.floor, energy_s, fade: b.soc_fade_per_s }
     }
 
     #[inline]
@@ -123,7 +130,8 @@ impl Curve {
         if t >= self.energy_s || self.scale_w == 0.0 {
             return 0.0;
         }
-        self.scale_w * (self.floor + (1.0 - self.floor) * (-(self.t0_s + t) / self.tau_s).exp())
+        let ratio = self.floor + (1.0 - self.floor) * (-(self.t0_s + t) / self.tau_s).exp();
+        self.scale_w * ratio * (1.0 - self.fade * t).max(0.0)
     }
 }
 
@@ -274,6 +282,7 @@ mod tests {
                 time_in_boost_s: 0.0,
                 rated_w: 250e3,
                 energy_j: 20e6,
+                soc_fade_per_s: 0.0,
             },
         }
     }
@@ -325,6 +334,7 @@ mod tests {
             time_in_boost_s: 10.0,
             rated_w: 250e3,
             energy_j: 1e7,
+            soc_fade_per_s: 0.0,
         };
         assert_eq!(b.deliverable_after_w(0.0), 180e3);
         let expected = 180e3 * derating_ratio(30.0, 20.0, 0.5) / derating_ratio(10.0, 20.0, 0.5);

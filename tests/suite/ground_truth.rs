@@ -1,0 +1,166 @@
+//! The engine against the simulator's truth. The simulator knows what the
+//! car really is; the engine only sees its frames. These tests say how close
+//! the engine gets, and the README quotes the figures they print.
+
+use termvel::config::{self, Parsed};
+use termvel::engine::Snapshot;
+use termvel::engine::derived::BoostLimit;
+use termvel::sim::TruthPoint;
+
+use crate::rehearsal::{Rehearsed, plan_with, rehearse};
+
+/// Seconds since the rehearsal's start.
+fn secs(r: &Rehearsed, t_ns: i64) -> f64 {
+    (t_ns - r.start_ns) as f64 * 1e-9
+}
+
+/// The first snapshot at or after `t` s.
+fn snapshot_at(r: &Rehearsed, t: f64) -> &Snapshot {
+    r.snapshots.iter().find(|s| secs(r, s.t_ns) >= t).expect("a snapshot then")
+}
+
+/// When the road-load estimator starts to be fed at full throttle: the
+/// truth's first moment above its 20 m/s floor with the throttle open.
+fn estimator_start(r: &Rehearsed) -> f64 {
+    let p = r
+        .sim
+        .truth()
+        .iter()
+        .find(|p| p.v_mps >= termvel::engine::estimators::ESTIMATOR_MIN_SPEED_MPS && p.throttle > 0.99)
+        .unwrap();
+    secs(r, p.t_ns)
+}
+
+#[test]
+fn drag_area_within_2_percent_after_10_s_of_full_throttle() {
+    // The demo plan: the car's true CdA is 0.90 m², the vehicle file's 0.86.
+    let r = rehearse(plan_with(""));
+    let t = estimator_start(&r) + 10.0;
+    let e = snapshot_at(&r, t).derived.estimate;
+    let err = e.cda_m2.value / 0.90 - 1.0;
+    println!(
+        "CdA after 10 s of full-throttle data: {:.4} ± {:.4} m² (truth 0.90): {:+.2} %",
+        e.cda_m2.value,
+        e.cda_m2.sd,
+        err * 100.0
+    );
+    assert!(err.abs() < 0.02, "{err}");
+    assert!(e.converged);
+}
+
+/// The steady scenario: steady wind, no gusts, no faults, the battery
+/// derating exactly as the vehicle file says, boost from the launch; the
+/// car's drag 2 % above the vehicle file's.
+fn steady_plan() -> config::plan::Plan {
+    let text = config::EMBEDDED_PLAN
+        .1
+        .replace("gust_mps = 1.2", "gust_mps = 0.0")
+        .replace("boost_start_m = 1100", "boost_start_m = 0")
+        .replace("drag_area_m2 = 0.90 ", "drag_area_m2 = 0.88 ")
+        .replace("rolling_crr = 0.0128", "rolling_crr = 0.0120")
+        .replace("soc_start = 0.62", "soc_start = 0.90")
+        .replace("derate_time_constant_s = 17.0", "derate_time_constant_s = 24.0")
+        .replace("derate_floor = 0.40", "derate_floor = 0.66");
+    match config::validate_text("steady.toml", &text).parsed {
+        Some(Parsed::Plan(p)) => config::plan::Plan { faults: vec![], ..p },
+        _ => panic!("{:?}", config::validate_text("steady.toml", &text).errors),
+    }
+}
+
+/// Linear interpolation of the projected speed at distance `x`.
+fn projected_at(s: &Snapshot, x: f64) -> Option<f64> {
+    let p = s.derived.projection.as_ref()?;
+    p.trajectory
+        .windows(2)
+        .find(|w| w[0].0 <= x && x <= w[1].0)
+        .map(|w| w[0].1 + (w[1].1 - w[0].1) * (x - w[0].0) / (w[1].0 - w[0].0).max(1e-9))
+}
+
+#[test]
+fn projected_peak_within_1_percent_after_5_s_of_full_throttle() {
+    let r = rehearse(steady_plan());
+    let truth: &[TruthPoint] = r.sim.truth();
+    // The simulated driver brakes at 5750 m; the peak is where he lifts.
+    let peak = truth.iter().map(|p| p.v_mps).fold(0.0, f64::max);
+    let lift_x = truth.iter().find(|p| p.braking).unwrap().x_m;
+    let t = estimator_start(&r) + 5.0;
+    let s = snapshot_at(&r, t);
+    let at_lift = projected_at(s, lift_x).expect("the projection reaches the driver's lift point");
+    let err = at_lift / peak - 1.0;
+    println!(
+        "projected speed at the lift point ({lift_x:.0} m) after 5 s of full-throttle data: {:.2} km/h, simulated peak {:.2} km/h: {:+.2} %",
+        at_lift * 3.6,
+        peak * 3.6,
+        err * 100.0
+    );
+    assert!(err.abs() < 0.01, "{err}");
+}
+
+/// The truth of boost time left at `t`: when the battery's real
+/// deliverable power falls below what the target really needs (power
+/// limit), when the energy above the reserve runs out at the present draw
+/// (energy), whichever is first.
+fn true_boost_left(r: &Rehearsed, t: f64) -> (f64, BoostLimit) {
+    let cfg = termvel::config::ConfigSet::embedded();
+    let veh = &cfg.vehicle;
+    let truth = r.sim.truth();
+    let now = truth.iter().find(|p| secs(r, p.t_ns) >= t).unwrap();
+    // Road load at the target with the car's true coefficients and the mean wind.
+    let vt = cfg.track.target_speed_mps;
+    let rl = termvel::engine::physics::roadload::road_load(&termvel::engine::physics::roadload::RoadLoadInputs {
+        v_mps: vt,
+        wind_mps: 1.4,
+        rho: now.rho,
+        cda_m2: 0.90,
+        crr0: 0.0128,
+        crr2_s2_m2: veh.crr2_s2_m2,
+        mass_kg: veh.mass_kg,
+        grade: 0.0,
+    })
+    .total_w;
+    let need = (rl / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency;
+    let power = truth
+        .iter()
+        .filter(|p| secs(r, p.t_ns) >= t)
+        .find(|p| p.battery_limit_w < need)
+        .map_or(f64::INFINITY, |p| secs(r, p.t_ns) - t);
+    let energy = truth
+        .iter()
+        .filter(|p| secs(r, p.t_ns) >= t)
+        .find(|p| p.energy_above_reserve_j <= 0.0)
+        .map_or(f64::INFINITY, |p| secs(r, p.t_ns) - t);
+    if power <= energy { (power, BoostLimit::Power) } else { (energy, BoostLimit::Energy) }
+}
+
+#[test]
+fn boost_time_left_within_10_percent_once_the_fit_converges() {
+    // The demo plan with steady wind (no gusts, whose moment-to-moment need
+    // has no single truth): the battery derates faster than the vehicle
+    // file says, so the power limit binds once the fit has found that out.
+    let text = config::EMBEDDED_PLAN.1.replace("gust_mps = 1.2", "gust_mps = 0.0");
+    let plan = match config::validate_text("steady-wind.toml", &text).parsed {
+        Some(Parsed::Plan(p)) => config::plan::Plan { faults: vec![], ..p },
+        _ => panic!(),
+    };
+    let r = rehearse(plan);
+    let first = r.snapshots.iter().find(|s| s.derived.boost_left.curve_fitted).expect("the fit converges");
+    let t_fit = secs(&r, first.t_ns);
+    let mut checked = 0;
+    for s in r.snapshots.iter().filter(|s| secs(&r, s.t_ns) >= t_fit && s.derived.battery.boosting).step_by(5) {
+        let t = secs(&r, s.t_ns);
+        let (truth, limit) = true_boost_left(&r, t);
+        if !truth.is_finite() || truth < 2.0 {
+            break;
+        }
+        let l = s.derived.boost_left;
+        let got = l.seconds.unwrap_or(f64::NAN);
+        println!(
+            "t {t:5.1} s: boost left {got:5.2} s ({:?} limit), truth {truth:5.2} s ({limit:?} limit)",
+            l.binding.unwrap()
+        );
+        assert_eq!(l.binding, Some(limit), "at {t:.1} s");
+        assert!((got / truth - 1.0).abs() < 0.10, "at {t:.1} s: {got:.2} s against {truth:.2} s");
+        checked += 1;
+    }
+    assert!(checked >= 3, "checked {checked} instants");
+}
