@@ -8,6 +8,8 @@
 //! - `pipeline_replay`: read + decode + engine, the whole replay path
 //!   (target: 2 million frames/s).
 //! - `projection`: one projected run to the braking point (target ≤ 100 µs).
+//! - `planner_one_run`, `planner_monte_carlo`: the planner (target: 10 000
+//!   trials in a few seconds).
 //! - `derived_tick`: everything the engine computes at a snapshot tick
 //!   (three projections, boost time, alerts' inputs).
 //!
@@ -240,4 +242,30 @@ fn derived_tick(bencher: Bencher) {
         }
         n
     });
+}
+
+#[divan::bench(args = [1000])]
+fn planner_monte_carlo(bencher: Bencher, trials: usize) {
+    // The demo plan's Monte Carlo on every core: 10 000 trials take ten times this.
+    let (plan, cfg) = termvel::config::load_plan(None, &[]).unwrap();
+    let threads = std::thread::available_parallelism().map_or(2, |n| n.get());
+    bencher.counter(ItemsCount::new(trials)).bench(|| {
+        termvel::planner::monte_carlo(
+            &cfg,
+            &plan,
+            termvel::config::plan::BoostStart::AtDistance(3000.0),
+            Some(5750.0),
+            trials,
+            1,
+            threads,
+        )
+    });
+}
+
+#[divan::bench]
+fn planner_one_run(bencher: Bencher) {
+    let (plan, cfg) = termvel::config::load_plan(None, &[]).unwrap();
+    let c = termvel::planner::Conditions::nominal(&cfg, &plan);
+    bencher
+        .bench(|| termvel::planner::run(&cfg.vehicle, &cfg.track, &c, plan.driver.boost_start, Some(5750.0)).peak_mps);
 }

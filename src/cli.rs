@@ -33,7 +33,7 @@ pub enum Command {
     /// Export every channel and derived quantity to CSV or Parquet.
     Export(NotBuiltArgs),
     /// Plan a run: predicted peak, best boost start, probabilities.
-    Plan(NotBuiltArgs),
+    Plan(PlanArgs),
     /// Validate config files and print what they define, without running anything.
     Check(CheckArgs),
 }
@@ -103,6 +103,27 @@ pub struct RehearseArgs {
     /// Start paused.
     #[arg(long)]
     pub paused: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct PlanArgs {
+    /// A run plan (.toml, kind = "plan"); default: the built-in demo plan.
+    pub plan: Option<PathBuf>,
+    /// Monte Carlo trials.
+    #[arg(long, default_value_t = 10_000, value_parser = clap::value_parser!(u32).range(1..=10_000_000))]
+    pub trials: u32,
+    /// Seed of the Monte Carlo (default: the plan's seed).
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Threads for the Monte Carlo (default: one per core).
+    #[arg(long)]
+    pub threads: Option<usize>,
+    /// One JSON document instead of text.
+    #[arg(long)]
+    pub json: bool,
+    /// Config files or directories instead of those the plan names.
+    #[arg(long = "config", short = 'c', value_name = "PATH")]
+    pub config: Vec<PathBuf>,
 }
 
 #[derive(Args, Debug)]

@@ -3,6 +3,7 @@
 //! unusable input or a command not built yet).
 
 pub mod check;
+pub mod plan;
 pub mod rehearse;
 pub mod replay;
 pub mod session;
@@ -25,7 +26,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Live(_)) => not_built("live"),
         Some(Command::Report(_)) => not_built("report"),
         Some(Command::Export(_)) => not_built("export"),
-        Some(Command::Plan(_)) => not_built("plan"),
+        Some(Command::Plan(a)) => plan::run(a),
     };
     match result {
         Ok(code) => code,

@@ -85,3 +85,59 @@ fn replay_records_a_copy_that_replays_the_same() {
     let text = std::fs::read_to_string(&rec[0]).unwrap();
     assert!(text.contains("] session note alert raise"), "alerts are annotated in the recording");
 }
+
+#[test]
+fn plan_prints_a_recommendation_and_probabilities() {
+    let o = termvel(&["plan", "--trials", "400"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let text = stdout(&o);
+    for want in ["as planned", "best boost start", "probability of reaching", "peak speed, km/h", "Advisory only"] {
+        assert!(text.contains(want), "missing {want:?}:\n{text}");
+    }
+    let o = termvel(&["plan", "--trials", "400", "--json", "--seed", "9"]);
+    assert!(o.status.success());
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    let mc = &v["monte_carlo"];
+    assert_eq!(mc["trials"], 400);
+    assert_eq!(mc["seed"], 9);
+    let p = |k: &str| mc["peak_mps"][k].as_f64().unwrap();
+    assert!(p("p5") <= p("p50") && p("p50") <= p("p95"));
+    assert!((0.0..=1.0).contains(&mc["p_target"].as_f64().unwrap()));
+    assert!(
+        v["best_boost"]["run"]["peak_mps"].as_f64().unwrap()
+            >= v["planned"]["run"]["peak_mps"].as_f64().unwrap() - 1e-9
+    );
+    // The same seed gives the same answer.
+    let again = termvel(&["plan", "--trials", "400", "--json", "--seed", "9"]);
+    assert_eq!(stdout(&again), stdout(&o));
+}
+
+#[test]
+fn plan_and_rehearse_refuse_a_bad_plan_with_its_location() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = termvel::config::EMBEDDED_PLAN.1.replace("brake_at_m = 5750", "brake_at_m = \"late\"");
+    let p = write(dir.path(), "bad-plan.toml", text);
+    for cmd in ["plan", "rehearse"] {
+        let o = termvel(
+            &[cmd, p.to_str().unwrap(), "--headless", "--no-record"]
+                .into_iter()
+                .filter(|a| cmd == "rehearse" || (*a != "--headless" && *a != "--no-record"))
+                .collect::<Vec<_>>(),
+        );
+        assert_eq!(o.status.code(), Some(2), "{cmd}");
+        assert!(
+            stderr(&o).contains("bad-plan.toml:") && stderr(&o).contains("driver.brake_at_m"),
+            "{cmd}: {}",
+            stderr(&o)
+        );
+    }
+}
+
+#[test]
+fn a_headless_rehearsal_runs_the_demo_plan() {
+    let o = termvel(&["rehearse", "--headless", "--no-record", "--every", "1s"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let last = stdout(&o).lines().last().unwrap().to_string();
+    let v: serde_json::Value = serde_json::from_str(&last).unwrap();
+    assert!(v["summary"]["can_frames"].as_u64().unwrap() > 30_000);
+}

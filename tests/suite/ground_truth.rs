@@ -164,3 +164,28 @@ fn boost_time_left_within_10_percent_once_the_fit_converges() {
     }
     assert!(checked >= 3, "checked {checked} instants");
 }
+
+#[test]
+fn the_planner_model_agrees_with_the_simulator_given_the_truth() {
+    // The planner's own run model, given the car's true coefficients (the
+    // plan's [car] section), against the simulator's full model of the same
+    // run: gears, shifts, traction control, its own battery curve.
+    let r = rehearse(plan_with(""));
+    let (plan, cfg) = config::load_plan(None, &[]).unwrap();
+    let truth_peak = r.sim.truth().iter().map(|p| p.v_mps).fold(0.0, f64::max);
+    let mut c = termvel::planner::Conditions::nominal(&cfg, &plan);
+    c.cda_m2 = plan.car.cda_m2.unwrap();
+    c.crr0 = plan.car.crr0.unwrap();
+    c.derate_tau_s = plan.car.derate_tau_s.unwrap();
+    c.derate_floor = plan.car.derate_floor.unwrap();
+    let run =
+        termvel::planner::run(&cfg.vehicle, &cfg.track, &c, plan.driver.boost_start, Some(plan.driver.brake_at_m));
+    let err = run.peak_mps / truth_peak - 1.0;
+    println!(
+        "planner peak with the true coefficients {:.2} km/h, simulated {:.2} km/h: {:+.2} %",
+        run.peak_mps * 3.6,
+        truth_peak * 3.6,
+        err * 100.0
+    );
+    assert!(err.abs() < 0.01, "{err}");
+}

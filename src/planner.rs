@@ -1,0 +1,425 @@
+//! The planner: before the run, what peak speed to expect and where, when
+//! to start boost, and with what probability the target is reached.
+//!
+//! A run is modelled from a standing start to the brake point with the same
+//! physics the engine projects with (full-load envelope through the gears,
+//! grip, the motor fed by a battery whose deliverable power follows the
+//! derating law and falls with the open-circuit voltage as charge is drawn,
+//! energy above the reserve, road load with wind and grade), integrated by
+//! RK4 on (distance, speed, energy drawn). It is pure and fast (a run costs
+//! some 100 µs), so the planner can search boost starts and run thousands
+//! of Monte Carlo trials over the plan's uncertainty ranges. Trials draw from
+//! independent seeded streams, so results do not depend on the thread count.
+
+use crate::config::plan::{BoostStart, Plan};
+use crate::config::{ConfigSet, Track, Vehicle};
+use crate::engine::physics::{air, battery as bat, braking, roadload};
+use crate::sim::rng::Rng;
+use crate::units::G0;
+
+/// Integration step, s.
+pub const STEP_S: f64 = 0.05;
+/// Longest run modelled, s.
+pub const HORIZON_S: f64 = 600.0;
+
+/// The uncertain quantities of one trial.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Conditions {
+    pub cda_m2: f64,
+    pub crr0: f64,
+    pub mass_kg: f64,
+    pub temp_c: f64,
+    pub pressure_pa: f64,
+    pub humidity: f64,
+    pub headwind_mps: f64,
+    pub derate_tau_s: f64,
+    pub derate_floor: f64,
+    pub soc_start: f64,
+}
+
+impl Conditions {
+    /// The plan's nominal conditions: the vehicle file's coefficients (what
+    /// the engineer believes before the run) and the plan's weather and
+    /// starting charge.
+    pub fn nominal(cfg: &ConfigSet, plan: &Plan) -> Conditions {
+        let v = &cfg.vehicle;
+        Conditions {
+            cda_m2: v.cda_m2,
+            crr0: v.crr0,
+            mass_kg: v.mass_kg,
+            temp_c: plan.ambient.temp_c,
+            pressure_pa: plan.ambient.pressure_pa,
+            humidity: plan.ambient.humidity,
+            headwind_mps: plan.ambient.headwind_mps,
+            derate_tau_s: v.battery.derate_tau_s,
+            derate_floor: v.battery.derate_floor,
+            soc_start: plan.car.soc_start,
+        }
+    }
+
+    /// One draw from the plan's uncertainty ranges (uniform), the rest nominal.
+    pub fn draw(nominal: &Conditions, plan: &Plan, rng: &mut Rng) -> Conditions {
+        let u = &plan.uncertainty;
+        let mut pick = |r: Option<(f64, f64)>, nominal: f64| r.map_or(nominal, |(lo, hi)| rng.range(lo, hi));
+        Conditions {
+            cda_m2: pick(u.cda_m2, nominal.cda_m2),
+            crr0: pick(u.crr0, nominal.crr0),
+            mass_kg: pick(u.mass_kg, nominal.mass_kg),
+            temp_c: pick(u.temp_c, nominal.temp_c),
+            headwind_mps: pick(u.headwind_mps, nominal.headwind_mps),
+            derate_tau_s: pick(u.derate_tau_s, nominal.derate_tau_s),
+            derate_floor: pick(u.derate_floor, nominal.derate_floor),
+            ..*nominal
+        }
+    }
+
+    pub fn air_density(&self) -> f64 {
+        air::moist_air_density_cipm2007(self.temp_c, self.pressure_pa, self.humidity)
+    }
+}
+
+/// Open-circuit voltage of the pack in the planner's model, V: a cell at
+/// about 0.05 V under its maximum when full, falling 0.8 V from full to
+/// empty (common practice for lithium-ion cells; the same slope the
+/// engine's pack prior uses).
+pub fn pack_ocv_v(veh: &Vehicle, soc: f64) -> f64 {
+    let b = &veh.battery;
+    b.cells_in_series as f64 * (b.cell_max_v - 0.05 - 0.8 * (1.0 - soc.clamp(0.0, 1.0)))
+}
+
+/// The battery's deliverable terminal power, W: its rating, or less when
+/// the current-limited (HPPC) power at this charge is lower, times the
+/// derating ratio after `t_boost_s` in boost.
+pub fn deliverable_w(veh: &Vehicle, c: &Conditions, soc: f64, t_boost_s: f64) -> f64 {
+    let b = &veh.battery;
+    let hppc = bat::max_discharge_power_w(pack_ocv_v(veh, soc), b.resistance_ohm, b.pack_min_v(), b.max_current_a);
+    b.rated_power_w.min(hppc) * bat::derating_ratio(t_boost_s, c.derate_tau_s, c.derate_floor)
+}
+
+/// A modelled run.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct RunResult {
+    pub peak_mps: f64,
+    pub peak_at_m: f64,
+    pub peak_t_s: f64,
+    /// When and where the target speed is first reached.
+    pub target: Option<(f64, f64)>,
+    /// Where the car brakes, and its speed there.
+    pub brake_at_m: f64,
+    pub brake_speed_mps: f64,
+    /// Distance needed from there to the exit speed, m.
+    pub stopping_m: f64,
+    /// Braking there, the car would pass the stop-by point above the exit speed.
+    pub overrun: bool,
+    /// Speed when boost started (None: it never did), and seconds of boost used.
+    pub boost_from_mps: Option<f64>,
+    pub boost_s: f64,
+    pub energy_used_j: f64,
+}
+
+/// Models a run at full throttle from a standing start with boost from
+/// `boost`, braking at `brake_at_m` (`None`: at the latest braking point,
+/// where the stopping distance reaches the stop-by point).
+pub fn run(veh: &Vehicle, track: &Track, c: &Conditions, boost: BoostStart, brake_at_m: Option<f64>) -> RunResult {
+    let b = &veh.battery;
+    let rho = c.air_density();
+    let mass = c.mass_kg;
+    let m_eff = mass * veh.rotating_mass_factor;
+    let grip = veh.grip_limit_g * G0 * mass;
+    let e_total = b.energy_j;
+    let e_avail = ((c.soc_start - b.soc_reserve) * e_total).max(0.0);
+    let kappa = 0.5 * rho * c.cda_m2 / mass;
+    let stop_by = track.stop_by_m();
+    let brake_here = |x: f64, v: f64| match brake_at_m {
+        Some(xb) => x >= xb,
+        None => {
+            x + braking::braking_distance_m(v, track.exit_speed_mps.min(v), track.braking_decel_mps2, kappa) >= stop_by
+        }
+    };
+    // State: x, v, energy drawn from the cells, time in boost.
+    let (mut t, mut x, mut v, mut e, mut tb) = (0.0f64, 0.0f64, 0.0f64, 0.0f64, 0.0f64);
+    let mut boosting = false;
+    let mut boost_from = None;
+    let mut target = None;
+    let mut peak = (0.0, 0.0, 0.0);
+    // Acceleration and the rate energy is drawn, for a given state.
+    let deriv = |x: f64, v: f64, e: f64, tb: f64, boosting: bool| -> (f64, f64) {
+        let comb = veh.full_load_power_w(v);
+        let (motor, draw) = if boosting && e < e_avail {
+            let soc = c.soc_start - e / e_total;
+            let p_term = deliverable_w(veh, c, soc, tb).min(veh.motor_rated_power_w / veh.motor_efficiency);
+            // Energy drawn from the cells is OCV·I; the terminal gets OCV·I − I²R.
+            let ocv = pack_ocv_v(veh, soc);
+            let disc = (ocv * ocv - 4.0 * b.resistance_ohm * p_term).max(0.0);
+            let i = (ocv - disc.sqrt()) / (2.0 * b.resistance_ohm);
+            (p_term * veh.motor_efficiency, ocv * i)
+        } else {
+            (0.0, 0.0)
+        };
+        let f_drive = (veh.driveline_efficiency * (comb + motor) / v.max(0.5)).min(grip);
+        let rl = roadload::road_load(&roadload::RoadLoadInputs {
+            v_mps: v,
+            wind_mps: c.headwind_mps,
+            rho,
+            cda_m2: c.cda_m2,
+            crr0: c.crr0,
+            crr2_s2_m2: veh.crr2_s2_m2,
+            mass_kg: mass,
+            grade: track.grade_at(x),
+        });
+        let f_res = if v > 0.0 { rl.total_w / v } else { 0.0 };
+        ((f_drive - f_res) / m_eff, draw)
+    };
+    while t < HORIZON_S {
+        if !boosting {
+            boosting = match boost {
+                BoostStart::AtDistance(d) => x >= d,
+                BoostStart::AtSpeed(s) => v >= s,
+            };
+            if boosting {
+                boost_from = Some(v);
+            }
+        }
+        if brake_here(x, v) {
+            break;
+        }
+        let h = STEP_S;
+        let (a1, p1) = deriv(x, v, e, tb, boosting);
+        let (a2, p2) = deriv(x + 0.5 * h * v, v + 0.5 * h * a1, e + 0.5 * h * p1, tb + 0.5 * h, boosting);
+        let (a3, p3) =
+            deriv(x + 0.5 * h * (v + 0.5 * h * a1), v + 0.5 * h * a2, e + 0.5 * h * p2, tb + 0.5 * h, boosting);
+        let (a4, p4) = deriv(x + h * (v + 0.5 * h * a2), v + h * a3, e + h * p3, tb + h, boosting);
+        let v_new = (v + h / 6.0 * (a1 + 2.0 * a2 + 2.0 * a3 + a4)).max(0.0);
+        x += h / 6.0 * (v + 2.0 * (v + 0.5 * h * a1) + 2.0 * (v + 0.5 * h * a2) + (v + h * a3));
+        e += h / 6.0 * (p1 + 2.0 * p2 + 2.0 * p3 + p4);
+        if boosting && e < e_avail {
+            tb += h;
+        }
+        let v_old = v;
+        v = v_new;
+        t += h;
+        if target.is_none() && v >= track.target_speed_mps {
+            // Interpolated within the step.
+            let f = ((track.target_speed_mps - v_old) / (v - v_old).max(1e-9)).clamp(0.0, 1.0);
+            target = Some((t - h + f * h, x));
+        }
+        if v > peak.0 {
+            peak = (v, x, t);
+        }
+    }
+    let stopping = braking::braking_distance_m(v, track.exit_speed_mps.min(v), track.braking_decel_mps2, kappa);
+    RunResult {
+        peak_mps: peak.0,
+        peak_at_m: peak.1,
+        peak_t_s: peak.2,
+        target,
+        brake_at_m: x,
+        brake_speed_mps: v,
+        stopping_m: stopping,
+        overrun: x + stopping > stop_by + 1.0,
+        boost_from_mps: boost_from,
+        boost_s: tb,
+        energy_used_j: e.min(e_avail),
+    }
+}
+
+/// The boost start (a distance) that maximises the speed reached by the
+/// brake point, searched on a grid then refined; with its run.
+pub fn best_boost_start(veh: &Vehicle, track: &Track, c: &Conditions, brake_at_m: Option<f64>) -> (f64, RunResult) {
+    let end = brake_at_m.unwrap_or_else(|| track.stop_by_m());
+    let eval = |d: f64| run(veh, track, c, BoostStart::AtDistance(d), brake_at_m);
+    let mut best = (0.0, eval(0.0));
+    let steps = 40;
+    for k in 1..steps {
+        let d = end * k as f64 / steps as f64;
+        let r = eval(d);
+        if r.peak_mps > best.1.peak_mps + 1e-9 {
+            best = (d, r);
+        }
+    }
+    // Refine around the best grid point in 10 m steps.
+    let step = end / steps as f64;
+    let (lo, hi) = ((best.0 - step).max(0.0), (best.0 + step).min(end));
+    let mut d = lo;
+    while d <= hi {
+        let r = eval(d);
+        if r.peak_mps > best.1.peak_mps + 1e-9 {
+            best = (d, r);
+        }
+        d += 10.0;
+    }
+    best
+}
+
+/// Monte Carlo statistics.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MonteCarlo {
+    pub trials: usize,
+    pub seed: u64,
+    pub p_target: f64,
+    pub p_overrun: f64,
+    /// Peak speed percentiles (5, 25, 50, 75, 95), m/s.
+    pub peak_percentiles: [f64; 5],
+    pub peak_mean: f64,
+}
+
+/// Runs `trials` trials, each with conditions drawn from its own stream
+/// (`seed`, trial number), on `threads` threads.
+pub fn monte_carlo(
+    cfg: &ConfigSet,
+    plan: &Plan,
+    boost: BoostStart,
+    brake_at_m: Option<f64>,
+    trials: usize,
+    seed: u64,
+    threads: usize,
+) -> MonteCarlo {
+    let nominal = Conditions::nominal(cfg, plan);
+    let threads = threads.clamp(1, 64).min(trials.max(1));
+    let chunk = trials.div_ceil(threads);
+    let results: Vec<RunResult> = std::thread::scope(|s| {
+        let handles: Vec<_> = (0..threads)
+            .map(|k| {
+                let nominal = &nominal;
+                s.spawn(move || {
+                    let from = k * chunk;
+                    let to = ((k + 1) * chunk).min(trials);
+                    (from..to)
+                        .map(|i| {
+                            let mut rng = Rng::fork(seed, i as u64);
+                            let c = Conditions::draw(nominal, plan, &mut rng);
+                            run(&cfg.vehicle, &cfg.track, &c, boost, brake_at_m)
+                        })
+                        .collect::<Vec<_>>()
+                })
+            })
+            .collect();
+        handles.into_iter().flat_map(|h| h.join().expect("a trial panicked")).collect()
+    });
+    let n = results.len().max(1) as f64;
+    let mut peaks: Vec<f64> = results.iter().map(|r| r.peak_mps).collect();
+    peaks.sort_by(f64::total_cmp);
+    let pct = |p: f64| {
+        if peaks.is_empty() {
+            return f64::NAN;
+        }
+        // Nearest-rank percentile.
+        let rank = ((p / 100.0) * peaks.len() as f64).ceil().max(1.0) as usize;
+        peaks[rank.min(peaks.len()) - 1]
+    };
+    MonteCarlo {
+        trials: results.len(),
+        seed,
+        p_target: results.iter().filter(|r| r.target.is_some()).count() as f64 / n,
+        p_overrun: results.iter().filter(|r| r.overrun).count() as f64 / n,
+        peak_percentiles: [pct(5.0), pct(25.0), pct(50.0), pct(75.0), pct(95.0)],
+        peak_mean: peaks.iter().sum::<f64>() / n,
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::{self};
+
+    fn demo() -> (Plan, ConfigSet) {
+        config::load_plan(None, &[]).unwrap()
+    }
+
+    #[test]
+    fn without_boost_the_run_tends_to_the_engine_only_terminal_speed() {
+        // A long zone and no boost: the speed approaches the terminal speed
+        // where η·P_engine(v) = road load(v) (found here by bisection).
+        let (plan, mut cfg) = demo();
+        cfg.track.zone_length_m = 40_000.0;
+        cfg.track.grade.clear();
+        cfg.track.grade_at_m.clear();
+        let mut c = Conditions::nominal(&cfg, &plan);
+        c.headwind_mps = 0.0;
+        let r = run(&cfg.vehicle, &cfg.track, &c, BoostStart::AtDistance(1e9), Some(30_000.0));
+        let veh = &cfg.vehicle;
+        let rho = c.air_density();
+        let surplus = |v: f64| {
+            veh.driveline_efficiency * veh.full_load_power_w(v)
+                - roadload::road_load(&roadload::RoadLoadInputs {
+                    v_mps: v,
+                    wind_mps: 0.0,
+                    rho,
+                    cda_m2: c.cda_m2,
+                    crr0: c.crr0,
+                    crr2_s2_m2: veh.crr2_s2_m2,
+                    mass_kg: c.mass_kg,
+                    grade: 0.0,
+                })
+                .total_w
+        };
+        let (mut lo, mut hi) = (50.0, 200.0);
+        for _ in 0..60 {
+            let m = 0.5 * (lo + hi);
+            if surplus(m) > 0.0 { lo = m } else { hi = m }
+        }
+        assert!((r.peak_mps / lo - 1.0).abs() < 0.002, "{} vs {lo}", r.peak_mps);
+        assert!(r.boost_from_mps.is_none() && r.energy_used_j == 0.0);
+    }
+
+    #[test]
+    fn energy_is_conserved_within_the_reserve() {
+        let (plan, cfg) = demo();
+        let c = Conditions::nominal(&cfg, &plan);
+        let r = run(&cfg.vehicle, &cfg.track, &c, BoostStart::AtDistance(0.0), None);
+        let avail = (c.soc_start - cfg.vehicle.battery.soc_reserve) * cfg.vehicle.battery.energy_j;
+        assert!(r.energy_used_j <= avail + 1.0);
+        assert!(r.boost_s > 10.0);
+        assert!(!r.overrun, "braking at the latest point never overruns: {r:?}");
+    }
+
+    #[test]
+    fn the_best_boost_start_is_no_worse_than_any_other() {
+        let (plan, cfg) = demo();
+        let c = Conditions::nominal(&cfg, &plan);
+        let brake = Some(plan.driver.brake_at_m);
+        let (d, best) = best_boost_start(&cfg.vehicle, &cfg.track, &c, brake);
+        for other in [0.0, 500.0, 1100.0, 2500.0, 4000.0] {
+            let r = run(&cfg.vehicle, &cfg.track, &c, BoostStart::AtDistance(other), brake);
+            assert!(
+                best.peak_mps >= r.peak_mps - 1e-9,
+                "boost at {d} m: {} < at {other} m: {}",
+                best.peak_mps,
+                r.peak_mps
+            );
+        }
+    }
+
+    #[test]
+    fn monte_carlo_is_seeded_and_thread_count_free() {
+        let (plan, cfg) = demo();
+        let boost = BoostStart::AtDistance(1100.0);
+        let a = monte_carlo(&cfg, &plan, boost, Some(5750.0), 200, 7, 1);
+        let b = monte_carlo(&cfg, &plan, boost, Some(5750.0), 200, 7, 3);
+        assert_eq!(a, b);
+        let c = monte_carlo(&cfg, &plan, boost, Some(5750.0), 200, 8, 2);
+        assert_ne!(a.peak_mean, c.peak_mean);
+        let p = a.peak_percentiles;
+        assert!(p.windows(2).all(|w| w[0] <= w[1]), "{p:?}");
+        assert!((0.0..=1.0).contains(&a.p_target) && (0.0..=1.0).contains(&a.p_overrun));
+    }
+
+    #[test]
+    fn zero_width_ranges_give_the_nominal_run_every_time() {
+        let (mut plan, cfg) = demo();
+        plan.uncertainty = Default::default();
+        let boost = BoostStart::AtDistance(1100.0);
+        let m = monte_carlo(&cfg, &plan, boost, Some(5750.0), 50, 1, 2);
+        let nominal = run(&cfg.vehicle, &cfg.track, &Conditions::nominal(&cfg, &plan), boost, Some(5750.0));
+        assert!(m.peak_percentiles.iter().all(|p| *p == nominal.peak_mps));
+        assert_eq!(m.p_target, if nominal.target.is_some() { 1.0 } else { 0.0 });
+    }
+
+    #[test]
+    fn a_late_brake_point_overruns() {
+        let (plan, cfg) = demo();
+        let c = Conditions::nominal(&cfg, &plan);
+        let r = run(&cfg.vehicle, &cfg.track, &c, BoostStart::AtDistance(1100.0), Some(cfg.track.stop_by_m() - 100.0));
+        assert!(r.overrun, "{r:?}");
+    }
+}
