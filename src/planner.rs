@@ -208,6 +208,13 @@ pub fn run(veh: &Vehicle, track: &Track, c: &Conditions, boost: BoostStart, brak
         }
     }
     let stopping = braking::braking_distance_m(v, track.exit_speed_mps.min(v), track.braking_decel_mps2, kappa);
+    // The driver brakes at the given point (the step may have carried the
+    // model a few metres past it); braking at the latest point is in time by
+    // definition, within a step.
+    let overrun = match brake_at_m {
+        Some(xb) => xb + stopping > stop_by + 0.5,
+        None => false,
+    };
     RunResult {
         peak_mps: peak.0,
         peak_at_m: peak.1,
@@ -216,7 +223,7 @@ pub fn run(veh: &Vehicle, track: &Track, c: &Conditions, boost: BoostStart, brak
         brake_at_m: x,
         brake_speed_mps: v,
         stopping_m: stopping,
-        overrun: x + stopping > stop_by + 1.0,
+        overrun,
         boost_from_mps: boost_from,
         boost_s: tb,
         energy_used_j: e.min(e_avail),
