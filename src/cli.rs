@@ -27,7 +27,7 @@ pub enum Command {
     /// Replay a termvel recording or a candump -L log.
     Replay(ReplayArgs),
     /// Watch a run live from SocketCAN and serial inputs.
-    Live(NotBuiltArgs),
+    Live(LiveArgs),
     /// Summarise a recorded run: peaks, derating, estimates, alerts, data quality.
     Report(NotBuiltArgs),
     /// Export every channel and derived quantity to CSV or Parquet.
@@ -103,6 +103,35 @@ pub struct RehearseArgs {
     /// Start paused.
     #[arg(long)]
     pub paused: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct LiveArgs {
+    /// A SocketCAN interface (repeatable), e.g. can0.
+    #[arg(long = "can", value_name = "IFACE")]
+    pub can: Vec<String>,
+    /// A serial port (repeatable): PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME].
+    #[arg(long = "serial", value_name = "SPEC")]
+    pub serial: Vec<crate::sources::serial::SerialSpec>,
+    /// Take every CAN id, not only the signal map's.
+    #[arg(long)]
+    pub all_ids: bool,
+    /// End the session after this long (e.g. 90s, 10min).
+    #[arg(long = "for", value_name = "DURATION", value_parser = parse_session_length)]
+    pub for_ns: Option<TimeNs>,
+    #[command(flatten)]
+    pub run: RunOpts,
+}
+
+fn parse_session_length(s: &str) -> Result<TimeNs, String> {
+    let s = s.trim();
+    if let Some(h) = s.strip_suffix('h')
+        && let Ok(h) = h.parse::<f64>()
+        && (0.0..=24.0 * 7.0).contains(&h)
+    {
+        return Ok((h * 3600e9) as TimeNs);
+    }
+    parse_duration_ns(s)
 }
 
 #[derive(Args, Debug)]

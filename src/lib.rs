@@ -20,6 +20,7 @@ pub mod decode;
 pub mod engine;
 pub mod event;
 pub mod headless;
+pub mod live;
 pub mod planner;
 pub mod player;
 pub mod record;

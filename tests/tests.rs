@@ -10,6 +10,8 @@
 //!   file naming the location and message it must produce; `termvel check`.
 //! - `ground_truth`: the engine's estimates and predictions against the
 //!   simulator's truth (CdA, projected peak, boost time left).
+//! - `live_serial`: `termvel live` on pseudo-terminals: three protocols at
+//!   once, garbage, a device unplugged and back, live against its replay.
 //! - `rehearsal`: injected faults raise the right alerts at the right time,
 //!   and the rehearsal's recording replays to the same alerts.
 //! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
@@ -32,6 +34,8 @@ mod crosscheck;
 mod determinism;
 #[path = "suite/ground_truth.rs"]
 mod ground_truth;
+#[path = "suite/live_serial.rs"]
+mod live_serial;
 #[path = "suite/recording.rs"]
 mod recording;
 #[path = "suite/rehearsal.rs"]

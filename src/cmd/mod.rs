@@ -3,6 +3,7 @@
 //! unusable input or a command not built yet).
 
 pub mod check;
+pub mod live;
 pub mod plan;
 pub mod rehearse;
 pub mod replay;
@@ -23,7 +24,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Check(a)) => check::run(&a),
         Some(Command::Replay(a)) => replay::run(a),
         Some(Command::Rehearse(a)) => rehearse::run(a),
-        Some(Command::Live(_)) => not_built("live"),
+        Some(Command::Live(a)) => live::run(a),
         Some(Command::Report(_)) => not_built("report"),
         Some(Command::Export(_)) => not_built("export"),
         Some(Command::Plan(a)) => plan::run(a),

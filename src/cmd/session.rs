@@ -135,7 +135,7 @@ fn finish(spec: &SessionSpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
 }
 
 /// Tracing to a file in the data directory (never to the screen).
-fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGuard> {
+pub(crate) fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGuard> {
     let dir = session::default_record_dir().parent()?.join("logs");
     std::fs::create_dir_all(&dir).ok()?;
     let appender = tracing_appender::rolling::never(dir, "termvel.log");
@@ -175,10 +175,24 @@ pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
     }
 }
 
-struct JsonPrinter<W: Write> {
+pub(crate) struct JsonPrinter<W: Write> {
     out: W,
     /// The reader went away (`| head`): stop printing, keep running.
     broken: bool,
+}
+
+impl<W: Write> JsonPrinter<W> {
+    pub(crate) fn new(out: W) -> JsonPrinter<W> {
+        JsonPrinter { out, broken: false }
+    }
+
+    /// Prints the closing summary line.
+    pub(crate) fn finish(&mut self, summary: &Summary) {
+        if !self.broken {
+            let _ = writeln!(self.out, "{}", summary.json());
+            let _ = self.out.flush();
+        }
+    }
 }
 
 impl<W: Write> SnapshotSink for JsonPrinter<W> {
@@ -194,9 +208,15 @@ impl<W: Write> SnapshotSink for JsonPrinter<W> {
 
 /// Publishes the latest snapshot and status to the screens. The watch
 /// channel keeps only the latest: a slow screen skips, the player never waits.
-struct UiSink {
+pub(crate) struct UiSink {
     tx: watch::Sender<Option<Arc<UiFrame>>>,
     last: Option<Arc<Snapshot>>,
+}
+
+impl UiSink {
+    pub(crate) fn new(tx: watch::Sender<Option<Arc<UiFrame>>>) -> UiSink {
+        UiSink { tx, last: None }
+    }
 }
 
 impl SnapshotSink for UiSink {

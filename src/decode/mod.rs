@@ -87,6 +87,13 @@ impl Decoder {
             (Payload::Can(frame), _) => self.can.decode(ev.t_ns, frame, out),
             (Payload::Line(line), SourceKind::Nmea) => self.decode_nmea(ev.t_ns, ev.source, line, out),
             (Payload::Line(line), SourceKind::Lines) => self.decode_lines(ev.t_ns, ev.source, line, out),
+            // A CAN source's line: what a serial CAN adapter sent that the
+            // source could not take as a frame.
+            (Payload::Line(line), SourceKind::Can) => match slcan::parse(line) {
+                Ok(slcan::SlcanMsg::Frame { frame, .. }) => self.can.decode(ev.t_ns, &frame, out),
+                Ok(_) => {}
+                Err(e) => self.parse_error(ev.source, format!("CAN adapter: {e}")),
+            },
             _ => {}
         }
     }

@@ -4,7 +4,7 @@ use crate::util::{demo, stderr, stdout, termvel, write};
 
 #[test]
 fn commands_not_built_say_so_and_exit_2() {
-    for cmd in ["live", "report", "export"] {
+    for cmd in ["report", "export"] {
         let o = termvel(&[cmd]);
         assert_eq!(o.status.code(), Some(2), "{cmd}");
         assert!(stderr(&o).contains("not built yet"), "{cmd}: {}", stderr(&o));

@@ -1,0 +1,140 @@
+//! `termvel live`: SocketCAN interfaces and serial ports, several at once,
+//! on the screens or headless, recorded.
+
+use std::process::ExitCode;
+use std::sync::Arc;
+
+use tokio::sync::{mpsc, oneshot, watch};
+
+use super::session::{JsonPrinter, UiSink, init_log_file};
+use crate::cli::LiveArgs;
+use crate::config::ConfigSet;
+use crate::engine::{Engine, EngineOptions};
+use crate::event::{CanId, SourceKind, SourceTable};
+use crate::headless::Summary;
+use crate::live::{self, LiveOutcome, Pipeline};
+use crate::player::Control;
+use crate::session;
+use crate::sources::live::{INPUT_CAPACITY, SessionClock};
+use crate::sources::{serial, socketcan};
+use crate::ui::app::{App, Mode, SessionInfo};
+
+pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
+    if args.can.is_empty() && args.serial.is_empty() {
+        return super::unusable(
+            "live needs at least one input: --can IFACE or --serial PATH[,baud=N][,proto=nmea|slcan|lines]",
+        );
+    }
+    let config = if args.run.config.is_empty() {
+        eprintln!("termvel: no --config given: using the built-in demo set (its signal map decodes the demo car only)");
+        ConfigSet::embedded()
+    } else {
+        match ConfigSet::load(&args.run.config) {
+            Ok(c) => c,
+            Err(e) => return super::unusable(e),
+        }
+    };
+    let config = Arc::new(config);
+    // The session's sources, named once, in the order given.
+    let mut sources = SourceTable::default();
+    let mut names = std::collections::BTreeSet::new();
+    let mut can = Vec::new();
+    for iface in &args.can {
+        if !names.insert(iface.clone()) {
+            return super::unusable(format!("--can {iface} is given twice"));
+        }
+        can.push((iface.clone(), sources.intern(iface, SourceKind::Can)));
+    }
+    let mut ser = Vec::new();
+    for (i, spec) in args.serial.iter().enumerate() {
+        let name = spec.source_name(i);
+        if !names.insert(name.clone()) {
+            return super::unusable(format!("two inputs are called {name}: give one of them name=…"));
+        }
+        ser.push((spec.clone(), sources.intern(&name, spec.proto.source_kind())));
+    }
+    let ids: Option<Vec<CanId>> =
+        if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
+    let recorder = if args.run.no_record {
+        None
+    } else {
+        let dir = args.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
+        match session::create_recording(&dir, "live", &config, &sources) {
+            Ok((w, p)) => {
+                eprintln!("termvel: recording to {}", p.display());
+                Some((w, p))
+            }
+            Err(e) => {
+                return super::unusable(format!(
+                    "cannot create a recording in {}: {e} (use --no-record or --record-dir)",
+                    dir.display()
+                ));
+            }
+        }
+    };
+    let _log = if args.run.headless { None } else { init_log_file() };
+    let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
+    let outcome: LiveOutcome = rt.block_on(async {
+        let clock = SessionClock::start();
+        let (tx, rx) = mpsc::channel(INPUT_CAPACITY);
+        let (stop_tx, stop_rx) = watch::channel(false);
+        for (iface, id) in &can {
+            let spec = socketcan::CanSpec { iface: iface.clone(), ids: ids.clone() };
+            tokio::spawn(socketcan::run(spec, *id, clock, tx.clone(), stop_rx.clone()));
+        }
+        for (spec, id) in &ser {
+            tokio::spawn(serial::run(spec.clone(), *id, clock, tx.clone(), stop_rx.clone()));
+        }
+        drop(tx);
+        let latency = crate::ui::latency_histogram();
+        let pipeline = Pipeline {
+            engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: args.run.every }),
+            sources: sources.clone(),
+            clock,
+            recorder,
+            latency: Some(latency.clone()),
+            duration: args.for_ns.map(|ns| std::time::Duration::from_nanos(ns as u64)),
+        };
+        let (ctl_tx, ctl_rx) = mpsc::channel(64);
+        if args.run.headless {
+            // Ctrl-C, SIGTERM and SIGHUP end the session cleanly (the recording is closed).
+            let ctl = ctl_tx.clone();
+            tokio::spawn(async move {
+                let mut term = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate()).ok();
+                let mut hup = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::hangup()).ok();
+                tokio::select! {
+                    _ = tokio::signal::ctrl_c() => {}
+                    _ = async { if let Some(t) = term.as_mut() { t.recv().await; } else { std::future::pending::<()>().await } } => {}
+                    _ = async { if let Some(h) = hup.as_mut() { h.recv().await; } else { std::future::pending::<()>().await } } => {}
+                }
+                let _ = ctl.send(Control::Quit).await;
+            });
+            let stdout = std::io::stdout();
+            let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
+            let out = live::run(pipeline, rx, ctl_rx, stop_tx, &mut printer).await;
+            drop(ctl_tx);
+            let summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
+            printer.finish(&summary);
+            out
+        } else {
+            let (frames_tx, frames_rx) = watch::channel(None);
+            let (done_tx, done_rx) = oneshot::channel();
+            let task = tokio::spawn(async move {
+                let mut sink = UiSink::new(frames_tx);
+                let out = live::run(pipeline, rx, ctl_rx, stop_tx, &mut sink).await;
+                let _ = done_tx.send(());
+                out
+            });
+            let app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
+            if let Err(e) = crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
+                tracing::error!("screen: {e}");
+            }
+            task.await.expect("the pipeline task")
+        }
+    });
+    eprintln!("termvel: live session ended ({}): {} events", outcome.reason, outcome.events);
+    if let Some(p) = &outcome.recording {
+        eprintln!("termvel: recorded {} events to {}", outcome.recorded_events, p.display());
+    }
+    Ok(ExitCode::SUCCESS)
+}

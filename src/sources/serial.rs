@@ -1,0 +1,288 @@
+//! A serial port as a source, speaking one of three line protocols: NMEA 0183
+//! from a GNSS receiver, the ASCII serial-line CAN protocol of common USB-CAN
+//! adapters (the one Linux's slcan driver implements), or termvel's own
+//! `key=value` line telemetry. Lines are timestamped on arrival; adapter
+//! frames become CAN events (an adapter line that does not parse is kept as
+//! a line, so the decoder counts it and the recording keeps it). A port that
+//! vanishes (end of file, an I/O error: a USB device unplugged) is reported
+//! down at once and reopened with back-off when it returns.
+
+use std::str::FromStr;
+
+use tokio::io::{AsyncReadExt, AsyncWriteExt};
+
+use super::live::{Backoff, EventSender, Link, SessionClock, Shutdown, sleep_or_stop};
+use crate::decode::slcan::{self, SlcanMsg};
+use crate::event::{Event, LinkState, Payload, SourceId, SourceKind};
+
+/// The protocol a serial port speaks.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Proto {
+    Nmea,
+    Slcan,
+    Lines,
+}
+
+impl Proto {
+    pub fn source_kind(self) -> SourceKind {
+        match self {
+            Proto::Nmea => SourceKind::Nmea,
+            Proto::Slcan => SourceKind::Can,
+            Proto::Lines => SourceKind::Lines,
+        }
+    }
+    fn default_name(self) -> &'static str {
+        match self {
+            Proto::Nmea => "gnss",
+            Proto::Slcan => "slcan",
+            Proto::Lines => "lines",
+        }
+    }
+}
+
+/// One serial input: `PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME]`.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SerialSpec {
+    pub path: String,
+    pub baud: u32,
+    pub proto: Proto,
+    /// CAN bit rate the adapter opens its channel at (slcan).
+    pub can_bitrate: u32,
+    pub name: Option<String>,
+}
+
+impl SerialSpec {
+    /// The source name: given, or the protocol's word and an index.
+    pub fn source_name(&self, index: usize) -> String {
+        self.name.clone().unwrap_or_else(|| format!("{}{index}", self.proto.default_name()))
+    }
+}
+
+impl FromStr for SerialSpec {
+    type Err = String;
+
+    fn from_str(s: &str) -> Result<SerialSpec, String> {
+        let mut parts = s.split(',');
+        let path = parts
+            .next()
+            .filter(|p| !p.is_empty())
+            .ok_or("expected a device path first, e.g. /dev/ttyUSB0")?
+            .to_string();
+        let mut spec = SerialSpec { path, baud: 115_200, proto: Proto::Nmea, can_bitrate: 500_000, name: None };
+        for p in parts {
+            let (k, v) =
+                p.split_once('=').ok_or_else(|| format!("expected key=value after the path, found \"{p}\""))?;
+            match k {
+                "baud" => spec.baud = v.parse().map_err(|_| format!("baud: expected a number, found \"{v}\""))?,
+                "bitrate" => {
+                    spec.can_bitrate = v.parse().map_err(|_| format!("bitrate: expected a number, found \"{v}\""))?
+                }
+                "proto" => {
+                    spec.proto = match v {
+                        "nmea" => Proto::Nmea,
+                        "slcan" => Proto::Slcan,
+                        "lines" => Proto::Lines,
+                        _ => return Err(format!("proto: expected nmea, slcan or lines, found \"{v}\"")),
+                    }
+                }
+                "name" if !v.is_empty() && v.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'_' || b == b'-') => {
+                    spec.name = Some(v.into())
+                }
+                "name" => return Err(format!("name: expected letters, digits, '_' or '-', found \"{v}\"")),
+                _ => return Err(format!("expected baud, proto, bitrate or name, found \"{k}\"")),
+            }
+        }
+        if spec.proto == Proto::Slcan {
+            slcan::open_commands(spec.can_bitrate).map_err(|e| format!("bitrate: {e}"))?;
+        }
+        Ok(spec)
+    }
+}
+
+/// Longest line kept whole; longer runs without a line end are cut here
+/// (and the decoder will reject them), so garbage cannot exhaust memory.
+pub const MAX_LINE: usize = 4096;
+
+/// Splits a byte stream into lines: NMEA and line telemetry end lines with
+/// LF (a CR before it is dropped); an adapter ends its messages with CR, or
+/// sends a bare BEL for a refusal.
+#[derive(Debug)]
+pub struct LineSplitter {
+    proto: Proto,
+    buf: Vec<u8>,
+}
+
+impl LineSplitter {
+    pub fn new(proto: Proto) -> LineSplitter {
+        LineSplitter { proto, buf: Vec::with_capacity(512) }
+    }
+
+    /// Feeds bytes; calls `line` for each complete line.
+    pub fn feed(&mut self, bytes: &[u8], mut line: impl FnMut(&[u8])) {
+        for &b in bytes {
+            let end = match self.proto {
+                Proto::Slcan => b == b'\r' || b == 0x07,
+                _ => b == b'\n',
+            };
+            if end {
+                if self.proto == Proto::Slcan && b == 0x07 {
+                    self.buf.push(b);
+                }
+                let mut l: &[u8] = &self.buf;
+                if self.proto != Proto::Slcan {
+                    l = l.strip_suffix(b"\r").unwrap_or(l);
+                }
+                if !l.is_empty() {
+                    line(l);
+                }
+                self.buf.clear();
+            } else if self.buf.len() < MAX_LINE {
+                self.buf.push(b);
+            } else {
+                line(&self.buf);
+                self.buf.clear();
+                self.buf.push(b);
+            }
+        }
+    }
+}
+
+/// Turns one line into the event it stands for.
+pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Option<Event> {
+    match proto {
+        Proto::Slcan => match slcan::parse(line) {
+            Ok(SlcanMsg::Frame { frame, .. }) => Some(Event::new(t_ns, source, Payload::Can(frame))),
+            // Acknowledgements and status replies are protocol chatter.
+            Ok(_) => None,
+            Err(_) => Some(Event::new(t_ns, source, Payload::Line(line.to_vec()))),
+        },
+        _ => Some(Event::new(t_ns, source, Payload::Line(line.to_vec()))),
+    }
+}
+
+/// Reads `spec.path` until shutdown.
+pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: EventSender, mut stop: Shutdown) {
+    let mut link = Link::new(source, clock, tx);
+    let mut backoff = Backoff::default();
+    let mut buf = vec![0u8; 16 * 1024];
+    loop {
+        if *stop.borrow() {
+            return;
+        }
+        let mut port = match tokio_serial::SerialStream::open(&tokio_serial::new(&spec.path, spec.baud)) {
+            Ok(p) => p,
+            Err(e) => {
+                let why = if e.to_string().contains("exclusive lock") {
+                    format!("{}: device busy (another program holds it)", spec.path)
+                } else {
+                    format!("cannot open {}: {e}", spec.path)
+                };
+                if !link.set(LinkState::Retrying, why).await || sleep_or_stop(backoff.next_wait(), &mut stop).await {
+                    return;
+                }
+                continue;
+            }
+        };
+        if spec.proto == Proto::Slcan {
+            // Close first (an adapter left open by an earlier session refuses
+            // a bit rate change), then set the bit rate and open.
+            let cmds = slcan::open_commands(spec.can_bitrate).unwrap_or_default();
+            if let Err(e) = AsyncWriteExt::write_all(&mut port, &cmds).await {
+                if !link.set(LinkState::Retrying, format!("{}: cannot open the CAN channel: {e}", spec.path)).await
+                    || sleep_or_stop(backoff.next_wait(), &mut stop).await
+                {
+                    return;
+                }
+                continue;
+            }
+        }
+        backoff.reset();
+        if !link.set(LinkState::Up, format!("{} open at {} baud", spec.path, spec.baud)).await {
+            return;
+        }
+        let mut split = LineSplitter::new(spec.proto);
+        let reason = loop {
+            let r = tokio::select! {
+                r = port.read(&mut buf) => r,
+                _ = stop.changed() => {
+                    if spec.proto == Proto::Slcan {
+                        // Leave the adapter's channel closed, as found.
+                        let _ = AsyncWriteExt::write_all(&mut port, slcan::close_command()).await;
+                    }
+                    return;
+                }
+            };
+            match r {
+                Ok(0) => break format!("{}: the device went away (end of file)", spec.path),
+                Ok(n) => {
+                    let t = link.clock.now_ns();
+                    let mut events = Vec::new();
+                    split.feed(&buf[..n], |l| events.extend(event_of(spec.proto, t, source, l)));
+                    for ev in events {
+                        if !link.send(ev).await {
+                            return;
+                        }
+                    }
+                }
+                Err(e) => break format!("{}: {e}", spec.path),
+            }
+        };
+        drop(port);
+        if !link.set(LinkState::Down, reason).await || sleep_or_stop(backoff.next_wait(), &mut stop).await {
+            return;
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn specs_parse_with_their_defaults() {
+        let s: SerialSpec = "/dev/ttyUSB0".parse().unwrap();
+        assert_eq!((s.baud, s.proto, s.source_name(0)), (115_200, Proto::Nmea, "gnss0".to_string()));
+        let s: SerialSpec = "/dev/ttyACM1,baud=921600,proto=slcan,bitrate=1000000,name=pt".parse().unwrap();
+        assert_eq!(
+            (s.baud, s.proto, s.can_bitrate, s.source_name(3)),
+            (921_600, Proto::Slcan, 1_000_000, "pt".to_string())
+        );
+        assert!("/dev/x,proto=modbus".parse::<SerialSpec>().unwrap_err().contains("nmea, slcan or lines"));
+        assert!("/dev/x,proto=slcan,bitrate=33333".parse::<SerialSpec>().unwrap_err().contains("bitrate"));
+        assert!(",baud=1".parse::<SerialSpec>().is_err());
+        assert!("/dev/x,speed=1".parse::<SerialSpec>().unwrap_err().contains("found \"speed\""));
+    }
+
+    #[test]
+    fn lines_split_per_protocol() {
+        let mut got: Vec<Vec<u8>> = Vec::new();
+        let mut s = LineSplitter::new(Proto::Nmea);
+        s.feed(b"$GPRMC,1*00\r\n$GPGGA", |l| got.push(l.to_vec()));
+        s.feed(b",2*00\r\n\n", |l| got.push(l.to_vec()));
+        assert_eq!(got, vec![b"$GPRMC,1*00".to_vec(), b"$GPGGA,2*00".to_vec()]);
+        let mut got: Vec<Vec<u8>> = Vec::new();
+        let mut s = LineSplitter::new(Proto::Slcan);
+        s.feed(b"t1232AABB\r\x07t12300\r", |l| got.push(l.to_vec()));
+        assert_eq!(got, vec![b"t1232AABB".to_vec(), vec![0x07], b"t12300".to_vec()]);
+        // A run without line ends is cut at MAX_LINE.
+        let mut n = 0;
+        let mut s = LineSplitter::new(Proto::Lines);
+        s.feed(&vec![b'x'; MAX_LINE * 3 + 5], |l| {
+            assert!(l.len() <= MAX_LINE);
+            n += 1;
+        });
+        assert_eq!(n, 3);
+    }
+
+    #[test]
+    fn adapter_lines_become_frames_or_stay_lines() {
+        let src = SourceId(2);
+        assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").unwrap().payload, Payload::Can(_)));
+        assert!(event_of(Proto::Slcan, 1, src, b"").is_none(), "an acknowledgement is not an event");
+        assert!(
+            matches!(event_of(Proto::Slcan, 1, src, b"t12").unwrap().payload, Payload::Line(_)),
+            "a bad line is kept"
+        );
+        assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").unwrap().payload, Payload::Line(_)));
+    }
+}

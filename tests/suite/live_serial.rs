@@ -1,0 +1,312 @@
+//! `termvel live` on real serial ports: pseudo-terminal pairs stand in for a
+//! GNSS receiver, a USB-CAN adapter and a small logger. The test writes into
+//! the master side as the devices would, garbage included, and checks what
+//! termvel decoded, counted, recorded, and how it replays.
+
+use std::path::{Path, PathBuf};
+use std::process::{Child, Command, Stdio};
+use std::time::{Duration, Instant};
+
+use std::fs::File;
+use std::io::{Read, Write};
+use std::os::fd::{AsRawFd, FromRawFd};
+use termvel::config::ConfigSet;
+use termvel::decode::can::encode_signal;
+use termvel::decode::{lines, nmea, slcan};
+use termvel::event::{CanFrame, CanId, DataFrame};
+
+use crate::util::root;
+
+/// A pseudo-terminal pair made with the C library's `posix_openpt`: the
+/// master is the device's end (the test writes what a receiver, adapter or
+/// logger would send), the slave's path is what termvel opens. The slave is
+/// put in raw mode first, as a real serial port's line discipline would be
+/// by termvel itself, so nothing is translated before termvel gets there.
+struct Pty {
+    master: File,
+    path: String,
+}
+
+impl Pty {
+    fn new() -> Pty {
+        // SAFETY: plain libc calls on a descriptor this function owns; every
+        // result is checked before use.
+        unsafe {
+            let fd = libc::posix_openpt(libc::O_RDWR | libc::O_NOCTTY);
+            assert!(fd >= 0, "posix_openpt");
+            // Not inherited by termvel: the device end must close when the
+            // test closes it.
+            assert_eq!(libc::fcntl(fd, libc::F_SETFD, libc::FD_CLOEXEC), 0);
+            assert_eq!(libc::grantpt(fd), 0);
+            assert_eq!(libc::unlockpt(fd), 0);
+            let mut name = [0 as libc::c_char; 128];
+            assert_eq!(libc::ptsname_r(fd, name.as_mut_ptr(), name.len()), 0);
+            let path = std::ffi::CStr::from_ptr(name.as_ptr()).to_str().unwrap().to_string();
+            let master = File::from_raw_fd(fd);
+            let slave = std::fs::OpenOptions::new().read(true).write(true).open(&path).unwrap();
+            let mut t: libc::termios = std::mem::zeroed();
+            assert_eq!(libc::tcgetattr(slave.as_raw_fd(), &mut t), 0);
+            libc::cfmakeraw(&mut t);
+            assert_eq!(libc::tcsetattr(slave.as_raw_fd(), libc::TCSANOW, &t), 0);
+            // Closing our slave leaves the raw settings in place for the
+            // next opener, termvel.
+            drop(slave);
+            Pty { master, path }
+        }
+    }
+
+    fn send(&mut self, bytes: &[u8]) {
+        self.master.write_all(bytes).expect("the device end writes");
+    }
+
+    /// Reads what termvel wrote to the device until `until` ends it.
+    fn read_until(&mut self, until: &[u8], within: Duration) -> Vec<u8> {
+        let deadline = Instant::now() + within;
+        let mut got = Vec::new();
+        while !got.ends_with(until) {
+            let left = deadline.saturating_duration_since(Instant::now());
+            assert!(!left.is_zero(), "nothing ending in {until:?} within {within:?}: {got:?}");
+            let mut pfd = libc::pollfd { fd: self.master.as_raw_fd(), events: libc::POLLIN, revents: 0 };
+            // SAFETY: one valid pollfd for the duration of the call.
+            let n = unsafe { libc::poll(&mut pfd, 1, left.as_millis() as i32) };
+            if n > 0 && pfd.revents & libc::POLLIN != 0 {
+                let mut b = [0u8; 64];
+                // A master read fails with EIO while no slave is open yet.
+                if let Ok(k) = self.master.read(&mut b) {
+                    got.extend_from_slice(&b[..k]);
+                }
+            }
+            if n > 0 && pfd.revents & libc::POLLIN == 0 {
+                std::thread::sleep(Duration::from_millis(10));
+            }
+        }
+        got
+    }
+}
+
+/// The demo car's pt_state frame (0x0C4) with a speed in km/h.
+fn speed_frame(kmh: f64) -> CanFrame {
+    let cfg = ConfigSet::embedded();
+    let m = cfg.signals.messages.iter().find(|m| m.id == CanId::Standard(0x0C4)).unwrap();
+    let mut data = [0u8; 8];
+    for s in &m.signals {
+        let v = match s.channel.as_str() {
+            "vehicle.speed" => kmh,
+            "driver.throttle" => 100.0,
+            "gearbox.gear" => 6.0,
+            _ => 0.0,
+        };
+        encode_signal(s, v, &mut data);
+    }
+    CanFrame::Data(DataFrame::new(m.id, &data).unwrap())
+}
+
+fn spawn_live(args: &[String]) -> Child {
+    Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .arg("live")
+        .args(args)
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("termvel starts")
+}
+
+fn recording_in(dir: &Path) -> PathBuf {
+    let r: Vec<PathBuf> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().path()).collect();
+    assert_eq!(r.len(), 1, "one recording: {r:?}");
+    r[0].clone()
+}
+
+#[test]
+fn three_serial_protocols_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let (mut gnss, mut adapter, mut logger) = (Pty::new(), Pty::new(), Pty::new());
+    let (gnss_path, adapter_path, logger_path) = (gnss.path.clone(), adapter.path.clone(), logger.path.clone());
+    let child = spawn_live(&[
+        "--serial".into(),
+        format!("{gnss_path},proto=nmea,name=gnss"),
+        "--serial".into(),
+        format!("{adapter_path},proto=slcan,bitrate=500000,name=pt"),
+        "--serial".into(),
+        format!("{logger_path},proto=lines,baud=57600,name=log"),
+        "--headless".into(),
+        "--every".into(),
+        "500ms".into(),
+        "--for".into(),
+        "3s".into(),
+        "--record-dir".into(),
+        dir.path().display().to_string(),
+    ]);
+    // The adapter is told to open its channel at 500 kbit/s: close, S6, open.
+    let got = adapter.read_until(b"O\r", Duration::from_secs(10));
+    assert_eq!(got, b"C\rS6\rO\r", "close, 500 kbit/s, open");
+    std::thread::sleep(Duration::from_millis(300));
+    for k in 0..15 {
+        let rmc =
+            nmea::sentence(&format!("GPRMC,0742{:02}.00,A,4648.7404,N,07124.1278,E,100.000,84.0,140326,,,A", 10 + k));
+        gnss.send(format!("{rmc}\r\n").as_bytes());
+        let frame = slcan::encode(&speed_frame(250.0), Some(k as u16 * 100)).unwrap();
+        adapter.send(format!("{frame}\r").as_bytes());
+        logger.send(
+            format!("{}\n", lines::format(&[("coolant.temp", None, 95.5), ("boost.duty", Some("%"), 40.0)])).as_bytes(),
+        );
+        if k == 7 {
+            // One bad line each: a checksum that does not match, a frame
+            // cut short, a corrupted logger line.
+            gnss.send(b"$GPRMC,074217.00,A,4648.7404,N,07124.1278,E,100.000,84.0,140326,,,A*00\r\n");
+            adapter.send(b"t0C\r");
+            logger.send(b"coolant.temp=95.5 #00\n");
+            // And line noise, as a receiver gives while it powers up.
+            gnss.send(b"\xff\x00\x13\xfe$G\x80\r\n");
+        }
+        if k == 9 {
+            // A line torn across two writes arrives whole.
+            let rmc = nmea::sentence("GPRMC,074219.50,A,4648.7404,N,07124.1278,E,100.000,84.0,140326,,,A");
+            let (x, y) = rmc.split_at(20);
+            gnss.send(x.as_bytes());
+            std::thread::sleep(Duration::from_millis(30));
+            gnss.send(format!("{y}\r\n").as_bytes());
+        }
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    let out = child.wait_with_output().unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(out.status.success(), "{stderr}");
+    let lines_out: Vec<serde_json::Value> = stdout.lines().map(|l| serde_json::from_str(l).unwrap()).collect();
+    let (summary, snaps) = lines_out.split_last().unwrap();
+    // The last snapshot that has seen the traffic.
+    let s = snaps.iter().rev().find(|s| s["channels"].get("coolant.temp").is_some()).expect("values decoded");
+    let v = |c: &str| s["channels"][c]["value"].as_f64().unwrap_or(f64::NAN);
+    assert!((v("gnss.speed") - 100.0 * 1852.0 / 3600.0).abs() < 1e-6, "100 kn: {}", v("gnss.speed"));
+    assert!((v("vehicle.speed") - 250.0 / 3.6).abs() < 0.01, "250 km/h: {}", v("vehicle.speed"));
+    assert_eq!(v("coolant.temp"), 95.5);
+    assert!((v("boost.duty") - 0.40).abs() < 1e-12, "40 % is 0.40");
+    assert_eq!(summary["summary"]["parse_errors"], 4, "one bad line per source and the noise: {summary}");
+    // Each source reported its bad line on its own.
+    let last = snaps.last().unwrap();
+    let alerts: Vec<&str> = last["alerts"].as_array().unwrap().iter().map(|a| a["key"].as_str().unwrap()).collect();
+    for k in ["parse:gnss", "parse:pt", "parse:log"] {
+        assert!(alerts.contains(&k), "{k} in {alerts:?}");
+    }
+    // The recording: adapter frames as candump lines under the source's
+    // name, serial lines as they came, the bad ones too.
+    let rec = recording_in(dir.path());
+    let text = std::fs::read_to_string(&rec).unwrap();
+    assert_eq!(text.lines().filter(|l| l.starts_with('(') && l.contains(" pt 0C4#")).count(), 15);
+    assert!(text.contains("] pt line t0C\n"), "the bad adapter line is kept");
+    assert!(text.contains("] gnss line $GPRMC,074217.00") && text.contains("*00\n"));
+    assert!(text.contains("] log line coolant.temp=95.5 #00\n"));
+    assert!(text.contains(" session tick\n"));
+    // The recording replays to exactly the snapshots printed live.
+    let replay = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["replay", rec.to_str().unwrap(), "--headless", "--no-record", "--every", "500ms"])
+        .output()
+        .unwrap();
+    assert!(replay.status.success());
+    let strip = |s: &str| s.lines().filter(|l| !l.starts_with("{\"summary\"")).map(str::to_owned).collect::<Vec<_>>();
+    let replayed = String::from_utf8_lossy(&replay.stdout);
+    assert_eq!(strip(&replayed), strip(&stdout), "live and its replay agree, snapshot for snapshot");
+}
+
+#[test]
+fn a_device_that_vanishes_is_down_within_a_second_and_reopened() {
+    let dir = tempfile::tempdir().unwrap();
+    let link = dir.path().join("gnss-device");
+    let master = Pty::new();
+    std::os::unix::fs::symlink(&master.path, &link).unwrap();
+    let rec_dir = dir.path().join("rec");
+    std::fs::create_dir(&rec_dir).unwrap();
+    let child = spawn_live(&[
+        "--serial".into(),
+        format!("{},proto=nmea", link.display()),
+        "--headless".into(),
+        "--for".into(),
+        "5s".into(),
+        "--record-dir".into(),
+        rec_dir.display().to_string(),
+    ]);
+    let sentence = |k: u32| {
+        format!(
+            "{}\r\n",
+            nmea::sentence(&format!("GPRMC,0742{:02}.00,A,4648.7404,N,07124.1278,E,50.000,84.0,140326,,,A", k % 60))
+        )
+    };
+    let mut master = master;
+    std::thread::sleep(Duration::from_millis(700));
+    for k in 0..8 {
+        master.send(sentence(k).as_bytes());
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    // Unplug: the device (master) closes and its path goes away.
+    drop(master);
+    std::fs::remove_file(&link).unwrap();
+    let unplugged_at = std::time::SystemTime::now();
+    std::thread::sleep(Duration::from_millis(1200));
+    // Plug it back in: a new device at the same path.
+    let mut master2 = Pty::new();
+    std::os::unix::fs::symlink(&master2.path, &link).unwrap();
+    std::thread::sleep(Duration::from_millis(2500));
+    for k in 20..25 {
+        master2.send(sentence(k).as_bytes());
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let text = std::fs::read_to_string(recording_in(&rec_dir)).unwrap();
+    let link_lines: Vec<&str> = text.lines().filter(|l| l.contains(" gnss0 link ")).collect();
+    let states: Vec<&str> = link_lines.iter().map(|l| l.split(' ').nth(3).unwrap()).collect();
+    assert!(states.starts_with(&["up", "down"]), "{link_lines:?}");
+    assert_eq!(states.last(), Some(&"up"), "reopened: {link_lines:?}");
+    // Down within a second of the unplug.
+    let down = link_lines.iter().find(|l| l.contains(" link down ")).unwrap();
+    let t: f64 = down[1..down.find(']').unwrap()].parse().unwrap();
+    let unplug = unplugged_at.duration_since(std::time::UNIX_EPOCH).unwrap().as_secs_f64();
+    assert!(t - unplug < 1.0, "down {:.3} s after the unplug", t - unplug);
+    // Data from before and after the outage is in the recording.
+    assert!(text.contains("GPRMC,074207.00") && text.contains("GPRMC,074224.00"));
+    // The alert was raised and cleared.
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(stdout.contains("\"key\":\"down:gnss0\""), "the down alert was shown");
+}
+
+/// The README's two example senders of the line telemetry protocol, run as
+/// written: what they print is the README's example line, and termvel
+/// accepts it.
+#[test]
+fn the_readme_senders_print_lines_termvel_accepts() {
+    let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
+    let section = &readme[readme.find("### The line telemetry protocol").expect("the section")..];
+    let block = |lang: &str| {
+        let start = section.find(&format!("```{lang}\n")).unwrap_or_else(|| panic!("a {lang} block")) + lang.len() + 4;
+        section[start..start + section[start..].find("```").unwrap()].to_string()
+    };
+    let example = block("text").trim().to_string();
+    let dir = tempfile::tempdir().unwrap();
+    let py = dir.path().join("sender.py");
+    std::fs::write(&py, block("python")).unwrap();
+    let out = Command::new("python3").arg(&py).output().expect("python3 runs");
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let from_python = String::from_utf8(out.stdout).unwrap();
+    let c = dir.path().join("sender.c");
+    std::fs::write(&c, block("c")).unwrap();
+    let exe = dir.path().join("sender");
+    let cc = Command::new("cc")
+        .args(["-std=c99", "-Wall", "-Werror", "-o"])
+        .arg(&exe)
+        .arg(&c)
+        .output()
+        .expect("a C compiler");
+    assert!(cc.status.success(), "{}", String::from_utf8_lossy(&cc.stderr));
+    let from_c = String::from_utf8(Command::new(&exe).output().unwrap().stdout).unwrap();
+    assert_eq!(from_python.trim_end(), example);
+    assert_eq!(from_c, format!("{example}\r\n"));
+    let mut fields = Vec::new();
+    lines::parse(example.as_bytes(), &mut fields).expect("termvel accepts the example");
+    assert_eq!((fields[0].key, fields[0].unit, fields[0].value), ("vehicle.speed", Some("km/h"), 83.21));
+    assert_eq!((fields[1].key, fields[1].value), ("battery.temp", 41.5));
+    // One flipped character and the checksum catches it.
+    let bad = example.replace("83.21", "83.31");
+    assert!(lines::parse(bad.as_bytes(), &mut fields).is_err());
+}
