@@ -1,13 +1,16 @@
 #!/usr/bin/env bash
 # Installs what termvel's tests need on a fresh machine of this kind, and
 # nothing when it is already there: Debian packages (tmux for the terminal
-# tests), and a Python venv in .venv with the independent reference
+# tests; qemu-system-x86 and busybox-static for the SocketCAN VM test, whose
+# script fetches Debian's kernel package itself), and a Python venv in .venv with the independent reference
 # libraries the cross-checks use (python-can). Safe to run again.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
 need_apt=()
 command -v tmux >/dev/null 2>&1 || need_apt+=(tmux)
+command -v qemu-system-x86_64 >/dev/null 2>&1 || need_apt+=(qemu-system-x86)
+dpkg -s busybox-static >/dev/null 2>&1 || need_apt+=(busybox-static)
 if ((${#need_apt[@]})); then
   sudo=""
   [ "$(id -u)" -eq 0 ] || sudo="sudo"

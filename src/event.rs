@@ -404,6 +404,10 @@ pub enum Payload {
     Ack(String),
     /// A source's link changed state, with a reason.
     Link(LinkState, String),
+    /// Frames a source lost before termvel could read them (a SocketCAN
+    /// socket's receive queue overflowed), counted by the kernel since the
+    /// previous report.
+    Lost(u64),
     /// A clock heartbeat from a live session, so that staleness is judged
     /// the same way live and in replay.
     Tick,

@@ -189,3 +189,37 @@ pub async fn run<K: SnapshotSink>(
     }
     LiveOutcome { engine: st.engine, events: st.events, recording: rec_path, recorded_events, reason }
 }
+
+/// The figures a live session ends with, for the headless summary line:
+/// events taken and recorded, the arrival-to-applied latency (µs: p50, p99,
+/// max, from the histogram the feed screen shows) and the processor time
+/// the whole process used (user + system, seconds).
+pub fn figures(out: &LiveOutcome, latency: &LatencyHistogram) -> serde_json::Value {
+    let lat = match latency.lock() {
+        Ok(h) if !h.is_empty() => serde_json::json!({
+            "count": h.len(),
+            "p50": h.value_at_quantile(0.50),
+            "p99": h.value_at_quantile(0.99),
+            "max": h.max(),
+        }),
+        _ => serde_json::Value::Null,
+    };
+    serde_json::json!({
+        "events": out.events,
+        "recorded_events": out.recorded_events,
+        "latency_us": lat,
+        "cpu_s": cpu_seconds(),
+        "ended": out.reason,
+    })
+}
+
+/// Processor time used by this process so far (user + system), seconds.
+pub fn cpu_seconds() -> f64 {
+    // SAFETY: getrusage fills the struct it is given.
+    let mut ru: libc::rusage = unsafe { std::mem::zeroed() };
+    if unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut ru) } != 0 {
+        return f64::NAN;
+    }
+    let tv = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
+    tv(ru.ru_utime) + tv(ru.ru_stime)
+}

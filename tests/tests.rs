@@ -19,8 +19,12 @@
 //!   resizing, and the recording afterwards.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //!
-//! Shared helpers live in `suite/util.rs`.
+//! Shared helpers live in `suite/util.rs` and `suite/pty.rs`. The load test
+//! is its own binary (`tests/load.rs`), so it never shares the machine with
+//! the others.
 
+#[path = "suite/pty.rs"]
+mod pty;
 #[path = "suite/util.rs"]
 mod util;
 

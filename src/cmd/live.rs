@@ -114,7 +114,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             let out = live::run(pipeline, rx, ctl_rx, stop_tx, &mut printer).await;
             drop(ctl_tx);
             let summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
-            printer.finish(&summary);
+            let mut json = summary.json();
+            json["live"] = live::figures(&out, &latency);
+            printer.finish_json(&json);
             out
         } else {
             let (frames_tx, frames_rx) = watch::channel(None);
@@ -132,7 +134,12 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             task.await.expect("the pipeline task")
         }
     });
-    eprintln!("termvel: live session ended ({}): {} events", outcome.reason, outcome.events);
+    eprintln!(
+        "termvel: live session ended ({}): {} events, {:.2} s of processor time",
+        outcome.reason,
+        outcome.events,
+        live::cpu_seconds()
+    );
     if let Some(p) = &outcome.recording {
         eprintln!("termvel: recorded {} events to {}", outcome.recorded_events, p.display());
     }

@@ -187,9 +187,9 @@ impl<W: Write> JsonPrinter<W> {
     }
 
     /// Prints the closing summary line.
-    pub(crate) fn finish(&mut self, summary: &Summary) {
+    pub(crate) fn finish_json(&mut self, summary: &serde_json::Value) {
         if !self.broken {
-            let _ = writeln!(self.out, "{}", summary.json());
+            let _ = writeln!(self.out, "{summary}");
             let _ = self.out.flush();
         }
     }
@@ -200,7 +200,12 @@ impl<W: Write> SnapshotSink for JsonPrinter<W> {
         if self.broken {
             return;
         }
-        if serde_json::to_writer(&mut self.out, &snapshot_json(&snap)).is_err() || self.out.write_all(b"\n").is_err() {
+        // Each line goes out whole and at once: a reader following a live
+        // session sees every snapshot when it is made, not a buffer later.
+        if serde_json::to_writer(&mut self.out, &snapshot_json(&snap)).is_err()
+            || self.out.write_all(b"\n").is_err()
+            || self.out.flush().is_err()
+        {
             self.broken = true;
         }
     }

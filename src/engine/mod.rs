@@ -128,6 +128,9 @@ pub struct SourceHealth {
     pub error_passive: u64,
     pub lost_arbitration: u64,
     last_bus_error_ns: Option<TimeNs>,
+    /// Frames lost before termvel could read them (kernel queue overflow).
+    pub lost: u64,
+    last_lost_ns: Option<TimeNs>,
     parse_errors_seen: u64,
     last_parse_error_ns: Option<TimeNs>,
 }
@@ -295,6 +298,11 @@ impl Engine {
                 }
                 h.link = Some(*state);
                 h.link_reason = reason.clone();
+            }
+            Payload::Lost(n) => {
+                let h = &mut self.health[idx];
+                h.lost += n;
+                h.last_lost_ns = Some(ev.t_ns);
             }
             Payload::Tick | Payload::Note(_) => {}
         }
@@ -561,6 +569,11 @@ impl Engine {
             book.set(t, &format!("parse:{}", info.name), Severity::Caution, recent, || {
                 format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default())
             });
+            let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
+            let lost = h.lost;
+            book.set(t, &format!("lost:{}", info.name), Severity::Caution, lost_recent, || {
+                format!("{}: {lost} frames lost before termvel could read them (receive queue full)", info.name)
+            });
             let bus = h.last_bus_error_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
             let (ef, bo, ep, la) = (h.error_frames, h.bus_off, h.error_passive, h.lost_arbitration);
             book.set(
@@ -752,6 +765,7 @@ impl Engine {
                 link: h.link,
                 age_s: h.last_t_ns.map(|t| (t_ns - t) as f64 * 1e-9),
                 error_frames: h.error_frames,
+                lost: h.lost,
             });
         }
         let mut counters = self.counters;

@@ -42,6 +42,8 @@ pub struct SourceView {
     /// Seconds since the source's last event.
     pub age_s: Option<f64>,
     pub error_frames: u64,
+    /// Frames lost before termvel could read them.
+    pub lost: u64,
 }
 
 /// Running totals.

@@ -387,6 +387,12 @@ impl<R: Read> RecordingReader<R> {
                     b"ack" => Payload::Ack(utf8(text()?)?),
                     b"note" => Payload::Note(utf8(text()?)?),
                     b"tick" => Payload::Tick,
+                    b"lost" => Payload::Lost(
+                        std::str::from_utf8(arg)
+                            .ok()
+                            .and_then(|a| a.parse().ok())
+                            .ok_or("event line: expected lost and a count of frames")?,
+                    ),
                     b"link" => {
                         let (state, reason) = split_word(arg);
                         let state = std::str::from_utf8(state)

@@ -152,6 +152,10 @@ pub fn format_event(out: &mut Vec<u8>, ev: &Event, source_name: &str) {
             escape_into(out, reason.as_bytes());
         }
         Payload::Tick => out.extend_from_slice(b" tick"),
+        Payload::Lost(n) => {
+            out.extend_from_slice(b" lost ");
+            out.extend_from_slice(n.to_string().as_bytes());
+        }
         Payload::Note(text) => {
             out.extend_from_slice(b" note ");
             escape_into(out, text.as_bytes());

@@ -103,6 +103,20 @@ impl Link {
     pub async fn send(&self, ev: Event) -> bool {
         self.tx.send(ev).await.is_ok()
     }
+
+    /// Sends a batch of events in order, waiting once for room for all of
+    /// them (cheaper than one wait each at a saturated bus); empties
+    /// `events`. False when the pipeline is gone.
+    pub async fn send_all(&self, events: &mut Vec<Event>) -> bool {
+        while !events.is_empty() {
+            let n = events.len().min(self.tx.max_capacity());
+            let Ok(permits) = self.tx.reserve_many(n).await else { return false };
+            for (permit, ev) in permits.zip(events.drain(..n)) {
+                permit.send(ev);
+            }
+        }
+        true
+    }
 }
 
 /// Waits `d` or until shutdown; true if shutting down.

@@ -165,6 +165,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
     let mut link = Link::new(source, clock, tx);
     let mut backoff = Backoff::default();
     let mut buf = vec![0u8; 16 * 1024];
+    let mut events = Vec::new();
     loop {
         if *stop.borrow() {
             return;
@@ -215,13 +216,12 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
             match r {
                 Ok(0) => break format!("{}: the device went away (end of file)", spec.path),
                 Ok(n) => {
+                    // One stamp for what one read returned: it had all
+                    // arrived by now.
                     let t = link.clock.now_ns();
-                    let mut events = Vec::new();
                     split.feed(&buf[..n], |l| events.extend(event_of(spec.proto, t, source, l)));
-                    for ev in events {
-                        if !link.send(ev).await {
-                            return;
-                        }
+                    if !link.send_all(&mut events).await {
+                        return;
                     }
                 }
                 Err(e) => break format!("{}: {e}", spec.path),

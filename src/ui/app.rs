@@ -253,7 +253,21 @@ impl App {
             }
             return vec![];
         }
+        let live = self.info.mode == Mode::Live;
         let control = |c: Control| vec![Action::Player(c)];
+        if live
+            && matches!(
+                key.code,
+                KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's')
+                    | KeyCode::Left
+                    | KeyCode::Right
+            )
+        {
+            // A live run cannot be paused, sped up or sought: say so rather
+            // than ignore the key.
+            self.say("live: pause, pace, seek and step are for replays and rehearsals");
+            return vec![];
+        }
         match key.code {
             KeyCode::Char('q') => {
                 if self.quit_armed > 0 {
@@ -344,7 +358,7 @@ pub const KEYS: &[(&str, &str)] = &[
     ("1 2 3 4 5", "run, power, battery, feed, channels screens"),
     ("Tab  Shift-Tab", "next / previous screen"),
     ("? or h", "this help"),
-    ("Space or p", "pause / resume"),
+    ("Space or p", "pause / resume (replays and rehearsals, as the four below)"),
     ("+  -", "faster / slower (x0.1 … x64, then as fast as possible)"),
     ("→ .   ← ,", "seek 5 s forward / back"),
     (">  <", "seek 30 s forward / back"),
@@ -387,12 +401,26 @@ mod tests {
 
     #[test]
     fn player_keys() {
-        let mut a = app();
+        let mut a = App::new(
+            SessionInfo { mode: Mode::Replay { file: "x.tvrec".into() }, config: Arc::new(ConfigSet::embedded()) },
+            Theme { color: false },
+        );
         assert_eq!(a.on_key(key(KeyCode::Char(' '))), vec![Action::Player(Control::TogglePause)]);
         assert_eq!(a.on_key(key(KeyCode::Right)), vec![Action::Player(Control::SeekBy(5 * NS_PER_S))]);
         assert_eq!(a.on_key(key(KeyCode::Char('<'))), vec![Action::Player(Control::SeekBy(-30 * NS_PER_S))]);
         assert_eq!(a.on_key(key(KeyCode::Char('+'))), vec![Action::Player(Control::Faster)]);
         assert_eq!(a.on_key(key(KeyCode::Char('s'))), vec![Action::Player(Control::Step)]);
+        assert_eq!(a.on_key(key(KeyCode::Char('a'))), vec![Action::Player(Control::Ack("*".into()))]);
+    }
+
+    #[test]
+    fn live_says_the_player_keys_are_for_replays() {
+        let mut a = app();
+        for k in [KeyCode::Char(' '), KeyCode::Right, KeyCode::Char('<'), KeyCode::Char('+'), KeyCode::Char('s')] {
+            assert!(a.on_key(key(k)).is_empty(), "{k:?} does nothing live");
+            assert!(a.message.as_ref().is_some_and(|(m, _)| m.contains("for replays")));
+        }
+        // Marks and acknowledgements work live.
         assert_eq!(a.on_key(key(KeyCode::Char('a'))), vec![Action::Player(Control::Ack("*".into()))]);
     }
 

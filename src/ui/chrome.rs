@@ -100,7 +100,10 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
         } else {
             "▶"
         };
-        if app.info.mode != Mode::Live {
+        if app.info.mode == Mode::Live {
+            // Live: the time since the session started; no pace or pause.
+            parts.push(Span::styled(format!("│ {mode} {pos} "), t.status()));
+        } else {
             parts.push(Span::styled(format!("│ {mode} {pos} {speed} {state} "), t.status()));
         }
         match &st.recording {

@@ -190,3 +190,90 @@ fn a_small_terminal_then_a_resize() {
     let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
     assert!(end.contains("[exited 0 ]"), "{end}");
 }
+
+#[test]
+fn live_on_the_screens_with_a_receiver_unplugged() {
+    use std::sync::atomic::{AtomicBool, Ordering};
+    use std::sync::{Arc, Mutex};
+    use termvel::decode::{nmea, slcan};
+    use termvel::event::{CanFrame, CanId, DataFrame};
+
+    let dir = tempfile::tempdir().unwrap();
+    let gnss = Arc::new(Mutex::new(Some(crate::pty::Pty::new())));
+    let mut adapter = crate::pty::Pty::new();
+    let gnss_path = gnss.lock().unwrap().as_ref().unwrap().path.clone();
+    let cmd = format!(
+        "{} live --serial {gnss_path},proto=nmea,name=gnss --serial {},proto=slcan,name=pt --record-dir {}",
+        bin(),
+        adapter.path,
+        dir.path().display()
+    );
+    let t = Tmux::start("live", &cmd, 120, 34);
+    adapter.read_until(b"O\r", Duration::from_secs(15));
+    // The devices talk until the test ends: 90 kn over ground at 10 Hz, and
+    // the demo car's pt_state frame from the adapter at its 100 Hz.
+    let stop = Arc::new(AtomicBool::new(false));
+    let talker = {
+        let (stop, gnss) = (stop.clone(), gnss.clone());
+        std::thread::spawn(move || {
+            let cfg = termvel::config::ConfigSet::embedded();
+            let m = cfg.signals.messages.iter().find(|m| m.id == CanId::Standard(0x0C4)).unwrap();
+            let mut data = [0u8; 8];
+            for s in &m.signals {
+                if s.channel == "vehicle.speed" {
+                    termvel::decode::can::encode_signal(s, 166.7, &mut data);
+                }
+            }
+            let frame = slcan::encode(&CanFrame::Data(DataFrame::new(m.id, &data).unwrap()), None).unwrap();
+            let mut k = 0u32;
+            while !stop.load(Ordering::Relaxed) {
+                if k % 10 == 0
+                    && let Some(g) = gnss.lock().unwrap().as_mut()
+                {
+                    let s = nmea::sentence(&format!(
+                        "GPRMC,0800{:02}.{},A,4648.7404,N,07124.1278,E,90.000,84.0,140326,,,A",
+                        (k / 100) % 60,
+                        (k / 10) % 10
+                    ));
+                    g.send(format!("{s}\r\n").as_bytes());
+                }
+                adapter.send(format!("{frame}\r").as_bytes());
+                k += 1;
+                std::thread::sleep(Duration::from_millis(10));
+            }
+        })
+    };
+    // The run screen: the speed from the car, live in the status line.
+    let s = t.wait(15.0, "the speed", |s| s.contains("SPEED vehicle.speed") && s.contains("│ live "));
+    assert!(s.contains("Advisory only"), "{s}");
+    // A replay key says what it is for.
+    t.keys(&["Space"]);
+    t.wait(5.0, "the live message", |s| s.contains("for replays and rehearsals"));
+    // The feed screen: both sources up.
+    t.keys(&["4"]);
+    t.wait(5.0, "two sources up", |s| {
+        s.lines().filter(|l| (l.starts_with("gnss ") || l.starts_with("pt ")) && l.contains("▲ up")).count() == 2
+    });
+    // Unplug the receiver: down (or retrying) within a second or so.
+    *gnss.lock().unwrap() = None;
+    t.wait(4.0, "the receiver down", |s| {
+        s.lines().any(|l| l.starts_with("gnss ") && (l.contains("▼ DOWN") || l.contains("↻ RETRYING")))
+    });
+    // A mark, then quit.
+    t.keys(&["m"]);
+    t.type_text("receiver lost");
+    t.keys(&["Enter"]);
+    t.wait(5.0, "the confirmation", |s| s.contains("marked: receiver lost"));
+    t.keys(&["q", "q"]);
+    let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+    stop.store(true, Ordering::Relaxed);
+    talker.join().unwrap();
+    assert!(end.contains("[exited 0 ]"), "{end}");
+    assert!(!t.alternate_on());
+    let rec = recordings(dir.path());
+    assert_eq!(rec.len(), 1);
+    let text = std::fs::read_to_string(&rec[0]).unwrap();
+    assert!(text.contains(" op mark receiver lost\n"));
+    assert!(text.contains(" gnss link down "), "the unplug is in the recording");
+    assert!(text.lines().filter(|l| l.contains(" pt 0C4#")).count() >= 10);
+}

@@ -20,9 +20,19 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let [sources, bottom] = Layout::vertical([Constraint::Min(6), Constraint::Length(12)]).areas(area);
     let [counts, latency] = Layout::horizontal([Constraint::Percentage(45), Constraint::Percentage(55)]).areas(bottom);
 
-    let header =
-        Row::new(["source", "kind", "state", "events", "per s", "gaps", "bad lines", "CAN errors", "last error"])
-            .style(t.label());
+    let header = Row::new([
+        "source",
+        "kind",
+        "state",
+        "events",
+        "per s",
+        "gaps",
+        "lost",
+        "bad lines",
+        "CAN errors",
+        "last error",
+    ])
+    .style(t.label());
     let rows: Vec<Row> = s
         .sources
         .iter()
@@ -42,6 +52,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
                 v.events.to_string(),
                 format!("{:.0}", v.rate_per_s),
                 v.gaps.to_string(),
+                v.lost.to_string(),
                 v.parse_errors.to_string(),
                 v.error_frames.to_string(),
                 v.last_error.clone().unwrap_or_else(|| "—".into()),
@@ -58,6 +69,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
             Constraint::Length(9),
             Constraint::Length(7),
             Constraint::Length(5),
+            Constraint::Length(6),
             Constraint::Length(9),
             Constraint::Length(10),
             Constraint::Min(10),
