@@ -95,6 +95,7 @@ mount -t proc proc /proc
 mount -t sysfs sysfs /sys
 mount -t devtmpfs devtmpfs /dev
 mount -t tmpfs tmpfs /tmp
+mkdir -p /dev/pts && mount -t devpts devpts /dev/pts
 for m in can can-raw can-dev vcan; do insmod /mods/$m.ko || echo "TERMVEL-VM-RESULT FAIL (insmod $m)"; done
 ip link add dev vcan0 type vcan && ip link set vcan0 mtu 72 && ip link set vcan0 up
 echo "vm: kernel $(uname -r), $(nproc) cpu(s), load phase ${TERMVEL_LOAD_SECS}s"

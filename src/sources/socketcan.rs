@@ -167,6 +167,20 @@ fn tune_socket(fd: RawFd) {
     }
 }
 
+/// How often the socket's drop count is asked for.
+const DROPS_CHECK: std::time::Duration = std::time::Duration::from_millis(250);
+
+/// Frames the kernel dropped on this socket so far (`SO_MEMINFO`,
+/// `SK_MEMINFO_DROPS`), when it says.
+fn socket_drops(fd: RawFd) -> Option<u32> {
+    const SK_MEMINFO_DROPS: usize = 8;
+    let mut info = [0u32; 9];
+    let mut len = size_of::<[u32; 9]>() as libc::socklen_t;
+    // SAFETY: getsockopt writes at most `len` bytes into `info`.
+    let r = unsafe { libc::getsockopt(fd, libc::SOL_SOCKET, libc::SO_MEMINFO, info.as_mut_ptr().cast(), &mut len) };
+    (r == 0 && len as usize > SK_MEMINFO_DROPS * 4).then_some(info[SK_MEMINFO_DROPS])
+}
+
 /// Whether the interface is administratively up, from sysfs (`None` when
 /// that cannot be read: the socket's own errors will tell).
 fn iface_up(iface: &str) -> Option<bool> {
@@ -238,8 +252,25 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
             return;
         }
         let mut drops_seen = 0u32;
+        // The drop counter rides on the next frame queued after a drop; if
+        // none comes (the bus fell quiet just then), the socket's own count
+        // tells, asked four times a second.
+        let mut drops_check = tokio::time::interval(DROPS_CHECK);
+        drops_check.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
         loop {
             let mut ready = tokio::select! {
+                _ = drops_check.tick() => {
+                    if let Some(d) = socket_drops(sock.get_ref().as_raw_fd())
+                        && d > drops_seen
+                    {
+                        let ev = Event::new(link.clock.now_ns(), source, Payload::Lost(u64::from(d - drops_seen)));
+                        drops_seen = d;
+                        if !link.send(ev).await {
+                            return;
+                        }
+                    }
+                    continue;
+                }
                 r = sock.ready(Interest::READABLE | Interest::ERROR) => match r {
                     Ok(g) => g,
                     Err(e) => {
@@ -258,9 +289,9 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
                     let t = link.clock.now_ns();
                     for i in 0..n {
                         if let Some(d) = batch.drops[i]
-                            && d != drops_seen
+                            && d > drops_seen
                         {
-                            events.push(Event::new(t, source, Payload::Lost(u64::from(d.wrapping_sub(drops_seen)))));
+                            events.push(Event::new(t, source, Payload::Lost(u64::from(d - drops_seen))));
                             drops_seen = d;
                         }
                         if let Some(frame) = from_raw(&batch.frames[i][..batch.lens[i]]) {

@@ -48,6 +48,7 @@ fn every_payload_round_trips() {
         Event::new(1_000_005_000, OPERATOR, Payload::Ack("stale:weather".into())),
         Event::new(1_000_006_000, gnss, Payload::Link(LinkState::Down, "device vanished".into())),
         Event::new(1_000_007_000, SESSION, Payload::Tick),
+        Event::new(1_000_007_500, can, Payload::Lost(212_618)),
         Event::new(1_000_008_000, SESSION, Payload::Note("alert raise caution x: y".into())),
     ];
     let mut buf = Vec::new();
@@ -202,4 +203,44 @@ fn a_plain_candump_log_reads_with_its_interfaces_as_sources() {
     let mut r = RecordingReader::open(&p).unwrap();
     r.drain();
     assert_eq!(r.stats.torn_tail.as_ref().map(|t| t.line), Some(4));
+}
+
+/// Frames the kernel dropped (`lost N`) raise an alert on replay, with the
+/// count, and it clears five seconds after the last loss.
+#[test]
+fn lost_frames_in_a_recording_raise_an_alert() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut sources = SourceTable::default();
+    let can = sources.intern("can0", SourceKind::Can);
+    let cfg = termvel::config::ConfigSet::embedded();
+    let (mut w, path) = termvel::session::create_recording(dir.path(), "test", &cfg, &sources).unwrap();
+    let t0 = 1_800_000_000_000_000_000i64;
+    let frame = |t: i64| {
+        Event::new(t, can, Payload::Can(CanFrame::Data(DataFrame::new(CanId::Standard(0x5F0), &[1]).unwrap())))
+    };
+    for k in 0..100 {
+        w.write_event(&frame(t0 + k * 100_000_000), &sources).unwrap();
+        if k == 20 {
+            w.write_event(&Event::new(t0 + 2_050_000_000, can, Payload::Lost(1234)), &sources).unwrap();
+            w.write_event(&Event::new(t0 + 2_060_000_000, can, Payload::Lost(66)), &sources).unwrap();
+        }
+    }
+    drop(w);
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["replay", path.to_str().unwrap(), "--headless", "--no-record", "--every", "500ms"])
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let snaps: Vec<serde_json::Value> =
+        String::from_utf8_lossy(&out.stdout).lines().map(|l| serde_json::from_str(l).unwrap()).collect();
+    let lost = |s: &serde_json::Value| {
+        s["alerts"].as_array().and_then(|a| a.iter().find(|a| a["key"] == "lost:can0")).cloned()
+    };
+    let at =
+        |secs: f64| snaps.iter().find(|s| s["t_ns"].as_i64().is_some_and(|t| t >= t0 + (secs * 1e9) as i64)).unwrap();
+    assert!(lost(at(2.0)).is_none(), "nothing lost yet");
+    let a = lost(at(2.5)).expect("raised after the loss");
+    assert_eq!(a["active"], true);
+    assert!(a["message"].as_str().unwrap().contains("1300 frames lost"), "{a}");
+    assert_eq!(lost(at(8.0)).expect("kept until acknowledged")["active"], false, "cleared 5 s after the last loss");
 }

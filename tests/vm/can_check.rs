@@ -15,7 +15,10 @@
 //! 2. `--all-ids`: every frame recorded;
 //! 3. an interface that is missing at the start, comes up, goes down, comes
 //!    back and is deleted: retrying, up, down, up, reported within a second;
-//! 4. load: ten times a saturated 1 Mbit/s bus (90 000 frames/s) for
+//! 4. a SocketCAN interface and a serial receiver in one session;
+//! 5. termvel stopped while the bus runs on: the kernel's drops counted,
+//!    recorded and raised, recorded + lost = sent;
+//! 6. load: ten times a saturated 1 Mbit/s bus (90 000 frames/s) for
 //!    `TERMVEL_LOAD_SECS` (default 60) seconds; no frame missing from the
 //!    recording, snapshots at their rate, latency and processor time.
 //!
@@ -557,6 +560,122 @@ fn load(termvel: &Path, secs: u64, c: &mut Checks) {
     c.check(p99.is_some(), format!("load: latency measured (p99 {p99:?} µs)"));
 }
 
+/// A SocketCAN interface and a serial GNSS receiver (a pseudo-terminal) in
+/// one session: both decoded, both recorded under their own names, merged.
+fn can_and_serial_at_once(termvel: &Path, c: &mut Checks) {
+    let cfg = ConfigSet::embedded();
+    let dir = PathBuf::from("/tmp/mix");
+    // SAFETY: plain libc calls on a descriptor owned here; results checked.
+    let (master, path) = unsafe {
+        let fd = libc::posix_openpt(libc::O_RDWR | libc::O_NOCTTY);
+        assert!(fd >= 0 && libc::grantpt(fd) == 0 && libc::unlockpt(fd) == 0, "a pseudo-terminal");
+        libc::fcntl(fd, libc::F_SETFD, libc::FD_CLOEXEC);
+        let mut name = [0 as libc::c_char; 128];
+        assert_eq!(libc::ptsname_r(fd, name.as_mut_ptr(), name.len()), 0);
+        let path = std::ffi::CStr::from_ptr(name.as_ptr()).to_str().unwrap().to_string();
+        let slave = std::fs::OpenOptions::new().read(true).write(true).open(&path).unwrap();
+        let mut t: libc::termios = std::mem::zeroed();
+        libc::tcgetattr(slave.as_raw_fd(), &mut t);
+        libc::cfmakeraw(&mut t);
+        libc::tcsetattr(slave.as_raw_fd(), libc::TCSANOW, &t);
+        (<std::fs::File as std::os::fd::FromRawFd>::from_raw_fd(fd), path)
+    };
+    let serial = format!("{path},proto=nmea,name=gnss");
+    let live = Live::start(termvel, &dir, &["--can", "vcan0", "--serial", &serial, "--for", "5s"]);
+    c.check(
+        live.wait_for(" gnss link up ", Duration::from_secs(5))
+            && live.wait_for(" vcan0 link up ", Duration::from_secs(5)),
+        "mix: both sources up",
+    );
+    let tx = Sender::open("vcan0").expect("a sending socket");
+    let mut master = master;
+    for k in 0..10 {
+        tx.send(&message(&cfg, CanId::Standard(0x0C4), &[("vehicle.speed", 300.0)])).unwrap();
+        // 150 kn over ground: a checksum computed here, by hand.
+        let body = format!("GPRMC,0900{k:02}.00,A,4648.7404,N,07124.1278,E,150.000,84.0,140326,,,A");
+        let sum = body.bytes().fold(0u8, |a, b| a ^ b);
+        std::io::Write::write_all(&mut master, format!("${body}*{sum:02X}\r\n").as_bytes()).unwrap();
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    let (ok, lines, stderr) = live.finish();
+    c.check(ok, format!("mix: termvel exits 0 ({})", stderr.trim().replace('\n', " | ")));
+    let (snaps, _) = snapshots(&lines);
+    let last = snaps
+        .iter()
+        .rev()
+        .find(|(_, s)| s["channels"].get("gnss.speed").is_some() && s["channels"].get("vehicle.speed").is_some());
+    c.check(
+        last.is_some_and(|(_, s)| {
+            (s["channels"]["gnss.speed"]["value"].as_f64().unwrap_or(0.0) - 150.0 * 1852.0 / 3600.0).abs() < 1e-6
+                && (s["channels"]["vehicle.speed"]["value"].as_f64().unwrap_or(0.0) - 300.0 / 3.6).abs() < 0.01
+        }),
+        "mix: speed over ground from the receiver and road speed from the bus, in one snapshot",
+    );
+    let Some(rec) = first_file(&dir) else {
+        c.check(false, "mix: a recording");
+        return;
+    };
+    let text = std::fs::read_to_string(&rec).unwrap_or_default();
+    let can_lines = text.lines().filter(|l| l.contains(" vcan0 0C4#")).count();
+    let gnss_lines = text.lines().filter(|l| l.contains(" gnss line $GPRMC,0900")).count();
+    c.check(
+        can_lines == 10 && gnss_lines == 10,
+        format!("mix: both recorded ({can_lines} frames, {gnss_lines} sentences)"),
+    );
+}
+
+/// termvel stopped (SIGSTOP) while the bus keeps going: the kernel's queue
+/// overflows, and what it dropped is counted, recorded and raised, so the
+/// frames recorded plus the frames reported lost are the frames sent.
+fn overflow_is_counted(termvel: &Path, c: &mut Checks) {
+    const N: u64 = 300_000;
+    let dir = PathBuf::from("/tmp/overflow");
+    let live = Live::start(termvel, &dir, &["--can", "vcan0", "--all-ids", "--for", "12s"]);
+    c.check(live.wait_for(" vcan0 link up ", Duration::from_secs(5)), "overflow: vcan0 up");
+    let pid = live.child.id() as libc::pid_t;
+    // SAFETY: signals to our own child.
+    unsafe { libc::kill(pid, libc::SIGSTOP) };
+    let tx = Sender::open("vcan0").expect("a sending socket");
+    let mut seq = 0u64;
+    while seq < N {
+        let burst: Vec<CanFrame> = (seq..(seq + 256).min(N))
+            .map(|k| CanFrame::Data(DataFrame::new(CanId::Standard(0x5F2), &k.to_le_bytes()).unwrap()))
+            .collect();
+        let mut off = 0;
+        while off < burst.len() {
+            match tx.send_many(&burst[off..]) {
+                Ok(n) => off += n,
+                Err(_) => std::thread::sleep(Duration::from_micros(200)),
+            }
+        }
+        seq += burst.len() as u64;
+    }
+    unsafe { libc::kill(pid, libc::SIGCONT) };
+    let (ok, lines, stderr) = live.finish();
+    c.check(ok, format!("overflow: termvel exits 0 ({})", stderr.trim().replace('\n', " | ")));
+    let Some(rec) = first_file(&dir) else {
+        c.check(false, "overflow: a recording");
+        return;
+    };
+    let mut r = RecordingReader::open(&rec).expect("the recording opens");
+    let (mut frames, mut lost) = (0u64, 0u64);
+    while let Some(ev) = r.next_event() {
+        match ev.payload {
+            Payload::Can(CanFrame::Data(d)) if d.id() == CanId::Standard(0x5F2) => frames += 1,
+            Payload::Lost(n) => lost += n,
+            _ => {}
+        }
+    }
+    println!("     overflow: {N} sent while termvel was stopped; {frames} recorded, {lost} reported lost");
+    c.check(lost > 0, "overflow: the kernel's drops were reported");
+    c.check(frames + lost == N, format!("overflow: recorded + reported lost = sent ({frames} + {lost} = {N})"));
+    let (snaps, _) = snapshots(&lines);
+    c.check(
+        snaps.iter().any(|(_, s)| s["alerts"].as_array().into_iter().flatten().any(|a| a["key"] == "lost:vcan0")),
+        "overflow: the loss was raised as an alert",
+    );
+}
+
 fn main() {
     let termvel = PathBuf::from(std::env::args().nth(1).expect("usage: vm-can-check PATH-TO-TERMVEL"));
     let secs: u64 = std::env::var("TERMVEL_LOAD_SECS").ok().and_then(|s| s.parse().ok()).unwrap_or(60);
@@ -564,6 +683,8 @@ fn main() {
     round_trip(&termvel, false, &mut c);
     round_trip(&termvel, true, &mut c);
     coming_and_going(&termvel, &mut c);
+    can_and_serial_at_once(&termvel, &mut c);
+    overflow_is_counted(&termvel, &mut c);
     if secs > 0 {
         load(&termvel, secs, &mut c);
     }
