@@ -103,15 +103,15 @@ impl RecvBatch {
                 return Err(std::io::Error::last_os_error());
             }
             let n = n as usize;
-            for i in 0..n {
-                self.lens[i] = hdrs[i].msg_len as usize;
+            for (i, h) in hdrs.iter().enumerate().take(n) {
+                self.lens[i] = h.msg_len as usize;
                 self.drops[i] = None;
-                let mut c = libc::CMSG_FIRSTHDR(&hdrs[i].msg_hdr);
+                let mut c = libc::CMSG_FIRSTHDR(&h.msg_hdr);
                 while !c.is_null() {
                     if (*c).cmsg_level == libc::SOL_SOCKET && (*c).cmsg_type == libc::SO_RXQ_OVFL {
                         self.drops[i] = Some(std::ptr::read_unaligned(libc::CMSG_DATA(c).cast::<u32>()));
                     }
-                    c = libc::CMSG_NXTHDR(&hdrs[i].msg_hdr, c);
+                    c = libc::CMSG_NXTHDR(&h.msg_hdr, c);
                 }
             }
             Ok(n)

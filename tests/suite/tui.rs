@@ -227,7 +227,7 @@ fn live_on_the_screens_with_a_receiver_unplugged() {
             let frame = slcan::encode(&CanFrame::Data(DataFrame::new(m.id, &data).unwrap()), None).unwrap();
             let mut k = 0u32;
             while !stop.load(Ordering::Relaxed) {
-                if k % 10 == 0
+                if k.is_multiple_of(10)
                     && let Some(g) = gnss.lock().unwrap().as_mut()
                 {
                     let s = nmea::sentence(&format!(

@@ -96,7 +96,7 @@ impl Sender {
             CanId::Standard(s) => u32::from(s),
             CanId::Extended(e) => e | CAN_EFF_FLAG,
         };
-        let n = match f {
+        match f {
             CanFrame::Data(d) => {
                 buf[..4].copy_from_slice(&id_word(d.id()).to_ne_bytes());
                 buf[4] = d.data().len() as u8;
@@ -121,8 +121,7 @@ impl Sender {
                 buf[8..8 + fd.data().len()].copy_from_slice(fd.data());
                 72
             }
-        };
-        n
+        }
     }
 }
 
