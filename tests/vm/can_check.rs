@@ -278,7 +278,7 @@ fn round_trip(termvel: &Path, all_ids: bool, c: &mut Checks) {
     for k in 0..20 {
         sent.push(message(&cfg, CanId::Standard(0x0C4), &[("vehicle.speed", 180.0 + k as f64), ("gearbox.gear", 5.0)]));
         if k % 4 == 0 {
-            sent.push(unmapped.clone());
+            sent.push(unmapped);
         }
     }
     sent.push(message(&cfg, CanId::Extended(0x18FEF100), &[("tyre.fl.temp", 85.0), ("tyre.fr.temp", 87.0)]));
@@ -304,7 +304,7 @@ fn round_trip(termvel: &Path, all_ids: bool, c: &mut Checks) {
         return;
     };
     let (got, _, malformed) = read_recording(&rec, "vcan0");
-    let want: Vec<CanFrame> = sent.iter().filter(|f| all_ids || **f != unmapped).cloned().collect();
+    let want: Vec<CanFrame> = sent.iter().filter(|f| all_ids || **f != unmapped).copied().collect();
     c.check(malformed == 0, format!("{label}: recording well formed ({malformed} malformed lines)"));
     c.check(
         got == want,
