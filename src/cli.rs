@@ -29,20 +29,56 @@ pub enum Command {
     /// Watch a run live from SocketCAN and serial inputs.
     Live(LiveArgs),
     /// Summarise a recorded run: peaks, derating, estimates, alerts, data quality.
-    Report(NotBuiltArgs),
+    Report(ReportArgs),
     /// Export every channel and derived quantity to CSV or Parquet.
-    Export(NotBuiltArgs),
+    Export(ExportArgs),
     /// Plan a run: predicted peak, best boost start, probabilities.
     Plan(PlanArgs),
     /// Validate config files and print what they define, without running anything.
     Check(CheckArgs),
 }
 
-/// Arguments of a command that is not built yet (accepted, then refused).
 #[derive(Args, Debug)]
-pub struct NotBuiltArgs {
-    #[arg(trailing_var_arg = true, allow_hyphen_values = true, hide = true)]
-    pub rest: Vec<String>,
+pub struct ReportArgs {
+    /// A termvel recording or a candump -L log; give a second to compare the two runs.
+    #[arg(required = true, num_args = 1..=2, value_name = "FILE")]
+    pub files: Vec<PathBuf>,
+    /// Print the summary as one JSON document (schema in the README).
+    #[arg(long)]
+    pub json: bool,
+    /// Write the plots (SVG and PNG) into this directory.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
+    /// Config files or directories to use instead of the recording's own (or the built-in demo set).
+    #[arg(long = "config", short = 'c', value_name = "PATH")]
+    pub config: Vec<PathBuf>,
+}
+
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
+pub enum ExportFormat {
+    Csv,
+    Parquet,
+}
+
+#[derive(Args, Debug)]
+pub struct ExportArgs {
+    /// A termvel recording or a candump -L log.
+    pub file: PathBuf,
+    /// Output format.
+    #[arg(long = "to", value_enum, value_name = "FORMAT")]
+    pub to: ExportFormat,
+    /// The file to write.
+    #[arg(long, value_name = "PATH")]
+    pub out: PathBuf,
+    /// Common time base: one row per tick at this rate (e.g. 50Hz, 10Hz).
+    #[arg(long, value_name = "RATE", default_value = "50Hz", value_parser = crate::report::export::parse_rate)]
+    pub rate: TimeNs,
+    /// Raw samples, long form (time, channel, value, unit, source, flag), instead of resampled columns; derived quantities come at --rate.
+    #[arg(long)]
+    pub long: bool,
+    /// Config files or directories to use instead of the recording's own (or the built-in demo set).
+    #[arg(long = "config", short = 'c', value_name = "PATH")]
+    pub config: Vec<PathBuf>,
 }
 
 /// Options every running command shares.

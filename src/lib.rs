@@ -24,6 +24,7 @@ pub mod live;
 pub mod planner;
 pub mod player;
 pub mod record;
+pub mod report;
 pub mod session;
 pub mod sim;
 pub mod sources;

@@ -14,6 +14,8 @@
 //!   once, garbage, a device unplugged and back, live against its replay.
 //! - `rehearsal`: injected faults raise the right alerts at the right time,
 //!   and the rehearsal's recording replays to the same alerts.
+//! - `report`: `termvel report` and `export` against python-can, pyarrow,
+//!   Python's csv module and the simulator's truth; plots; comparisons.
 //! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
 //! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
 //!   resizing, and the recording afterwards.
@@ -44,6 +46,8 @@ mod live_serial;
 mod recording;
 #[path = "suite/rehearsal.rs"]
 mod rehearsal;
+#[path = "suite/report.rs"]
+mod report;
 #[path = "suite/screens.rs"]
 mod screens;
 #[path = "suite/signals.rs"]

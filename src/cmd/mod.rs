@@ -1,20 +1,21 @@
 //! The commands: each turns parsed arguments into settings, runs, and maps
 //! the outcome to an exit code (0 success, 1 failure while running, 2
-//! unusable input or a command not built yet).
+//! unusable input).
 
 pub mod check;
+pub mod export;
 pub mod live;
 pub mod plan;
 pub mod rehearse;
 pub mod replay;
+pub mod report;
 pub mod session;
 
 use std::process::ExitCode;
 
 use crate::cli::{Cli, Command};
 
-/// Exit status for unusable input (bad config, unreadable file) and for
-/// commands not built yet.
+/// Exit status for unusable input (bad config, unreadable file).
 pub const EXIT_UNUSABLE: u8 = 2;
 
 /// Runs the command line.
@@ -25,8 +26,8 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Replay(a)) => replay::run(a),
         Some(Command::Rehearse(a)) => rehearse::run(a),
         Some(Command::Live(a)) => live::run(a),
-        Some(Command::Report(_)) => not_built("report"),
-        Some(Command::Export(_)) => not_built("export"),
+        Some(Command::Report(a)) => report::run(a),
+        Some(Command::Export(a)) => export::run(a),
         Some(Command::Plan(a)) => plan::run(a),
     };
     match result {
@@ -36,11 +37,6 @@ pub fn dispatch(cli: Cli) -> ExitCode {
             ExitCode::from(1)
         }
     }
-}
-
-fn not_built(what: &str) -> anyhow::Result<ExitCode> {
-    eprintln!("termvel: `{what}` is not built yet in this version; see the open issues.");
-    Ok(ExitCode::from(EXIT_UNUSABLE))
 }
 
 /// Prints a one-line reason and returns the unusable-input exit code.

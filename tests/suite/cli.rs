@@ -3,11 +3,15 @@
 use crate::util::{demo, stderr, stdout, termvel, write};
 
 #[test]
-fn commands_not_built_say_so_and_exit_2() {
-    for cmd in ["report", "export"] {
+fn commands_missing_their_arguments_show_their_usage_and_exit_2() {
+    for (cmd, usage) in [
+        ("report", "Usage: termvel report"),
+        ("export", "Usage: termvel export"),
+        ("live", "live needs at least one input"),
+    ] {
         let o = termvel(&[cmd]);
         assert_eq!(o.status.code(), Some(2), "{cmd}");
-        assert!(stderr(&o).contains("not built yet"), "{cmd}: {}", stderr(&o));
+        assert!(stderr(&o).contains(usage), "{cmd}: {}", stderr(&o));
     }
 }
 

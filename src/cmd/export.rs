@@ -1,0 +1,32 @@
+//! `termvel export FILE --to csv|parquet --out PATH`: channels and derived
+//! quantities for other tools.
+
+use std::process::ExitCode;
+
+use crate::cli::{ExportArgs, ExportFormat};
+use crate::report::export::{self, Format};
+
+pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
+    let format = match args.to {
+        ExportFormat::Csv => Format::Csv,
+        ExportFormat::Parquet => Format::Parquet,
+    };
+    let r = if args.long {
+        export::long(&args.file, &args.config, format, &args.out, args.rate)
+    } else {
+        export::resampled(&args.file, &args.config, format, &args.out, args.rate)
+    };
+    match r {
+        Ok(o) => {
+            eprintln!(
+                "termvel: {} rows × {} columns written to {} (config {})",
+                o.rows,
+                o.columns,
+                args.out.display(),
+                o.config_origin
+            );
+            Ok(ExitCode::SUCCESS)
+        }
+        Err(e) => super::unusable(e),
+    }
+}

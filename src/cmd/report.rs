@@ -1,0 +1,82 @@
+//! `termvel report FILE [B]`: the summary of a run (or two side by side),
+//! as text or JSON, and the plots.
+
+use std::io::IsTerminal;
+use std::process::ExitCode;
+
+use crate::cli::ReportArgs;
+use crate::report::{self, Run, Summary};
+
+/// Files smaller than this read too fast for a progress bar to help.
+const BAR_FROM_BYTES: u64 = 16 << 20;
+
+pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
+    let mut runs = Vec::new();
+    for f in &args.files {
+        let bar = std::io::stderr().is_terminal().then(|| {
+            let b = indicatif::ProgressBar::new(0);
+            b.set_style(
+                indicatif::ProgressStyle::with_template(
+                    "{msg} {wide_bar} {bytes}/{total_bytes} {bytes_per_sec} eta {eta}",
+                )
+                .expect("a valid template"),
+            );
+            b.set_message(format!("reading {}", f.display()));
+            b
+        });
+        let mut progress = |done: u64, size: u64| {
+            if let Some(b) = &bar
+                && size >= BAR_FROM_BYTES
+            {
+                b.set_length(size);
+                b.set_position(done);
+            }
+        };
+        let r = Run::read(f, &args.config, &mut progress);
+        if let Some(b) = bar {
+            b.finish_and_clear();
+        }
+        match r {
+            Ok(r) => runs.push(r),
+            Err(e) => return super::unusable(e),
+        }
+    }
+    let summaries: Vec<Summary> = runs.iter().map(Summary::of).collect();
+    for (r, s) in runs.iter().zip(&summaries) {
+        if let Some(line) = s.torn_tail_line {
+            eprintln!(
+                "termvel: {}: the last line ({line}) is torn (the recording was cut off); reported up to it",
+                r.file.display()
+            );
+        }
+        if r.malformed_lines > 0 {
+            eprintln!(
+                "termvel: {}: {} malformed lines skipped (first: {})",
+                r.file.display(),
+                r.malformed_lines,
+                r.first_malformed.as_deref().unwrap_or("?")
+            );
+        }
+    }
+    if args.json {
+        println!("{}", serde_json::to_string_pretty(&report::json(&summaries))?);
+    } else {
+        for s in &summaries {
+            println!("{}", report::text(s));
+        }
+        if let [a, b] = &summaries[..] {
+            println!("{}", report::comparison_text(a, b));
+        }
+    }
+    if let Some(dir) = &args.plots {
+        let pairs: Vec<(&Run, &Summary)> = runs.iter().zip(&summaries).collect();
+        match report::plots::write(dir, &pairs) {
+            Ok(files) => eprintln!("termvel: {} plots written to {}", files.len(), dir.display()),
+            Err(e) => {
+                eprintln!("termvel: {e}");
+                return Ok(ExitCode::from(1));
+            }
+        }
+    }
+    Ok(ExitCode::SUCCESS)
+}
