@@ -12,6 +12,25 @@
 //! termvel is advisory. It is not a safety system and not a braking cue of
 //! record; the run director, track officials and local rules decide.
 
+/// Prints a line to stderr, ignoring a closed stderr (`2>&1 | head`): a
+/// message that cannot be shown must not stop a session that records.
+#[macro_export]
+macro_rules! say {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr(), $($t)*);
+    }};
+}
+
+/// Prints a line to stdout, ignoring a closed stdout (`| head`).
+#[macro_export]
+macro_rules! out {
+    ($($t:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stdout(), $($t)*);
+    }};
+}
+
 pub mod channel;
 pub mod cli;
 pub mod cmd;

@@ -49,9 +49,9 @@ fn read_all(paths: &[PathBuf]) -> Result<Vec<(String, String)>, Vec<ConfigError>
 
 fn print_errors(errors: &[ConfigError]) -> anyhow::Result<ExitCode> {
     for e in errors {
-        println!("{e}");
+        crate::out!("{e}");
     }
-    println!("invalid: {} error{}", errors.len(), if errors.len() == 1 { "" } else { "s" });
+    crate::out!("invalid: {} error{}", errors.len(), if errors.len() == 1 { "" } else { "s" });
     Ok(ExitCode::from(super::EXIT_UNUSABLE))
 }
 

@@ -18,7 +18,7 @@ pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
     };
     match r {
         Ok(o) => {
-            eprintln!(
+            crate::say!(
                 "termvel: {} rows × {} columns written to {} (config {})",
                 o.rows,
                 o.columns,

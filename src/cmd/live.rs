@@ -26,7 +26,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         );
     }
     let config = if args.run.config.is_empty() {
-        eprintln!("termvel: no --config given: using the built-in demo set (its signal map decodes the demo car only)");
+        crate::say!(
+            "termvel: no --config given: using the built-in demo set (its signal map decodes the demo car only)"
+        );
         ConfigSet::embedded()
     } else {
         match ConfigSet::load(&args.run.config) {
@@ -61,7 +63,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         let dir = args.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
         match session::create_recording(&dir, "live", &config, &sources) {
             Ok((w, p)) => {
-                eprintln!("termvel: recording to {}", p.display());
+                crate::say!("termvel: recording to {}", p.display());
                 Some((w, p))
             }
             Err(e) => {
@@ -128,20 +130,21 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 out
             });
             let app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
-            if let Err(e) = crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
-                tracing::error!("screen: {e}");
+            match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
+                Ok(stats) => crate::say!("{}", stats.line()),
+                Err(e) => tracing::error!("screen: {e}"),
             }
             task.await.expect("the pipeline task")
         }
     });
-    eprintln!(
+    crate::say!(
         "termvel: live session ended ({}): {} events, {:.2} s of processor time",
         outcome.reason,
         outcome.events,
         live::cpu_seconds()
     );
     if let Some(p) = &outcome.recording {
-        eprintln!("termvel: recorded {} events to {}", outcome.recorded_events, p.display());
+        crate::say!("termvel: recorded {} events to {}", outcome.recorded_events, p.display());
     }
     Ok(ExitCode::SUCCESS)
 }

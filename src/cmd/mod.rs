@@ -33,7 +33,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
     match result {
         Ok(code) => code,
         Err(e) => {
-            eprintln!("termvel: {e:#}");
+            crate::say!("termvel: {e:#}");
             ExitCode::from(1)
         }
     }
@@ -41,6 +41,6 @@ pub fn dispatch(cli: Cli) -> ExitCode {
 
 /// Prints a one-line reason and returns the unusable-input exit code.
 pub fn unusable(reason: impl std::fmt::Display) -> anyhow::Result<ExitCode> {
-    eprintln!("termvel: {reason}");
+    crate::say!("termvel: {reason}");
     Ok(ExitCode::from(EXIT_UNUSABLE))
 }

@@ -78,14 +78,14 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
             },
             "caution": crate::CAUTION,
         });
-        println!("{}", serde_json::to_string_pretty(&out)?);
+        crate::out!("{}", serde_json::to_string_pretty(&out)?);
         return Ok(ExitCode::SUCCESS);
     }
 
     let target = kmh(track.target_speed_mps);
-    println!("plan: {}", plan.name);
-    println!("car: {}   course: {}   target {target:.0} km/h", veh.name, track.name);
-    println!(
+    crate::out!("plan: {}", plan.name);
+    crate::out!("car: {}   course: {}   target {target:.0} km/h", veh.name, track.name);
+    crate::out!(
         "conditions: {:.1} °C, {:.0} hPa, {:.0} % RH → air {rho:.4} kg/m³; headwind {:.1} m/s; charge {:.0} %",
         plan.ambient.temp_c,
         plan.ambient.pressure_pa / 100.0,
@@ -93,27 +93,27 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
         plan.ambient.headwind_mps,
         plan.car.soc_start * 100.0
     );
-    println!(
+    crate::out!(
         "model: the vehicle file's drag area {:.3} m², Crr {:.4}, derating τ {:.0} s to {:.0} %",
         c.cda_m2,
         c.crr0,
         c.derate_tau_s,
         c.derate_floor * 100.0
     );
-    println!();
+    crate::out!();
     let verdict = |r: &RunResult| match r.target {
         Some((t, x)) => format!("target reached at {:.2} km, {t:.1} s after the launch", x / 1000.0),
         None => format!("target not reached (short by {:.1} km/h)", target - kmh(r.peak_mps)),
     };
-    println!("as planned (boost {planned_boost}, brake at {:.0} m):", plan.driver.brake_at_m);
-    println!(
+    crate::out!("as planned (boost {planned_boost}, brake at {:.0} m):", plan.driver.brake_at_m);
+    crate::out!(
         "  peak {:.1} km/h at {:.2} km, {:.1} s after the launch; {}",
         kmh(planned.peak_mps),
         planned.peak_at_m / 1000.0,
         planned.peak_t_s,
         verdict(&planned)
     );
-    println!(
+    crate::out!(
         "  braking there from {:.1} km/h needs {:.0} m: {}",
         kmh(planned.brake_speed_mps),
         planned.stopping_m,
@@ -126,14 +126,14 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
             )
         }
     );
-    println!(
+    crate::out!(
         "  the latest braking point at full demand: {:.2} km (peak {:.1} km/h there)",
         latest.brake_at_m / 1000.0,
         kmh(latest.peak_mps)
     );
-    println!("  without boost: peak {:.1} km/h", kmh(no_boost.peak_mps));
-    println!();
-    println!(
+    crate::out!("  without boost: peak {:.1} km/h", kmh(no_boost.peak_mps));
+    crate::out!();
+    crate::out!(
         "best boost start: at {:.2} km (at {:.0} km/h): peak {:.1} km/h ({:+.1} km/h on the plan); {}",
         best_m / 1000.0,
         kmh(best.boost_from_mps.unwrap_or(0.0)),
@@ -141,7 +141,7 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
         kmh(best.peak_mps - planned.peak_mps),
         verdict(&best)
     );
-    println!();
+    crate::out!();
     let u = &plan.uncertainty;
     let mut over = Vec::new();
     let range = |name: &str, r: Option<(f64, f64)>, unit: &str, digits: usize| {
@@ -161,16 +161,16 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
     {
         over.push(s);
     }
-    println!(
+    crate::out!(
         "Monte Carlo: {} trials (seed {}, {:.2} s) with the best boost start, over {}",
         mc.trials,
         mc.seed,
         mc_s,
         if over.is_empty() { "nothing (no ranges in the plan)".into() } else { over.join(", ") }
     );
-    println!("  probability of reaching {target:.0} km/h: {:.1} %", mc.p_target * 100.0);
+    crate::out!("  probability of reaching {target:.0} km/h: {:.1} %", mc.p_target * 100.0);
     let p = mc.peak_percentiles;
-    println!(
+    crate::out!(
         "  peak speed, km/h: 5 % {:.1} · 25 % {:.1} · median {:.1} · 75 % {:.1} · 95 % {:.1}",
         kmh(p[0]),
         kmh(p[1]),
@@ -178,14 +178,14 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
         kmh(p[3]),
         kmh(p[4])
     );
-    println!(
+    crate::out!(
         "  probability of passing the stop-by point above {:.0} km/h when braking at {:.0} m: {:.1} %",
         kmh(track.exit_speed_mps),
         plan.driver.brake_at_m,
         mc.p_overrun * 100.0
     );
-    println!();
-    println!("{}", crate::CAUTION);
-    println!("A plan is a model: check it against the run director's limits and the track's own figures.");
+    crate::out!();
+    crate::out!("{}", crate::CAUTION);
+    crate::out!("A plan is a model: check it against the run director's limits and the track's own figures.");
     Ok(ExitCode::SUCCESS)
 }

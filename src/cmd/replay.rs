@@ -40,7 +40,7 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
         Ok(c) => c,
         Err(e) => return super::unusable(e),
     };
-    eprintln!("termvel: replaying {} with config {origin}", args.file.display());
+    crate::say!("termvel: replaying {} with config {origin}", args.file.display());
     let speed = if args.as_fast_as_possible { Some(f64::INFINITY) } else { args.speed };
     let spec = SessionSpec {
         mode: Mode::Replay { file: args.file.display().to_string() },

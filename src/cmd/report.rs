@@ -44,13 +44,13 @@ pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
     let summaries: Vec<Summary> = runs.iter().map(Summary::of).collect();
     for (r, s) in runs.iter().zip(&summaries) {
         if let Some(line) = s.torn_tail_line {
-            eprintln!(
+            crate::say!(
                 "termvel: {}: the last line ({line}) is torn (the recording was cut off); reported up to it",
                 r.file.display()
             );
         }
         if r.malformed_lines > 0 {
-            eprintln!(
+            crate::say!(
                 "termvel: {}: {} malformed lines skipped (first: {})",
                 r.file.display(),
                 r.malformed_lines,
@@ -59,21 +59,21 @@ pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
         }
     }
     if args.json {
-        println!("{}", serde_json::to_string_pretty(&report::json(&summaries))?);
+        crate::out!("{}", serde_json::to_string_pretty(&report::json(&summaries))?);
     } else {
         for s in &summaries {
-            println!("{}", report::text(s));
+            crate::out!("{}", report::text(s));
         }
         if let [a, b] = &summaries[..] {
-            println!("{}", report::comparison_text(a, b));
+            crate::out!("{}", report::comparison_text(a, b));
         }
     }
     if let Some(dir) = &args.plots {
         let pairs: Vec<(&Run, &Summary)> = runs.iter().zip(&summaries).collect();
         match report::plots::write(dir, &pairs) {
-            Ok(files) => eprintln!("termvel: {} plots written to {}", files.len(), dir.display()),
+            Ok(files) => crate::say!("termvel: {} plots written to {}", files.len(), dir.display()),
             Err(e) => {
-                eprintln!("termvel: {e}");
+                crate::say!("termvel: {e}");
                 return Ok(ExitCode::from(1));
             }
         }

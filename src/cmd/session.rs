@@ -40,7 +40,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Resul
         let dir = spec.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
         match session::create_recording(&dir, spec.command, &spec.config, src.sources()) {
             Ok((w, p)) => {
-                eprintln!("termvel: recording to {}", p.display());
+                crate::say!("termvel: recording to {}", p.display());
                 Some((w, p))
             }
             Err(e) => {
@@ -109,7 +109,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Resul
         (ui_result, outcome)
     });
     let (ui_result, outcome) = outcome;
-    ui_result?;
+    crate::say!("{}", ui_result?.line());
     match outcome {
         Ok(Ok(Ok(o))) => finish(&spec, &o),
         Ok(Ok(Err(e))) => Err(anyhow::anyhow!(e)),
@@ -129,7 +129,7 @@ fn finish(spec: &SessionSpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
         }
     }
     if let Some(p) = &o.recording {
-        eprintln!("termvel: recorded {} events to {}", o.recorded_events, p.display());
+        crate::say!("termvel: recorded {} events to {}", o.recorded_events, p.display());
     }
     Ok(ExitCode::SUCCESS)
 }
@@ -160,13 +160,42 @@ pub fn summarise(o: &PlayerOutcome) -> Summary {
 pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
     let st = &o.read_stats;
     for e in st.errors.iter().take(10) {
-        eprintln!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
+        crate::say!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
     }
     if st.malformed > 10 {
-        eprintln!("termvel: … and {} more malformed lines", st.malformed - 10);
+        crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
+    }
+    if let Some((line, back)) = st.first_reversal {
+        crate::say!(
+            "termvel: {}:{line}: time goes back {:.3} s from the event before ({} such events in all); events are applied in file order",
+            file.display(),
+            back as f64 * 1e-9,
+            st.time_reversals
+        );
+    }
+    // Lines a source sent that did not parse (counted, alerted, kept in
+    // the recording) and derived values that were not finite.
+    for (id, s) in o.sources.iter() {
+        let d = o.engine.decoder.source_stats(id);
+        if d.parse_errors > 0 {
+            crate::say!(
+                "termvel: {}: {} bad lines from {} (last: {})",
+                file.display(),
+                d.parse_errors,
+                s.name,
+                d.last_error.unwrap_or_default()
+            );
+        }
+    }
+    if o.engine.counters.rejected_values > 0 {
+        crate::say!(
+            "termvel: {}: {} derived values were not finite and were rejected (not shown, not used)",
+            file.display(),
+            o.engine.counters.rejected_values
+        );
     }
     if let Some(t) = &st.torn_tail {
-        eprintln!(
+        crate::say!(
             "termvel: {}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss); everything before it was replayed",
             file.display(),
             t.line,

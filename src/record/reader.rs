@@ -58,6 +58,8 @@ pub struct ReadStats {
     pub torn_tail: Option<TornTail>,
     /// Times an event's timestamp was earlier than the one before it.
     pub time_reversals: u64,
+    /// The first of them: its line, and how far back it went (ns).
+    pub first_reversal: Option<(u64, TimeNs)>,
 }
 
 impl ReadStats {
@@ -331,6 +333,9 @@ impl<R: Read> RecordingReader<R> {
                         && ev.t_ns < p
                     {
                         self.stats.time_reversals += 1;
+                        if self.stats.first_reversal.is_none() {
+                            self.stats.first_reversal = Some((self.line_no, p - ev.t_ns));
+                        }
                     }
                     self.prev_t = Some(ev.t_ns);
                     self.stats.events += 1;

@@ -36,3 +36,57 @@ pub fn write_demo_recording<W: Write>(out: W) -> io::Result<u64> {
     w.flush()?;
     Ok(w.events())
 }
+
+/// Writes a long recording of a saturated bus for load, soak and scale
+/// tests: the demo run (rehearsed in memory) over and over, shifted in
+/// time, for `seconds` of stream, filled up to `frames_per_s` with frames of
+/// ids the demo signal map does not decode (0x700 to 0x70F, a counter in the
+/// data). Returns the events written.
+pub fn write_saturated_recording<W: Write>(out: W, seconds: i64, frames_per_s: i64) -> io::Result<u64> {
+    use crate::event::{CanFrame, CanId, DataFrame, Event, Payload, SourceKind};
+    use crate::record::{RecordingReader, RecordingWriter};
+
+    let mut demo = Vec::new();
+    write_demo_recording(&mut demo)?;
+    let mut r = RecordingReader::new(&demo[..], "demo").map_err(|e| io::Error::other(e.to_string()))?;
+    let mut events = Vec::new();
+    while let Some(ev) = r.next_event() {
+        if !matches!(ev.payload, Payload::Note(_)) {
+            events.push(ev);
+        }
+    }
+    let header = r.header.clone();
+    let mut sources = header.sources.clone();
+    let can = sources.intern("can0", SourceKind::Can);
+    let (t0, t1) = (events[0].t_ns, events.last().map_or(0, |e| e.t_ns));
+    let lap = t1 - t0 + 1_000_000;
+    let mut w = RecordingWriter::new(io::BufWriter::with_capacity(1 << 22, out), &header)?;
+    let mut n = 0u64;
+    let mut filler_t = t0;
+    let filler_step = NS_PER_S / frames_per_s.max(1);
+    let end = t0 + seconds * NS_PER_S;
+    let mut shift = 0;
+    'laps: loop {
+        for ev in &events {
+            let t = ev.t_ns + shift;
+            if t >= end {
+                break 'laps;
+            }
+            while filler_t < t {
+                let f = CanFrame::Data(
+                    DataFrame::new(CanId::Standard(0x700 + (n % 16) as u16), &n.to_le_bytes()).expect("8 bytes"),
+                );
+                w.write_event(&Event::new(filler_t, can, Payload::Can(f)), &sources)?;
+                filler_t += filler_step;
+                n += 1;
+            }
+            let mut e = ev.clone();
+            e.t_ns = t;
+            w.write_event(&e, &sources)?;
+            n += 1;
+        }
+        shift += lap;
+    }
+    w.flush()?;
+    Ok(n)
+}

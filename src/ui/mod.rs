@@ -116,6 +116,28 @@ impl Drop for TerminalGuard {
     }
 }
 
+/// How the screens kept up: frames drawn, over how long, and the longest
+/// time between two frames.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct DrawStats {
+    pub frames: u64,
+    pub seconds: f64,
+    pub longest_gap_s: f64,
+}
+
+impl DrawStats {
+    /// One line for stderr after the screens close.
+    pub fn line(&self) -> String {
+        format!(
+            "termvel: screens drew {} frames in {:.1} s ({:.1} per s; longest gap {:.0} ms)",
+            self.frames,
+            self.seconds,
+            if self.seconds > 0.0 { self.frames as f64 / self.seconds } else { 0.0 },
+            self.longest_gap_s * 1000.0
+        )
+    }
+}
+
 /// Runs the screens until the user quits, a signal arrives or (when
 /// `quit_when_done`) the player ends. `frames` carries the player's
 /// snapshots; `controls` goes to the player.
@@ -125,8 +147,11 @@ pub async fn run(
     controls: mpsc::Sender<crate::player::Control>,
     latency: LatencyHistogram,
     mut player_done: tokio::sync::oneshot::Receiver<()>,
-) -> std::io::Result<()> {
+) -> std::io::Result<DrawStats> {
     let mut terminal = ratatui::init();
+    let started = std::time::Instant::now();
+    let mut stats = DrawStats::default();
+    let mut last_draw: Option<std::time::Instant> = None;
     let _guard = TerminalGuard;
     let mut term_events = EventStream::new();
     let mut ticker = tokio::time::interval(frame_interval());
@@ -158,7 +183,8 @@ pub async fn run(
                     match action {
                         Action::Quit => {
                             let _ = controls.try_send(crate::player::Control::Quit);
-                            return Ok(());
+                            stats.seconds = started.elapsed().as_secs_f64();
+                            return Ok(stats);
                         }
                         Action::Player(c) => {
                             let _ = controls.try_send(c);
@@ -173,6 +199,12 @@ pub async fn run(
                 app.on_tick();
                 app.latency = read_latency(&latency);
                 terminal.draw(|f| draw(f, &app))?;
+                let now = std::time::Instant::now();
+                if let Some(prev) = last_draw {
+                    stats.longest_gap_s = stats.longest_gap_s.max((now - prev).as_secs_f64());
+                }
+                last_draw = Some(now);
+                stats.frames += 1;
             }
             UiEvent::Data => {
                 let latest = frames.borrow_and_update().clone();
@@ -183,7 +215,8 @@ pub async fn run(
             UiEvent::Signal(why) => {
                 tracing::info!("leaving on {why}");
                 let _ = controls.try_send(crate::player::Control::Quit);
-                return Ok(());
+                stats.seconds = started.elapsed().as_secs_f64();
+                return Ok(stats);
             }
             UiEvent::PlayerDone => {
                 done = true;
