@@ -294,7 +294,21 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Plan> {
             };
             let secs = days * 86_400 + t.hour as i64 * 3600 + t.minute as i64 * 60 + t.second.unwrap_or(0) as i64
                 - offset_min * 60;
-            secs * 1_000_000_000 + t.nanosecond.unwrap_or(0) as i64
+            // The stream clock counts nanoseconds since 1970 in an i64,
+            // which ends in 2262; a plan starts before 2200 so that the run
+            // and anything added to its times stay well inside it.
+            let ns = secs.checked_mul(1_000_000_000).and_then(|ns| ns.checked_add(t.nanosecond.unwrap_or(0) as i64));
+            match ns {
+                Some(ns) if (0..days_from_civil(2200, 1, 1) * 86_400 * 1_000_000_000).contains(&ns) => ns,
+                _ => {
+                    ctx.err(
+                        raw.start.span(),
+                        "start",
+                        "expected a date and time from 1970 to 2199 (the stream clock counts nanoseconds from 1970)",
+                    );
+                    0
+                }
+            }
         }
         _ => {
             ctx.err(raw.start.span(), "start", "expected a date and time, e.g. 2026-03-14T07:30:00Z");
