@@ -11,14 +11,16 @@
 #[path = "../tests/suite/pty.rs"]
 #[allow(dead_code)]
 mod pty;
+#[path = "../tests/suite/sequence.rs"]
+#[allow(dead_code)]
+mod sequence;
 
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
 use termvel::config::ConfigSet;
-use termvel::decode::slcan;
 use termvel::engine::{Engine, EngineOptions, Snapshot};
-use termvel::event::{CanFrame, CanId, DataFrame, SourceKind, SourceTable};
+use termvel::event::{SourceKind, SourceTable};
 use termvel::live::{Pipeline, run};
 use termvel::player::PlayerStatus;
 use termvel::sources::live::{INPUT_CAPACITY, SessionClock};
@@ -64,9 +66,7 @@ fn case(rate: u64, secs: u64) -> Case {
             let due = start.elapsed().as_nanos() as u64 * rate / 1_000_000_000;
             buf.clear();
             while sent < due {
-                let f = CanFrame::Data(DataFrame::new(CanId::Standard(0x5F0), &sent.to_le_bytes()).unwrap());
-                buf.push_str(&slcan::encode(&f, None).unwrap());
-                buf.push('\r');
+                sequence::push_slcan(&mut buf, 0x5F0, sent);
                 sent += 1;
             }
             adapter.send(buf.as_bytes());

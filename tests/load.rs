@@ -12,6 +12,8 @@
 
 #[path = "suite/pty.rs"]
 mod pty;
+#[path = "suite/sequence.rs"]
+mod sequence;
 
 use std::io::{BufRead, BufReader, Read};
 use std::process::{Command, Stdio};
@@ -91,9 +93,7 @@ fn an_adapter_at_ten_times_a_saturated_bus_loses_nothing() {
                 buf.push_str(&pt_line);
                 others += 1;
             } else {
-                let f = CanFrame::Data(DataFrame::new(CanId::Standard(SEQ_ID), &seq.to_le_bytes()).unwrap());
-                buf.push_str(&slcan::encode(&f, None).unwrap());
-                buf.push('\r');
+                sequence::push_slcan(&mut buf, SEQ_ID, seq);
                 seq += 1;
             }
         }
@@ -110,20 +110,16 @@ fn an_adapter_at_ten_times_a_saturated_bus_loses_nothing() {
 
     let rec = std::fs::read_dir(dir.path()).unwrap().next().unwrap().unwrap().path();
     let mut r = RecordingReader::open(&rec).unwrap();
-    let (mut expect, mut missing, mut pt_frames) = (0u64, 0u64, 0u64);
-    while let Some(ev) = r.next_event() {
-        if let Payload::Can(CanFrame::Data(d)) = &ev.payload {
-            if d.id() == CanId::Standard(SEQ_ID) {
-                let n = u64::from_le_bytes(d.data().try_into().unwrap());
-                assert!(n >= expect, "frame {n} after {}: out of order", expect.saturating_sub(1));
-                missing += n - expect;
-                expect = n + 1;
-            } else if d.id() == pt.id {
-                pt_frames += 1;
-            }
+    let mut pt_frames = 0u64;
+    let count = sequence::count(&mut r, SEQ_ID, seq, |p| {
+        if let Payload::Can(CanFrame::Data(d)) = p
+            && d.id() == pt.id
+        {
+            pt_frames += 1;
         }
-    }
-    missing += seq - expect;
+    });
+    let (expect, missing) = (count.next, count.missing);
+    assert_eq!(count.out_of_order, 0, "sequence frames out of order");
     let summary: Value = lines
         .iter()
         .rev()

@@ -15,14 +15,14 @@
 
 #[path = "suite/pty.rs"]
 mod pty;
+#[path = "suite/sequence.rs"]
+mod sequence;
 #[path = "suite/tmux.rs"]
 mod tmux;
 
 use std::process::{Command, Stdio};
 use std::time::{Duration, Instant};
 
-use termvel::decode::slcan;
-use termvel::event::{CanFrame, CanId, DataFrame, Payload};
 use termvel::record::RecordingReader;
 
 fn env_secs(name: &str, default: u64) -> u64 {
@@ -85,9 +85,7 @@ fn the_screens_at_ten_times_a_saturated_bus() {
         let due = (now - start).as_nanos() as u64 * RATE / 1_000_000_000;
         buf.clear();
         while seq < due {
-            let f = CanFrame::Data(DataFrame::new(CanId::Standard(0x5F0), &seq.to_le_bytes()).unwrap());
-            buf.push_str(&slcan::encode(&f, None).unwrap());
-            buf.push('\r');
+            sequence::push_slcan(&mut buf, 0x5F0, seq);
             seq += 1;
         }
         adapter.send(buf.as_bytes());
@@ -105,17 +103,7 @@ fn the_screens_at_ten_times_a_saturated_bus() {
         line.split('(').nth(1).and_then(|r| r.split_whitespace().next()).and_then(|x| x.parse().ok()).unwrap();
     let rec = std::fs::read_dir(dir.path()).unwrap().next().unwrap().unwrap().path();
     let mut r = RecordingReader::open(&rec).unwrap();
-    let (mut expect, mut missing) = (0u64, 0u64);
-    while let Some(ev) = r.next_event() {
-        if let Payload::Can(CanFrame::Data(d)) = &ev.payload
-            && d.id() == CanId::Standard(0x5F0)
-        {
-            let n = u64::from_le_bytes(d.data().try_into().unwrap());
-            missing += n.saturating_sub(expect);
-            expect = n + 1;
-        }
-    }
-    missing += seq - expect;
+    let missing = sequence::count(&mut r, 0x5F0, seq, |_| {}).missing;
     let rate = seq as f64 / elapsed;
     eprintln!(
         "soak (screens, {secs} s): {seq} frames at {rate:.0}/s, {missing} missing; {line}; RSS MiB every 2 s: {}",

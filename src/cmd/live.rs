@@ -6,7 +6,7 @@ use std::sync::Arc;
 
 use tokio::sync::{mpsc, oneshot, watch};
 
-use super::session::{JsonPrinter, UiSink, init_log_file};
+use super::session::{JsonPrinter, UiSink, init_log_file, start_recording};
 use crate::cli::LiveArgs;
 use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
@@ -14,7 +14,6 @@ use crate::event::{CanId, SourceKind, SourceTable};
 use crate::headless::Summary;
 use crate::live::{self, LiveOutcome, Pipeline};
 use crate::player::Control;
-use crate::session;
 use crate::sources::live::{INPUT_CAPACITY, SessionClock};
 use crate::sources::{serial, socketcan};
 use crate::ui::app::{App, Mode, SessionInfo};
@@ -57,22 +56,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
-    let recorder = if args.run.no_record {
-        None
-    } else {
-        let dir = args.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
-        match session::create_recording(&dir, "live", &config, &sources) {
-            Ok((w, p)) => {
-                crate::say!("termvel: recording to {}", p.display());
-                Some((w, p))
-            }
-            Err(e) => {
-                return super::unusable(format!(
-                    "cannot create a recording in {}: {e} (use --no-record or --record-dir)",
-                    dir.display()
-                ));
-            }
-        }
+    let recorder = match start_recording(&args.run, "live", &config, &sources) {
+        Ok(r) => r,
+        Err(reason) => return super::unusable(reason),
     };
     let _log = if args.run.headless { None } else { init_log_file() };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;

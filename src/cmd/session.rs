@@ -2,6 +2,7 @@
 //! screens or headless, recording unless told not to. Shared by `replay`
 //! and `rehearse`.
 
+use std::fs::File;
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -12,8 +13,10 @@ use tokio::sync::{mpsc, oneshot, watch};
 use crate::cli::RunOpts;
 use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions, Snapshot};
+use crate::event::SourceTable;
 use crate::headless::{Summary, snapshot_json};
 use crate::player::{self, EventSource, PlayerOptions, PlayerOutcome, PlayerStatus, SnapshotSink};
+use crate::record::RecordingWriter;
 use crate::session;
 use crate::ui;
 use crate::ui::app::{App, Mode, SessionInfo, UiFrame};
@@ -32,24 +35,33 @@ pub struct SessionSpec {
     pub file: Option<PathBuf>,
 }
 
+/// The session's recording as `--no-record` and `--record-dir` ask (`None`
+/// when not recording), its path said on stderr; `Err` is the one-line
+/// reason when the file cannot be made. `command` is the word in its name.
+pub fn start_recording(
+    run: &RunOpts,
+    command: &str,
+    config: &ConfigSet,
+    sources: &SourceTable,
+) -> Result<Option<(RecordingWriter<File>, PathBuf)>, String> {
+    if run.no_record {
+        return Ok(None);
+    }
+    let dir = run.record_dir.clone().unwrap_or_else(session::default_record_dir);
+    match session::create_recording(&dir, command, config, sources) {
+        Ok((w, p)) => {
+            crate::say!("termvel: recording to {}", p.display());
+            Ok(Some((w, p)))
+        }
+        Err(e) => Err(format!("cannot create a recording in {}: {e} (use --no-record or --record-dir)", dir.display())),
+    }
+}
+
 /// Runs `src` to its end (headless) or until the user quits (screens).
 pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Result<ExitCode> {
-    let recorder = if spec.run.no_record {
-        None
-    } else {
-        let dir = spec.run.record_dir.clone().unwrap_or_else(session::default_record_dir);
-        match session::create_recording(&dir, spec.command, &spec.config, src.sources()) {
-            Ok((w, p)) => {
-                crate::say!("termvel: recording to {}", p.display());
-                Some((w, p))
-            }
-            Err(e) => {
-                return super::unusable(format!(
-                    "cannot create a recording in {}: {e} (use --no-record or --record-dir)",
-                    dir.display()
-                ));
-            }
-        }
+    let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
+        Ok(r) => r,
+        Err(reason) => return super::unusable(reason),
     };
     let opts = EngineOptions { snapshot_every_ns: spec.run.every };
     let make_engine = {

@@ -17,6 +17,7 @@ use std::path::{Path, PathBuf};
 use std::sync::Once;
 
 use plotters::coord::Shift;
+use plotters::coord::types::RangedCoordf64;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 
@@ -63,6 +64,27 @@ fn range(values: impl Iterator<Item = f64>, from_zero: bool) -> std::ops::Range<
     (if from_zero && lo >= 0.0 { lo } else { lo - pad })..hi + pad
 }
 
+/// A chart in the plots' coordinates: f64 on both axes.
+type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoordf64>>;
+
+/// The grid and the two axis titles (light lines left out: they blur in
+/// black and white).
+fn axes<DB: DrawingBackend>(chart: &mut Chart<'_, DB>, x: &str, y: &str) -> Res {
+    chart.configure_mesh().x_desc(x).y_desc(y).light_line_style(WHITE.mix(0.0)).draw().map_err(err)
+}
+
+/// The legend box, where the plot leaves room for it.
+fn legend<'a, DB: DrawingBackend + 'a>(chart: &mut Chart<'a, DB>, at: SeriesLabelPosition) -> Res {
+    chart
+        .configure_series_labels()
+        .position(at)
+        .background_style(WHITE.mix(0.9))
+        .border_style(BLACK)
+        .label_font((FONT, 14))
+        .draw()
+        .map_err(err)
+}
+
 fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&Run, &Summary)]) -> Res {
     area.fill(&WHITE).map_err(err)?;
     let xs = range(runs.iter().flat_map(|(r, _)| r.rows.iter().map(|x| x.distance_m / 1000.0)), true);
@@ -78,13 +100,7 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
         .y_label_area_size(65)
         .build_cartesian_2d(xs.clone(), ys.clone())
         .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc("distance, km")
-        .y_desc("speed, km/h")
-        .light_line_style(WHITE.mix(0.0))
-        .draw()
-        .map_err(err)?;
+    axes(&mut chart, "distance, km", "speed, km/h")?;
     let styles = [BLACK.stroke_width(2), DARK_BLUE.stroke_width(2)];
     for (i, (run, _)) in runs.iter().enumerate() {
         let pts: Vec<(f64, f64)> =
@@ -136,14 +152,7 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
             .label("braking began (triangle)")
             .legend(|(x, y)| TriangleMarker::new((x + 8, y), 6, BLACK.filled()));
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperLeft)
-        .background_style(WHITE.mix(0.9))
-        .border_style(BLACK)
-        .label_font((FONT, 14))
-        .draw()
-        .map_err(err)?;
+    legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
     Ok(())
 }
 
@@ -201,13 +210,7 @@ fn power_speed<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: 
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..vmax * 3.6, ys)
         .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc("speed, km/h")
-        .y_desc("power, kW")
-        .light_line_style(WHITE.mix(0.0))
-        .draw()
-        .map_err(err)?;
+    axes(&mut chart, "speed, km/h", "power, kW")?;
     let every = (demand.len() / 1500).max(1);
     chart
         .draw_series(demand.iter().step_by(every).map(|p| Circle::new(*p, 2, GREY.stroke_width(1))))
@@ -230,14 +233,7 @@ fn power_speed<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: 
         .map_err(err)?
         .label(format!("road load, vehicle file: CdA {:.3} m², Crr {:.4} (dashed)", veh.cda_m2, veh.crr0))
         .legend(|(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 7, 4, BLACK.stroke_width(1)));
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::UpperLeft)
-        .background_style(WHITE.mix(0.9))
-        .border_style(BLACK)
-        .label_font((FONT, 14))
-        .draw()
-        .map_err(err)?;
+    legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
     Ok(())
 }
 
@@ -258,13 +254,7 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..tmax * 1.02, ys)
         .map_err(err)?;
-    chart
-        .configure_mesh()
-        .x_desc("time in boost, s")
-        .y_desc("power, kW")
-        .light_line_style(WHITE.mix(0.0))
-        .draw()
-        .map_err(err)?;
+    axes(&mut chart, "time in boost, s", "power, kW")?;
     chart
         .draw_series(power.iter().map(|p| Circle::new(*p, 2, GREY.stroke_width(1))))
         .map_err(err)?
@@ -295,14 +285,7 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
             .label(format!("fit: {:.3} + {:.3}·e^(−t/{:.1} s) of rated, R² {:.3}", d.floor, d.amplitude, d.tau_s, d.r2))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLACK.stroke_width(2)));
     }
-    chart
-        .configure_series_labels()
-        .position(SeriesLabelPosition::LowerLeft)
-        .background_style(WHITE.mix(0.9))
-        .border_style(BLACK)
-        .label_font((FONT, 14))
-        .draw()
-        .map_err(err)?;
+    legend(&mut chart, SeriesLabelPosition::LowerLeft)?;
     Ok(())
 }
 
@@ -327,12 +310,7 @@ fn charge_temperature<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &R
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..tmax, range(temp.iter().map(|p| p.1), false))
         .map_err(err)?;
-    c.configure_mesh()
-        .x_desc("time from the start of the recording, s")
-        .y_desc("pack temperature, °C")
-        .light_line_style(WHITE.mix(0.0))
-        .draw()
-        .map_err(err)?;
+    axes(&mut c, "time from the start of the recording, s", "pack temperature, °C")?;
     c.draw_series(LineSeries::new(temp, BLACK.stroke_width(2))).map_err(err)?;
     Ok(())
 }

@@ -99,6 +99,19 @@ impl Link {
         self.tx.send(Event::new(self.clock.now_ns(), self.source, Payload::Link(state, reason.into()))).await.is_ok()
     }
 
+    /// Reports `state` for `reason` (a source that failed or went away),
+    /// then waits out the next back-off: true when the source should end
+    /// instead of trying again (shutdown, or the pipeline is gone).
+    pub async fn wait_to_retry(
+        &mut self,
+        state: LinkState,
+        reason: impl Into<String>,
+        backoff: &mut Backoff,
+        stop: &mut Shutdown,
+    ) -> bool {
+        !self.set(state, reason).await || sleep_or_stop(backoff.next_wait(), stop).await
+    }
+
     /// Sends an event; false when the pipeline is gone.
     pub async fn send(&self, ev: Event) -> bool {
         self.tx.send(ev).await.is_ok()

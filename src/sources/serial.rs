@@ -11,7 +11,7 @@ use std::str::FromStr;
 
 use tokio::io::{AsyncReadExt, AsyncWriteExt};
 
-use super::live::{Backoff, EventSender, Link, SessionClock, Shutdown, sleep_or_stop};
+use super::live::{Backoff, EventSender, Link, SessionClock, Shutdown};
 use crate::decode::slcan::{self, SlcanMsg};
 use crate::event::{Event, LinkState, Payload, SourceId, SourceKind};
 
@@ -178,7 +178,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
                 } else {
                     format!("cannot open {}: {e}", spec.path)
                 };
-                if !link.set(LinkState::Retrying, why).await || sleep_or_stop(backoff.next_wait(), &mut stop).await {
+                if link.wait_to_retry(LinkState::Retrying, why, &mut backoff, &mut stop).await {
                     return;
                 }
                 continue;
@@ -189,9 +189,8 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
             // a bit rate change), then set the bit rate and open.
             let cmds = slcan::open_commands(spec.can_bitrate).unwrap_or_default();
             if let Err(e) = AsyncWriteExt::write_all(&mut port, &cmds).await {
-                if !link.set(LinkState::Retrying, format!("{}: cannot open the CAN channel: {e}", spec.path)).await
-                    || sleep_or_stop(backoff.next_wait(), &mut stop).await
-                {
+                let why = format!("{}: cannot open the CAN channel: {e}", spec.path);
+                if link.wait_to_retry(LinkState::Retrying, why, &mut backoff, &mut stop).await {
                     return;
                 }
                 continue;
@@ -228,7 +227,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
             }
         };
         drop(port);
-        if !link.set(LinkState::Down, reason).await || sleep_or_stop(backoff.next_wait(), &mut stop).await {
+        if link.wait_to_retry(LinkState::Down, reason, &mut backoff, &mut stop).await {
             return;
         }
     }

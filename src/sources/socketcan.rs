@@ -202,8 +202,7 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
         // An interface that is there but down binds without complaint and
         // then fails every read: wait for it to come up instead.
         if iface_up(&spec.iface) == Some(false) {
-            if !link.set(LinkState::Retrying, format!("{} is down", spec.iface)).await
-                || sleep_or_stop(backoff.next_wait(), &mut stop).await
+            if link.wait_to_retry(LinkState::Retrying, format!("{} is down", spec.iface), &mut backoff, &mut stop).await
             {
                 return;
             }
@@ -214,8 +213,14 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
             Err(e) => {
                 // Missing at the start or gone since: retrying either way
                 // (the source-down alert covers both).
-                if !link.set(LinkState::Retrying, format!("cannot open {}: {e}", spec.iface)).await
-                    || sleep_or_stop(backoff.next_wait(), &mut stop).await
+                if link
+                    .wait_to_retry(
+                        LinkState::Retrying,
+                        format!("cannot open {}: {e}", spec.iface),
+                        &mut backoff,
+                        &mut stop,
+                    )
+                    .await
                 {
                     return;
                 }
@@ -239,8 +244,14 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
         let sock = match setup {
             Ok(s) => s,
             Err(e) => {
-                if !link.set(LinkState::Retrying, format!("cannot set up {}: {e}", spec.iface)).await
-                    || sleep_or_stop(backoff.next_wait(), &mut stop).await
+                if link
+                    .wait_to_retry(
+                        LinkState::Retrying,
+                        format!("cannot set up {}: {e}", spec.iface),
+                        &mut backoff,
+                        &mut stop,
+                    )
+                    .await
                 {
                     return;
                 }
