@@ -1,6 +1,7 @@
 //! termvel killed while it records: SIGKILL at 100 random moments of a
-//! paced rehearsal. Every file must replay; a last line cut by the kill must
-//! be reported as a torn tail (and skipped); and what is lost must be at
+//! rehearsal's recording (counted from the file's creation). Every file
+//! must replay; a last line cut by the kill must be reported as a torn tail
+//! (and skipped); and what is lost must be at
 //! most the recorder's flush interval (100 ms of stream time): everything
 //! before the last snapshot termvel printed, less 100 ms, is on disk.
 //! (SIGTERM and SIGHUP, which close cleanly, are in `tui`.)
@@ -58,6 +59,14 @@ fn kill_after(dir: &Path, after: Duration, flat_out: bool) -> Killed {
         }
         last
     });
+    // The moment counts from the recording's creation: a kill before it
+    // would test nothing (and on a busy machine start-up alone can take
+    // longer than the earliest moments).
+    let deadline = Instant::now() + Duration::from_secs(20);
+    while std::fs::read_dir(dir).unwrap().next().is_none() {
+        assert!(Instant::now() < deadline, "no recording in {} within 20 s", dir.display());
+        std::thread::sleep(Duration::from_millis(1));
+    }
     std::thread::sleep(after);
     // SAFETY: a signal to our own child.
     unsafe { libc::kill(child.id() as libc::pid_t, libc::SIGKILL) };
