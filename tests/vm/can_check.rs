@@ -18,9 +18,12 @@
 //! 4. a SocketCAN interface and a serial receiver in one session;
 //! 5. termvel stopped while the bus runs on: the kernel's drops counted,
 //!    recorded and raised, recorded + lost = sent;
-//! 6. load: ten times a saturated 1 Mbit/s bus (90 000 frames/s) for
+//! 6. load: four times a saturated 1 Mbit/s bus (36 000 frames/s) for
 //!    `TERMVEL_LOAD_SECS` (default 60) seconds; no frame missing from the
-//!    recording, snapshots at their rate, latency and processor time.
+//!    recording, snapshots at their rate, latency and processor time. (Ten
+//!    times, 90 000 frames/s, is held on the host's serial path, where
+//!    nothing is emulated: under software emulation termvel's share of an
+//!    emulated CPU carries 60 000–75 000 frames/s, with no margin left.)
 //!
 //! Prints one line per check (`ok` or `FAIL`), the load figures as a JSON
 //! line after `LOAD-FIGURES `, and last `TERMVEL-VM-RESULT PASS` or
@@ -423,7 +426,7 @@ fn coming_and_going(termvel: &Path, c: &mut Checks) {
 }
 
 fn load(termvel: &Path, secs: u64, c: &mut Checks) {
-    const RATE: u64 = 90_000;
+    const RATE: u64 = 36_000;
     const SEQ_ID: u16 = 0x5F0;
     let cfg = ConfigSet::embedded();
     let dir = PathBuf::from("/tmp/load");
@@ -497,12 +500,15 @@ fn load(termvel: &Path, secs: u64, c: &mut Checks) {
     let (ok, lines, stderr) = live.finish();
     c.check(ok, format!("load: termvel exits 0 ({})", stderr.trim().replace('\n', " | ")));
     println!("     sender retries after a full queue: {send_errors}");
-    // The sender paces at RATE; under software emulation the VM's own CPU
-    // caps what it reaches (the ceiling above), so the floor asserted here
-    // is twice a saturated bus. The full rate is held on the host's serial
-    // path (tests/load.rs), where nothing is emulated.
+    // The sender paces at RATE, well under what this VM can send (the
+    // ceiling above, 90 000–120 000 frames/s), so it must hold it. Ten
+    // times a saturated bus is held on the host's serial path
+    // (tests/load.rs), where nothing is emulated.
     println!("     sender reached {rate:.0} frames/s of the {RATE} asked");
-    c.check(rate >= 18_000.0, format!("load: at least twice a saturated 1 Mbit/s bus ({rate:.0} frames/s)"));
+    c.check(
+        rate >= 0.95 * RATE as f64,
+        format!("load: the sender held four times a saturated 1 Mbit/s bus ({rate:.0} of {RATE} frames/s)"),
+    );
     let Some(rec) = first_file(&dir) else {
         c.check(false, "load: a recording");
         return;
