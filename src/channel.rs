@@ -1,8 +1,9 @@
 //! Channels: the engine's vocabulary.
 //!
 //! A channel is a named stream of values in SI units. The canonical channels
-//! (the list in the README, "The signal map") have fixed ids so the engine reads them by index; every other
-//! signal keeps its own name and gets the next free id when first seen.
+//! (listed in the README under "The signal map") have fixed ids so the engine
+//! reads them by index; every other signal keeps its own name and gets the
+//! next free id when first seen.
 
 use crate::units::Dimension;
 
