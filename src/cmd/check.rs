@@ -14,37 +14,27 @@ use crate::decode::busload::bus_load;
 pub const BUS_LOAD_WARN: f64 = 0.70;
 
 pub fn run(args: &CheckArgs) -> anyhow::Result<ExitCode> {
-    let files: Vec<(String, String)> = if args.files.is_empty() {
+    let (files, read_errors): (Vec<(String, String)>, Vec<ConfigError>) = if args.files.is_empty() {
         let local = PathBuf::from("config");
         if local.is_dir() {
-            match config::read_paths(&[local]) {
-                Ok(f) => f,
-                Err(e) => return print_errors(&e.0),
-            }
+            config::read_paths_partial(&[local])
         } else {
-            config::EMBEDDED.iter().map(|(n, t)| (format!("<embedded>/{n}"), t.to_string())).collect()
+            (config::EMBEDDED.iter().map(|(n, t)| (format!("<embedded>/{n}"), t.to_string())).collect(), Vec::new())
         }
     } else {
-        match read_all(&args.files) {
-            Ok(f) => f,
-            Err(e) => return print_errors(&e),
-        }
+        config::read_paths_partial(&args.files)
     };
-    let (text, ok) = check_texts(&files);
+    if files.is_empty() && !read_errors.is_empty() {
+        return print_errors(&read_errors);
+    }
+    // Files that could not be read are reported first; the others are
+    // still checked, so one bad file does not hide the rest's problems.
+    for e in &read_errors {
+        crate::out!("{e}");
+    }
+    let (text, ok) = check_texts_with(&files, read_errors.len());
     print!("{text}");
     Ok(if ok { ExitCode::SUCCESS } else { ExitCode::from(super::EXIT_UNUSABLE) })
-}
-
-fn read_all(paths: &[PathBuf]) -> Result<Vec<(String, String)>, Vec<ConfigError>> {
-    let mut out = Vec::new();
-    let mut errors = Vec::new();
-    for p in paths {
-        match config::read_paths(std::slice::from_ref(p)) {
-            Ok(mut f) => out.append(&mut f),
-            Err(e) => errors.extend(e.0),
-        }
-    }
-    if errors.is_empty() { Ok(out) } else { Err(errors) }
 }
 
 fn print_errors(errors: &[ConfigError]) -> anyhow::Result<ExitCode> {
@@ -58,9 +48,15 @@ fn print_errors(errors: &[ConfigError]) -> anyhow::Result<ExitCode> {
 /// Validates a set of (origin, text) files; returns the printed summary
 /// and whether the set is valid.
 pub fn check_texts(files: &[(String, String)]) -> (String, bool) {
+    check_texts_with(files, 0)
+}
+
+/// As [`check_texts`], with `unread` files already reported as unreadable
+/// (counted as errors in the closing line).
+fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool) {
     let reports: Vec<FileReport> = files.iter().map(|(o, t)| config::validate_text(o, t)).collect();
     let mut out = String::new();
-    let mut errors = 0;
+    let mut errors = unread;
     let mut warnings = 0;
     // Cross-file facts: channels fed by the signal map in this set.
     let fed: Option<Vec<String>> = reports.iter().find_map(|r| match &r.parsed {
@@ -208,6 +204,14 @@ pub fn check_texts(files: &[(String, String)]) -> (String, bool) {
                     p.faults.len(),
                     if p.faults.len() == 1 { "" } else { "s" }
                 );
+                // What the plan names must exist, be of the right kind and
+                // be valid: `plan` and `rehearse` would fail on it later.
+                if !r.origin.starts_with("<embedded>") {
+                    for e in config::plan_references(p, std::path::Path::new(&r.origin)).1 {
+                        let _ = writeln!(out, "{e}");
+                        errors += 1;
+                    }
+                }
             }
             Parsed::Alerts(a) => {
                 let _ = writeln!(
@@ -242,8 +246,8 @@ pub fn check_texts(files: &[(String, String)]) -> (String, bool) {
         out,
         "{}: {} file{}, {} error{}, {} warning{}",
         if valid { "valid" } else { "invalid" },
-        files.len(),
-        if files.len() == 1 { "" } else { "s" },
+        files.len() + unread,
+        if files.len() + unread == 1 { "" } else { "s" },
         errors,
         if errors == 1 { "" } else { "s" },
         warnings,

@@ -409,8 +409,62 @@ impl ConfigSet {
     }
 }
 
+/// Largest config file read. The biggest real signal maps are a few hundred
+/// kilobytes; a limit keeps `/dev/zero` or a wrong file from filling memory.
+pub const MAX_CONFIG_BYTES: u64 = 4 << 20;
+
+/// Reads one config file: a regular file of at most [`MAX_CONFIG_BYTES`] in
+/// UTF-8. A device, a pipe, a directory, a larger file or bytes that are not
+/// UTF-8 (located by line and column) are errors naming the file.
+pub fn read_config_file(p: &Path) -> Result<String, ConfigError> {
+    use std::io::Read as _;
+    let at = |line: usize, column: usize, message: String| ConfigError {
+        file: p.display().to_string(),
+        line,
+        column,
+        key: String::new(),
+        message,
+    };
+    let meta = std::fs::metadata(p).map_err(|e| io_error(p, &e))?;
+    if meta.is_dir() {
+        return Err(at(0, 0, "is a directory, expected a config file".into()));
+    }
+    if !meta.is_file() {
+        return Err(at(0, 0, "is not a regular file (a device, pipe or socket); expected a config file".into()));
+    }
+    if meta.len() > MAX_CONFIG_BYTES {
+        return Err(at(
+            0,
+            0,
+            format!("is {} bytes; config files are limited to {} MiB", meta.len(), MAX_CONFIG_BYTES >> 20),
+        ));
+    }
+    let mut bytes = Vec::new();
+    let f = std::fs::File::open(p).map_err(|e| io_error(p, &e))?;
+    // The size was checked, but a file can grow between the two calls.
+    f.take(MAX_CONFIG_BYTES + 1).read_to_end(&mut bytes).map_err(|e| io_error(p, &e))?;
+    if bytes.len() as u64 > MAX_CONFIG_BYTES {
+        return Err(at(0, 0, format!("is larger than {} MiB, the limit for config files", MAX_CONFIG_BYTES >> 20)));
+    }
+    String::from_utf8(bytes).map_err(|e| {
+        let good = &e.as_bytes()[..e.utf8_error().valid_up_to()];
+        let good = std::str::from_utf8(good).expect("valid up to here");
+        let (line, column) = locate::line_col(good, good.len());
+        let byte = e.as_bytes()[good.len()];
+        at(line, column, format!("expected UTF-8 text, found the byte 0x{byte:02X}"))
+    })
+}
+
 /// Reads files and the `*.toml` files of directories, as (origin, text).
 pub fn read_paths(paths: &[PathBuf]) -> Result<Vec<(String, String)>, ConfigErrors> {
+    let (out, errors) = read_paths_partial(paths);
+    if errors.is_empty() { Ok(out) } else { Err(ConfigErrors(errors)) }
+}
+
+/// As [`read_paths`], but keeps every file that could be read beside the
+/// errors of those that could not, so `check` reports all of them: one
+/// unreadable file must not hide the others' problems.
+pub fn read_paths_partial(paths: &[PathBuf]) -> (Vec<(String, String)>, Vec<ConfigError>) {
     let mut out = Vec::new();
     let mut errors = Vec::new();
     for p in paths {
@@ -427,24 +481,24 @@ pub fn read_paths(paths: &[PathBuf]) -> Result<Vec<(String, String)>, ConfigErro
             };
             entries.sort();
             for e in entries {
-                match std::fs::read_to_string(&e) {
+                match read_config_file(&e) {
                     Ok(t) => {
                         // Plans live beside the set but are not part of it.
                         if detect_kind(&e.display().to_string(), &t).ok() != Some(ConfigKind::Plan) {
                             out.push((e.display().to_string(), t));
                         }
                     }
-                    Err(err) => errors.push(io_error(&e, &err)),
+                    Err(err) => errors.push(err),
                 }
             }
         } else {
-            match std::fs::read_to_string(p) {
+            match read_config_file(p) {
                 Ok(t) => out.push((p.display().to_string(), t)),
-                Err(e) => errors.push(io_error(p, &e)),
+                Err(e) => errors.push(e),
             }
         }
     }
-    if errors.is_empty() { Ok(out) } else { Err(ConfigErrors(errors)) }
+    (out, errors)
 }
 
 fn io_error(p: &Path, e: &std::io::Error) -> ConfigError {
@@ -520,13 +574,14 @@ pub const EMBEDDED_PLAN: (&str, &str) = ("demo-plan.toml", include_str!("../../c
 
 /// Loads a run plan and the config set it names. `None`: the embedded demo.
 /// A plan's file names are relative to its directory; `override_set`
-/// replaces them (the `--config` option).
+/// replaces them (the `--config` option). A problem with a named file is
+/// reported at the plan's own line and key (see [`plan_references`]).
 pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(plan::Plan, ConfigSet), ConfigErrors> {
     let (origin, text) = match path {
         None => (format!("<embedded>/{}", EMBEDDED_PLAN.0), EMBEDDED_PLAN.1.to_string()),
-        Some(p) => match std::fs::read_to_string(p) {
+        Some(p) => match read_config_file(p) {
             Ok(t) => (p.display().to_string(), t),
-            Err(e) => return Err(ConfigErrors(vec![io_error(p, &e)])),
+            Err(e) => return Err(ConfigErrors(vec![e])),
         },
     };
     let report = validate_text(&origin, &text);
@@ -549,26 +604,79 @@ pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(plan:
     let Some(path) = path else {
         return Ok((plan, ConfigSet::embedded()));
     };
-    let dir = path.parent().unwrap_or(Path::new("."));
+    let (files, errors) = plan_references(&plan, path);
+    if !errors.is_empty() {
+        return Err(ConfigErrors(errors));
+    }
+    Ok((plan, ConfigSet::from_texts(files)?))
+}
+
+/// Reads and validates the config files a plan at `plan_path` names: each
+/// must be a readable file other than the plan itself, of the kind its key
+/// says, and valid. Returns the texts read and the errors, each located at
+/// the plan's line and key (followed by the named file's own errors).
+pub fn plan_references(plan: &plan::Plan, plan_path: &Path) -> (Vec<(String, String)>, Vec<ConfigError>) {
+    let origin = plan_path.display().to_string();
+    let dir = plan_path.parent().unwrap_or(Path::new("."));
     let mut files = Vec::new();
-    for (kind, name) in
-        [("vehicle", &plan.vehicle), ("track", &plan.track), ("signals", &plan.signals), ("alerts", &plan.alerts)]
-    {
-        match name {
-            Some(n) => files.push(dir.join(n)),
-            None if kind == "alerts" => {}
-            None => {
-                return Err(ConfigErrors(vec![ConfigError {
-                    file: origin.clone(),
-                    line: 1,
-                    column: 1,
-                    key: kind.into(),
-                    message: format!("missing key `{kind}`: the plan must name its {kind} file (or give --config)"),
-                }]));
-            }
+    let mut errors = Vec::new();
+    let at = |r: &plan::FileRef, message: String| ConfigError {
+        file: origin.clone(),
+        line: r.line,
+        column: r.column,
+        key: r.key.to_string(),
+        message,
+    };
+    for key in ["vehicle", "track", "signals"] {
+        if !plan.refs.iter().any(|r| r.key == key) {
+            errors.push(ConfigError {
+                file: origin.clone(),
+                line: 1,
+                column: 1,
+                key: key.into(),
+                message: format!("missing key `{key}`: the plan must name its {key} file (or give --config)"),
+            });
         }
     }
-    Ok((plan, ConfigSet::load(&files)?))
+    let plan_id = std::fs::canonicalize(plan_path).ok();
+    for r in &plan.refs {
+        let target = dir.join(&r.name);
+        if plan_id.is_some() && std::fs::canonicalize(&target).ok() == plan_id {
+            errors.push(at(r, format!("expected a {} file, found the plan itself ({})", r.kind.as_str(), r.name)));
+            continue;
+        }
+        let text = match read_config_file(&target) {
+            Ok(t) => t,
+            Err(e) => {
+                errors.push(at(r, format!("cannot use {}: {}", target.display(), e.message)));
+                continue;
+            }
+        };
+        let name = target.display().to_string();
+        let report = validate_text(&name, &text);
+        match report.kind {
+            Some(k) if k != r.kind => {
+                errors.push(at(
+                    r,
+                    format!("expected a {} file, found a {} config in {name}", r.kind.as_str(), k.as_str()),
+                ));
+            }
+            _ if !report.errors.is_empty() => {
+                let n = report.errors.len();
+                errors.push(at(
+                    r,
+                    format!(
+                        "the {} file {name} is not valid ({n} error{}, below)",
+                        r.kind.as_str(),
+                        if n == 1 { "" } else { "s" }
+                    ),
+                ));
+                errors.extend(report.errors);
+            }
+            _ => files.push((name, text)),
+        }
+    }
+    (files, errors)
 }
 
 #[cfg(test)]

@@ -19,10 +19,10 @@ struct Raw {
     name: String,
     seed: Spanned<u64>,
     start: Spanned<toml::value::Datetime>,
-    vehicle: Option<String>,
-    track: Option<String>,
-    signals: Option<String>,
-    alerts: Option<String>,
+    vehicle: Option<Spanned<String>>,
+    track: Option<Spanned<String>>,
+    signals: Option<Spanned<String>>,
+    alerts: Option<Spanned<String>>,
     ambient: RawAmbient,
     driver: RawDriver,
     car: Option<RawCar>,
@@ -250,6 +250,19 @@ pub struct Uncertainty {
     pub derate_floor: Option<(f64, f64)>,
 }
 
+/// A config file a plan names, with where the name stands in the plan.
+#[derive(Clone, Debug, PartialEq)]
+pub struct FileRef {
+    /// The plan's key (`vehicle`, `track`, `signals`, `alerts`).
+    pub key: &'static str,
+    /// The kind of file the key must name.
+    pub kind: super::ConfigKind,
+    /// The name as written (relative to the plan's directory).
+    pub name: String,
+    pub line: usize,
+    pub column: usize,
+}
+
 /// A validated run plan.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Plan {
@@ -262,6 +275,9 @@ pub struct Plan {
     pub track: Option<String>,
     pub signals: Option<String>,
     pub alerts: Option<String>,
+    /// Where each of those names stands in the plan file, so a problem with
+    /// the file it names is reported at the plan's own line and key.
+    pub refs: Vec<FileRef>,
     pub ambient: Ambient,
     pub driver: Driver,
     pub car: CarTruth,
@@ -567,14 +583,30 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Plan> {
         uncertainty.derate_tau_s = range(&u.derate_time_constant_s, "uncertainty.derate_time_constant_s");
         uncertainty.derate_floor = range(&u.derate_floor, "uncertainty.derate_floor");
     }
+    let mut refs = Vec::new();
+    for (key, kind, name) in [
+        ("vehicle", super::ConfigKind::Vehicle, &raw.vehicle),
+        ("track", super::ConfigKind::Track, &raw.track),
+        ("signals", super::ConfigKind::Signals, &raw.signals),
+        ("alerts", super::ConfigKind::Alerts, &raw.alerts),
+    ] {
+        let Some(name) = name else { continue };
+        if name.get_ref().trim().is_empty() {
+            ctx.err(name.span(), key, format!("expected the name of a {} file, found an empty string", kind.as_str()));
+            continue;
+        }
+        let (line, column) = super::locate::line_col(ctx.src, name.span().start);
+        refs.push(FileRef { key, kind, name: name.get_ref().clone(), line, column });
+    }
     Some(Plan {
         name: raw.name,
         seed: *raw.seed.get_ref(),
         start_ns,
-        vehicle: raw.vehicle,
-        track: raw.track,
-        signals: raw.signals,
-        alerts: raw.alerts,
+        vehicle: raw.vehicle.map(Spanned::into_inner),
+        track: raw.track.map(Spanned::into_inner),
+        signals: raw.signals.map(Spanned::into_inner),
+        alerts: raw.alerts.map(Spanned::into_inner),
+        refs,
         ambient,
         driver,
         car,

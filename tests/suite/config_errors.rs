@@ -280,3 +280,127 @@ fn check_does_not_warn_at_exactly_the_threshold() {
     assert!(out.contains("70.0 % worst case"), "{out}");
     assert!(!out.contains("above 70 %"), "warned at exactly 70 %: {out}");
 }
+
+// ---------------------------------------------------------------------------
+// Regressions of issue 13: reads that never end, a plan's references, files
+// that hide each other's errors.
+
+/// A copy of the demo plan in `dir` whose `vehicle` key names `vehicle`,
+/// beside the demo's other files; returns its path.
+fn plan_naming(dir: &Path, file: &str, vehicle: &str) -> PathBuf {
+    for f in ["vehicle.toml", "track.toml", "signals.toml", "alerts.toml"] {
+        std::fs::copy(root().join("config").join(f), dir.join(f)).expect("copy a demo file");
+    }
+    let plan = std::fs::read_to_string(root().join("config/demo-plan.toml")).expect("the demo plan");
+    let plan: String = plan
+        .lines()
+        .map(|l| if l.starts_with("vehicle = ") { format!("vehicle = {vehicle:?}\n") } else { format!("{l}\n") })
+        .collect();
+    let p = dir.join(file);
+    std::fs::write(&p, plan).expect("write the plan");
+    p
+}
+
+/// Line and column of the `vehicle` value in the demo plan (1-based), read
+/// from the file itself so the test follows edits of the demo.
+fn vehicle_key_location() -> (usize, usize) {
+    let plan = std::fs::read_to_string(root().join("config/demo-plan.toml")).expect("the demo plan");
+    let (i, l) = plan.lines().enumerate().find(|(_, l)| l.starts_with("vehicle = ")).expect("a vehicle key");
+    (i + 1, l.find('"').expect("a quoted name") + 1)
+}
+
+// Issue 13, item 15: `check` passed plans whose vehicle file was missing, the
+// plan itself, a directory, empty, another plan (two plans naming each
+// other), a file of another kind or an invalid vehicle; `plan` then failed
+// with messages that named no location.
+#[test]
+fn issue13_check_follows_a_plans_references() {
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let d = dir.path();
+    let mut bad_vehicle = std::fs::read_to_string(root().join("config/vehicle.toml")).expect("demo vehicle");
+    bad_vehicle = bad_vehicle.replace("mass_kg = ", "mass_kg = -3 #");
+    std::fs::write(d.join("bad-vehicle.toml"), bad_vehicle).expect("write");
+    let (line, column) = vehicle_key_location();
+    let cases: [(&str, &str, &str); 8] = [
+        ("missing.toml", "no-such.toml", "No such file"),
+        ("itself.toml", "itself.toml", "found the plan itself"),
+        ("directory.toml", ".", "is a directory"),
+        ("a.toml", "b.toml", "expected a vehicle file, found a plan config"),
+        ("b.toml", "a.toml", "expected a vehicle file, found a plan config"),
+        ("kind.toml", "track.toml", "expected a vehicle file, found a track config"),
+        ("invalid.toml", "bad-vehicle.toml", "is not valid (1 error, below)"),
+        ("device.toml", "/dev/zero", "not a regular file"),
+    ];
+    // Every plan first: two of them name each other.
+    for (file, vehicle, _) in cases {
+        plan_naming(d, file, vehicle);
+    }
+    for (file, _, want) in cases {
+        let p = d.join(file);
+        let ps = p.to_str().expect("UTF-8 path");
+        let o = termvel(&["check", ps]);
+        let out = stdout(&o);
+        assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{file}: {}", all_output(&o));
+        let located = format!("{ps}:{line}:{column}: vehicle: ");
+        assert!(
+            out.lines().any(|l| l.starts_with(&located) && l.contains(want)),
+            "{file}: want {located}…{want}: {out}"
+        );
+        // `plan` refuses it with the same located message, not `: cannot read`.
+        let o = termvel(&["plan", ps, "--trials", "10"]);
+        let err = all_output(&o);
+        assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{file}: {err}");
+        assert!(err.contains(&located) && err.contains(want), "{file}: plan said: {err}");
+    }
+    // The empty name is refused by the plan's own validation.
+    let p = plan_naming(d, "empty.toml", "");
+    let o = termvel(&["check", p.to_str().expect("UTF-8 path")]);
+    let out = stdout(&o);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{out}");
+    assert!(out.contains(&format!(":{line}:{column}: vehicle: expected the name of a vehicle file")), "{out}");
+    // The invalid vehicle's own error follows, located in its own file.
+    let o = termvel(&["check", d.join("invalid.toml").to_str().expect("UTF-8 path")]);
+    assert!(stdout(&o).contains("bad-vehicle.toml:"), "{}", stdout(&o));
+}
+
+// Issue 13, item 10: `check /dev/zero`, `--config /dev/zero` and a plan whose
+// vehicle is /dev/zero grew memory by about 1 GB a second.
+#[test]
+fn issue13_config_reads_are_bounded() {
+    let o = termvel(&["check", "/dev/zero"]);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{}", all_output(&o));
+    assert!(stdout(&o).contains("/dev/zero: is not a regular file"), "{}", all_output(&o));
+    let o = termvel(&["plan", "--config", "/dev/zero"]);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{}", all_output(&o));
+    assert!(all_output(&o).contains("/dev/zero: is not a regular file"), "{}", all_output(&o));
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let big = dir.path().join("big.toml");
+    std::fs::write(&big, vec![b'#'; (termvel::config::MAX_CONFIG_BYTES + 1) as usize]).expect("write");
+    let o = termvel(&["check", big.to_str().expect("UTF-8 path")]);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{}", all_output(&o));
+    assert!(stdout(&o).contains("config files are limited to 4 MiB"), "{}", all_output(&o));
+}
+
+// Issue 13, item 16: an invalid UTF-8 file got no position, and one
+// unreadable file in a directory hid every other file's errors.
+#[test]
+fn issue13_one_bad_file_does_not_hide_the_others() {
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let d = dir.path();
+    std::fs::write(d.join("a-utf.toml"), b"kind = \"track\"\nname = \"x\xff\"\n").expect("write");
+    std::os::unix::fs::symlink(d.join("nowhere.toml"), d.join("b-dangling.toml")).expect("symlink");
+    let bad = std::fs::read_to_string(root().join("config/track.toml")).expect("demo track");
+    std::fs::write(d.join("c-track.toml"), bad.replace("target_speed_kmh = ", "target_speed_kmh = -1 #"))
+        .expect("write");
+    let ds = d.to_str().expect("UTF-8 path");
+    let o = termvel(&["check", ds]);
+    let out = stdout(&o);
+    assert_eq!(o.status.code(), Some(EXIT_UNUSABLE), "{out}");
+    // `name = "x` is 10 characters: the bad byte is line 2, column 10.
+    assert!(out.contains("a-utf.toml:2:10: expected UTF-8 text, found the byte 0xFF"), "{out}");
+    assert!(out.contains("b-dangling.toml: cannot read"), "{out}");
+    assert!(
+        out.contains("c-track.toml:") && out.contains("target_speed_kmh"),
+        "the readable file's error is hidden: {out}"
+    );
+}
