@@ -47,6 +47,7 @@ pub mod report;
 pub mod session;
 pub mod sim;
 pub mod sources;
+pub mod text;
 pub mod ui;
 pub mod units;
 

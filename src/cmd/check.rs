@@ -72,7 +72,8 @@ fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool)
             errors += 1;
         }
         for w in &r.warnings {
-            let _ = writeln!(out, "{}: warning: {}", location(w), w.message);
+            // Shown as an error is (escaped, cut), with the word in front.
+            let _ = writeln!(out, "{}", ConfigError { message: format!("warning: {}", w.message), ..w.clone() });
             warnings += 1;
         }
         if let Some(k) = r.kind {
@@ -254,14 +255,4 @@ fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool)
         if warnings == 1 { "" } else { "s" }
     );
     (out, valid)
-}
-
-fn location(e: &ConfigError) -> String {
-    if e.line == 0 {
-        e.file.clone()
-    } else if e.key.is_empty() {
-        format!("{}:{}:{}", e.file, e.line, e.column)
-    } else {
-        format!("{}:{}:{}: {}", e.file, e.line, e.column, e.key)
-    }
 }

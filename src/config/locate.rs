@@ -30,13 +30,23 @@ pub fn key_path_at(src: &str, offset: usize) -> String {
     // (array header name, count so far) for every array of tables seen.
     let mut counts: Vec<(String, usize)> = Vec::new();
     let mut last_key_in_table: Option<String> = None;
+    let mut value = ValueState::default();
     let mut pos = 0usize;
     for raw_line in src.split_inclusive('\n') {
         let line_end = pos + raw_line.len();
         let line = raw_line.trim_end_matches(['\n', '\r']);
         let trimmed = line.trim_start();
         let contains = offset >= pos && (offset < line_end || line_end == src.len());
-        if let Some(name) = header_name(trimmed) {
+        // Inside a value that spans lines (an array, an inline table, a
+        // multi-line string) a line is never a header or a key: `[1500, 420],`
+        // on its own line and `[[message]]` inside a string are data.
+        let continued = value.open();
+        value.scan(line);
+        if continued {
+            if contains {
+                return join(&header_path, last_key_in_table.as_deref());
+            }
+        } else if let Some(name) = header_name(trimmed) {
             let is_array = trimmed.starts_with("[[");
             if is_array {
                 let prefix = format!("{name}.");
@@ -64,6 +74,62 @@ pub fn key_path_at(src: &str, offset: usize) -> String {
         pos = line_end;
     }
     join(&header_path, last_key_in_table.as_deref())
+}
+
+/// Whether the text so far leaves a value open across lines: brackets and
+/// braces not yet closed, or a multi-line string (`"""` or `'''`).
+#[derive(Default)]
+struct ValueState {
+    depth: i32,
+    multi_line: Option<&'static str>,
+}
+
+impl ValueState {
+    fn open(&self) -> bool {
+        self.depth > 0 || self.multi_line.is_some()
+    }
+
+    /// Follows one line: strings, comments, brackets.
+    fn scan(&mut self, line: &str) {
+        let b = line.as_bytes();
+        let mut i = 0;
+        while i < b.len() {
+            if let Some(close) = self.multi_line {
+                match line[i..].find(close) {
+                    Some(k) => {
+                        i += k + 3;
+                        self.multi_line = None;
+                        continue;
+                    }
+                    None => return,
+                }
+            }
+            match b[i] {
+                b'#' => return,
+                b'"' if line[i..].starts_with("\"\"\"") => {
+                    self.multi_line = Some("\"\"\"");
+                    i += 3;
+                    continue;
+                }
+                b'\'' if line[i..].starts_with("'''") => {
+                    self.multi_line = Some("'''");
+                    i += 3;
+                    continue;
+                }
+                q @ (b'"' | b'\'') => {
+                    // A one-line string: skip to its closing quote.
+                    i += 1;
+                    while i < b.len() && b[i] != q {
+                        i += if q == b'"' && b[i] == b'\\' { 2 } else { 1 };
+                    }
+                }
+                b'[' | b'{' => self.depth += 1,
+                b']' | b'}' => self.depth = (self.depth - 1).max(0),
+                _ => {}
+            }
+            i += 1;
+        }
+    }
 }
 
 fn join(header: &str, key: Option<&str>) -> String {
@@ -229,6 +295,25 @@ mod tests {
     fn unknown_key_offset_points_at_key() {
         let doc = "[body]\nmass_kg = 1\nfoo = 2\n";
         assert_eq!(key_path_at(doc, doc.find("foo").unwrap()), "body.foo");
+    }
+
+    // Issue 13, item 16: an array continuation line that starts with `[` was
+    // taken for a table header (`[1500], [2500, 560, 7]` named the key `1500`).
+    #[test]
+    fn array_continuation_lines_are_not_headers() {
+        let doc = "[engine]\ntorque_curve = [\n  [1500], [2500, 560, 7],\n]\nredline_rpm = 1\n";
+        assert_eq!(key_path_at(doc, doc.find("[2500").unwrap()), "engine.torque_curve");
+        assert_eq!(key_path_at(doc, doc.find("redline").unwrap()), "engine.redline_rpm");
+    }
+
+    // Issue 13, item 16: `[[message]]` inside a multi-line string shifted the
+    // index of every message after it.
+    #[test]
+    fn headers_inside_multi_line_strings_are_text() {
+        let doc = "[[message]]\nnote = \"\"\"\n[[message]]\n\"\"\"\n[[message]]\nid = 7\n";
+        assert_eq!(key_path_at(doc, doc.find("7").unwrap()), "message[1].id");
+        let doc = "[[message]]\nnote = '''\n[[message]]'''\n[[message]]\nid = 7\n";
+        assert_eq!(key_path_at(doc, doc.find("7").unwrap()), "message[1].id");
     }
 
     #[test]

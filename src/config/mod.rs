@@ -40,14 +40,23 @@ pub struct ConfigError {
     pub message: String,
 }
 
+/// Longest key and message shown: a 1 MB key is named by its start and length.
+const SHOWN_KEY_CHARS: usize = 80;
+const SHOWN_MESSAGE_CHARS: usize = 1000;
+
 impl fmt::Display for ConfigError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        // Keys and messages echo the file's own text: escape what a terminal
+        // would act on, and cut what would flood it.
+        let file = crate::text::printable(&self.file);
+        let key = crate::text::clipped(&self.key, SHOWN_KEY_CHARS);
+        let message = crate::text::clipped(&self.message, SHOWN_MESSAGE_CHARS);
         if self.line == 0 {
-            write!(f, "{}: {}", self.file, self.message)
+            write!(f, "{file}: {message}")
         } else if self.key.is_empty() {
-            write!(f, "{}:{}:{}: {}", self.file, self.line, self.column, self.message)
+            write!(f, "{file}:{}:{}: {message}", self.line, self.column)
         } else {
-            write!(f, "{}:{}:{}: {}: {}", self.file, self.line, self.column, self.key, self.message)
+            write!(f, "{file}:{}:{}: {key}: {message}", self.line, self.column)
         }
     }
 }
@@ -167,7 +176,20 @@ impl<'a> Ctx<'a> {
             Err(e) => {
                 let span = e.span().unwrap_or(0..0);
                 let mut key = locate::key_path_at(self.src, span.start);
-                let message = humanise(e.message(), &mut key);
+                // toml gives a key missing from the top level no span (or an
+                // empty one at 0): it is a top-level key, not one under the
+                // key that happens to stand on the first line.
+                let top_level = e.span().is_none_or(|s| s.is_empty() && s.start == 0);
+                let mut message = humanise(e.message(), &mut key, top_level);
+                // `[[chassis]]` where `[chassis]` belongs: serde reads the
+                // array as a struct's fields in order and complains about a map.
+                if let Some(base) = key.strip_suffix("[0]")
+                    && message.ends_with("found map")
+                    && self.src.lines().any(|l| l.trim() == format!("[[{base}]]"))
+                {
+                    message = format!("expected one table `[{base}]`, found an array of tables `[[{base}]]`");
+                    key = base.to_string();
+                }
                 let err = self.located(span, &key, message);
                 self.errors.push(err);
                 None
@@ -177,7 +199,7 @@ impl<'a> Ctx<'a> {
 }
 
 /// Rewrites serde's wording into termvel's: what was expected first.
-fn humanise(msg: &str, key: &mut String) -> String {
+fn humanise(msg: &str, key: &mut String, top_level: bool) -> String {
     let msg = msg.trim();
     if let Some(rest) = msg.strip_prefix("invalid type: ")
         && let Some((found, expected)) = rest.split_once(", expected ")
@@ -189,8 +211,15 @@ fn humanise(msg: &str, key: &mut String) -> String {
     {
         return format!("expected {}, found {}", plain_type(expected), found);
     }
+    if let Some(rest) = msg.strip_prefix("invalid length ")
+        && let Some((found, expected)) = rest.split_once(", expected an array of length ")
+    {
+        return format!("expected a list of {expected} values, found {found}");
+    }
     if let Some(rest) = msg.strip_prefix("unknown field ") {
         let (field, allowed) = rest.split_once(", expected ").unwrap_or((rest, ""));
+        // The key is named once in full (cut) in the location already.
+        let field = crate::text::clipped(field, 60);
         let allowed = allowed.strip_prefix("one of ").unwrap_or(allowed);
         return if allowed.is_empty() {
             format!("unknown key {field}; this table takes no keys")
@@ -200,7 +229,7 @@ fn humanise(msg: &str, key: &mut String) -> String {
     }
     if let Some(rest) = msg.strip_prefix("missing field ") {
         let name = rest.trim_matches('`');
-        if key.is_empty() {
+        if key.is_empty() || top_level {
             *key = name.to_string();
         } else {
             key.push('.');

@@ -165,6 +165,8 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
     });
 
     let mut messages = Vec::new();
+    // Message names seen so far, by index, for the uniqueness check.
+    let mut names: Vec<String> = Vec::new();
     for (mi, m) in raw.message.iter().enumerate() {
         let mk = |k: &str| format!("message[{mi}].{k}");
         let extended = match m.frame.as_ref().map(|f| f.get_ref().as_str()) {
@@ -211,6 +213,27 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
         let name = m.name.get_ref().trim().to_string();
         if name.is_empty() {
             ctx.err(m.name.span(), &mk("name"), "expected a non-empty name");
+        } else if let Some(j) = names.iter().position(|n| *n == name) {
+            // Names label the message on the screens and in `check`: two
+            // messages with one name cannot be told apart.
+            ctx.err(
+                m.name.span(),
+                &mk("name"),
+                format!("expected a unique message name; \"{name}\" is already message[{j}]"),
+            );
+        }
+        names.push(name.clone());
+        if length == 0 && !m.signal.is_empty() {
+            ctx.err(
+                m.length.span(),
+                &mk("length"),
+                format!(
+                    "expected a length in bytes that holds the message's {} signal{}, found 0 (a 0-byte frame carries no data)",
+                    m.signal.len(),
+                    if m.signal.len() == 1 { "" } else { "s" }
+                ),
+            );
+            continue;
         }
 
         let mut used = [0u64; 8];

@@ -335,7 +335,31 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     let t = &raw.tyre;
     let symbol = t.speed_symbol.as_ref().map(|s| s.get_ref().trim().to_string());
     let rated_kmh = match (&t.speed_symbol, &t.rated_speed_kmh) {
-        (_, Some(v)) => ctx.range(v, "tyre.rated_speed_kmh", 50.0, 600.0, "a speed in km/h"),
+        (Some(s), Some(v)) => {
+            // Both given: the symbol must still be one (a rated speed does not
+            // make "Q9" a symbol), and a fixed one should agree with the speed.
+            let sym = s.get_ref().trim();
+            let rated = ctx.range(v, "tyre.rated_speed_kmh", 50.0, 600.0, "a speed in km/h");
+            match symbol_speed_kmh(sym) {
+                Some(kmh) if (kmh - rated).abs() > 0.5 => ctx.warn(
+                    v.span(),
+                    "tyre.rated_speed_kmh",
+                    format!("the speed symbol {sym} stands for {kmh:.0} km/h, but {rated} km/h is given; {rated} km/h is used"),
+                ),
+                Some(_) => {}
+                None if sym == "(Y)" => {}
+                None => {
+                    let list: Vec<&str> = SPEED_SYMBOLS.iter().map(|(s, _)| *s).collect();
+                    ctx.err(
+                        s.span(),
+                        "tyre.speed_symbol",
+                        format!("expected a speed symbol ({}, or (Y) with rated_speed_kmh), found \"{sym}\"", list.join(", ")),
+                    );
+                }
+            }
+            rated
+        }
+        (None, Some(v)) => ctx.range(v, "tyre.rated_speed_kmh", 50.0, 600.0, "a speed in km/h"),
         (Some(s), None) => match symbol_speed_kmh(s.get_ref().trim()) {
             Some(v) => v,
             None if s.get_ref().trim() == "(Y)" => {
