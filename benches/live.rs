@@ -21,10 +21,10 @@ use std::time::{Duration, Instant};
 use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions, Snapshot};
 use termvel::event::{SourceKind, SourceTable};
-use termvel::live::{Pipeline, run};
-use termvel::player::PlayerStatus;
-use termvel::sources::live::{INPUT_CAPACITY, SessionClock};
+use termvel::sources::link::{INPUT_CAPACITY, SessionClock};
 use termvel::sources::serial::{Proto, SerialSpec};
+use termvel::stream::StreamStatus;
+use termvel::stream::realtime::{LiveOptions, run};
 use tokio::sync::{mpsc, watch};
 
 fn thread_cpu_s() -> f64 {
@@ -53,9 +53,9 @@ fn case(rate: u64, secs: u64) -> Case {
     let config = Arc::new(ConfigSet::embedded());
     let mut sources = SourceTable::default();
     let src = sources.intern("pt", SourceKind::Can);
-    let (recorder, _) = termvel::session::create_recording(dir.path(), "bench", &config, &sources).unwrap();
+    let (recorder, _) = termvel::record::create_recording(dir.path(), "bench", &config, &sources).unwrap();
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build().unwrap();
-    let cpu_before = termvel::live::cpu_seconds();
+    let cpu_before = termvel::stream::realtime::cpu_seconds();
     let sender = std::thread::spawn(move || {
         assert_eq!(adapter.read_until(b"O\r", Duration::from_secs(10)), b"C\rS8\rO\r");
         let start = Instant::now();
@@ -76,7 +76,7 @@ fn case(rate: u64, secs: u64) -> Case {
         std::thread::sleep(Duration::from_millis(1500));
         (sent, thread_cpu_s())
     });
-    let latency = termvel::ui::latency_histogram();
+    let latency = termvel::stream::latency_histogram();
     let mut snapshots = 0u64;
     let t0 = Instant::now();
     let out = rt.block_on(async {
@@ -85,7 +85,7 @@ fn case(rate: u64, secs: u64) -> Case {
         let (stop_tx, stop_rx) = watch::channel(false);
         let spec = SerialSpec { path, baud: 115_200, proto: Proto::Slcan, can_bitrate: 1_000_000, name: None };
         tokio::spawn(termvel::sources::serial::run(spec, src, clock, tx, stop_rx));
-        let pipeline = Pipeline {
+        let live = LiveOptions {
             engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: 100_000_000 }),
             sources: sources.clone(),
             clock,
@@ -94,12 +94,12 @@ fn case(rate: u64, secs: u64) -> Case {
             duration: Some(Duration::from_secs(secs + 1)),
         };
         let (_ctl_tx, ctl_rx) = mpsc::channel(4);
-        let mut sink = |_: Arc<Snapshot>, _: &PlayerStatus| snapshots += 1;
-        run(pipeline, rx, ctl_rx, stop_tx, &mut sink).await
+        let mut sink = |_: Arc<Snapshot>, _: &StreamStatus| snapshots += 1;
+        run(live, rx, ctl_rx, stop_tx, &mut sink).await
     });
     let seconds = t0.elapsed().as_secs_f64();
     let (_sent, sender_cpu) = sender.join().unwrap();
-    let termvel_cpu = termvel::live::cpu_seconds() - cpu_before - sender_cpu;
+    let termvel_cpu = termvel::stream::realtime::cpu_seconds() - cpu_before - sender_cpu;
     let h = latency.lock().unwrap();
     Case {
         rate,

@@ -9,8 +9,8 @@ use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions};
-use termvel::player::{EventSource, PlayerStatus};
-use termvel::sources::FileSource;
+use termvel::sources::{EventSource, FileSource};
+use termvel::stream::StreamStatus;
 use termvel::ui::app::{App, Mode, Screen, SessionInfo, UiFrame};
 use termvel::ui::theme::Theme;
 
@@ -36,13 +36,14 @@ static FRAMES: LazyLock<Frames> = LazyLock::new(|| {
         let mut snaps = Vec::new();
         engine.feed(&ev, src.sources(), &mut |s| snaps.push(s));
         for s in snaps {
-            let status = PlayerStatus {
+            let status = StreamStatus {
                 start_ns: Some(start),
                 position_ns: Some(s.t_ns),
                 speed: 1.0,
                 paused: false,
                 finished: false,
                 recording: None,
+                record_failures: 0,
                 events_fed: 0,
             };
             frames.push(Arc::new(UiFrame { snapshot: Arc::new(s), status }));

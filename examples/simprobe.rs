@@ -1,7 +1,7 @@
 //! Prints the simulator's truth for the embedded demo plan, every 2 s: a
 //! tool for tuning scenarios (`cargo run --release --example simprobe`).
 use std::sync::Arc;
-use termvel::player::EventSource;
+use termvel::sources::EventSource;
 fn main() {
     let (plan, cfg) =
         termvel::config::load_plan(std::env::args().nth(1).as_deref().map(std::path::Path::new), &[]).expect("plan");

@@ -221,7 +221,7 @@ pub fn parse_duration_ns(s: &str) -> Result<TimeNs, String> {
 fn parse_speed(s: &str) -> Result<f64, String> {
     let v: f64 =
         s.trim_end_matches('x').parse().map_err(|_| format!("expected a factor like 2 or 0.5, found \"{s}\""))?;
-    if !(crate::player::MIN_SPEED..=crate::player::MAX_SPEED).contains(&v) {
+    if !(crate::stream::MIN_SPEED..=crate::stream::MAX_SPEED).contains(&v) {
         return Err(format!("expected a factor from 0.1 to 64, found {v}"));
     }
     Ok(v)

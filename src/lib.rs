@@ -6,8 +6,9 @@
 //!
 //! The pipeline (DESIGN.md): [`sources`] produce [`event::Event`]s;
 //! [`decode`] turns them into samples; the [`engine`] derives everything
-//! and publishes snapshots; the [`record`]er keeps every event; screens,
-//! reports and the headless printer read the snapshots.
+//! and publishes snapshots; the [`record`]er keeps every event; [`stream`]
+//! runs a stream through all of them (paced or live); screens, reports and
+//! the headless printer read the snapshots.
 //!
 //! termvel is advisory. It is not a safety system and not a braking cue of
 //! record; the run director, track officials and local rules decide.
@@ -32,6 +33,7 @@ macro_rules! out {
 }
 
 pub mod channel;
+pub mod civil_time;
 pub mod cli;
 pub mod cmd;
 pub mod config;
@@ -39,14 +41,12 @@ pub mod decode;
 pub mod engine;
 pub mod event;
 pub mod headless;
-pub mod live;
 pub mod planner;
-pub mod player;
 pub mod record;
 pub mod report;
-pub mod session;
 pub mod sim;
 pub mod sources;
+pub mod stream;
 pub mod text;
 pub mod ui;
 pub mod units;

@@ -6,17 +6,18 @@ use std::sync::Arc;
 
 use tokio::sync::{mpsc, oneshot, watch};
 
-use super::session::{JsonPrinter, UiSink, init_log_file, start_recording};
+use super::{init_log_file, report_recording, start_recording};
 use crate::cli::LiveArgs;
 use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
 use crate::event::{CanId, SourceKind, SourceTable};
 use crate::headless::Summary;
-use crate::live::{self, LiveOutcome, Pipeline};
-use crate::player::Control;
-use crate::sources::live::{INPUT_CAPACITY, SessionClock};
+use crate::sources::link::{INPUT_CAPACITY, SessionClock};
 use crate::sources::{serial, socketcan};
+use crate::stream::realtime::{self, LiveOptions, LiveOutcome};
+use crate::stream::{Control, JsonPrinter, latency_histogram};
 use crate::ui::app::{App, Mode, SessionInfo};
+use crate::ui::frames::UiSink;
 
 pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     if args.can.is_empty() && args.serial.is_empty() {
@@ -74,8 +75,8 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             tokio::spawn(serial::run(spec.clone(), *id, clock, tx.clone(), stop_rx.clone()));
         }
         drop(tx);
-        let latency = crate::ui::latency_histogram();
-        let pipeline = Pipeline {
+        let latency = latency_histogram();
+        let live = LiveOptions {
             engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: args.run.every }),
             sources: sources.clone(),
             clock,
@@ -99,11 +100,11 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             });
             let stdout = std::io::stdout();
             let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
-            let out = live::run(pipeline, rx, ctl_rx, stop_tx, &mut printer).await;
+            let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut printer).await;
             drop(ctl_tx);
             let summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
             let mut json = summary.json();
-            json["live"] = live::figures(&out, &latency);
+            json["live"] = realtime::figures(&out, &latency);
             printer.finish_json(&json);
             out
         } else {
@@ -111,7 +112,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             let (done_tx, done_rx) = oneshot::channel();
             let task = tokio::spawn(async move {
                 let mut sink = UiSink::new(frames_tx);
-                let out = live::run(pipeline, rx, ctl_rx, stop_tx, &mut sink).await;
+                let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut sink).await;
                 let _ = done_tx.send(());
                 out
             });
@@ -127,10 +128,8 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         "termvel: live session ended ({}): {} events, {:.2} s of processor time",
         outcome.reason,
         outcome.events,
-        live::cpu_seconds()
+        realtime::cpu_seconds()
     );
-    if let Some(p) = &outcome.recording {
-        crate::say!("termvel: recorded {} events to {}", outcome.recorded_events, p.display());
-    }
+    report_recording(&outcome.recording);
     Ok(ExitCode::SUCCESS)
 }

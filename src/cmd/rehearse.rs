@@ -5,7 +5,7 @@
 use std::process::ExitCode;
 use std::sync::Arc;
 
-use super::session::{self, SessionSpec};
+use super::play::{self, PlaySpec};
 use crate::cli::RehearseArgs;
 use crate::config;
 use crate::sim::Simulator;
@@ -21,7 +21,7 @@ pub fn run(args: RehearseArgs) -> anyhow::Result<ExitCode> {
     let cfg = Arc::new(cfg);
     let sim = Simulator::new(cfg.clone(), Arc::new(plan));
     let speed = if args.as_fast_as_possible { Some(f64::INFINITY) } else { args.speed };
-    let spec = SessionSpec {
+    let spec = PlaySpec {
         mode: Mode::Rehearsal { plan: name },
         command: "rehearse",
         run: args.run,
@@ -30,5 +30,5 @@ pub fn run(args: RehearseArgs) -> anyhow::Result<ExitCode> {
         paused: args.paused,
         file: None,
     };
-    session::run(sim, spec)
+    play::run(sim, spec)
 }

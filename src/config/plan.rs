@@ -8,6 +8,7 @@ use toml::Spanned;
 
 use super::{Ctx, check_table};
 use crate::channel::valid_channel_name;
+use crate::civil_time::days_from_civil;
 
 type F = Spanned<f64>;
 
@@ -284,18 +285,6 @@ pub struct Plan {
     pub sensors: Sensors,
     pub faults: Vec<Fault>,
     pub uncertainty: Uncertainty,
-}
-
-/// Days from 1970-01-01 to a civil date (Howard Hinnant's public-domain
-/// algorithm).
-pub fn days_from_civil(y: i64, m: u32, d: u32) -> i64 {
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = y.div_euclid(400);
-    let yoe = y.rem_euclid(400);
-    let mp = (m as i64 + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d as i64 - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
 }
 
 pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Plan> {
@@ -614,20 +603,4 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Plan> {
         faults,
         uncertainty,
     })
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn civil_days() {
-        // 2000-03-01 is day 11017 since the epoch (from memory; `date -d 2000-03-01 +%s` / 86400).
-        assert_eq!(days_from_civil(2000, 3, 1), 11_017);
-        assert_eq!(days_from_civil(1970, 1, 1), 0);
-        assert_eq!(days_from_civil(1969, 12, 31), -1);
-        // Inverse of session::utc_parts.
-        let (y, m, d, ..) = crate::session::utc_parts(days_from_civil(2026, 3, 14) * 86_400);
-        assert_eq!((y, m, d), (2026, 3, 14));
-    }
 }

@@ -26,10 +26,14 @@
 //! A `%source` line may also appear in the body when a source first shows up.
 //! The reader also takes a plain candump log (no header).
 
+pub mod config_choice;
+pub mod files;
 pub mod reader;
 pub mod writer;
 
-pub use reader::{LineError, ReadStats, RecordingError, RecordingReader};
+pub use config_choice::ConfigChoiceError;
+pub use files::{create_recording, default_record_dir};
+pub use reader::{BodyError, LineError, ReadStats, RecordingError, RecordingReader, SourceDeclError};
 pub use writer::RecordingWriter;
 
 use crate::config::ConfigText;

@@ -13,7 +13,7 @@ use std::path::Path;
 
 use super::{Header, MAGIC, MAX_LINE, VERSION, unescape};
 use crate::config::{ConfigKind, ConfigText};
-use crate::decode::candump;
+use crate::decode::candump::{self, CandumpError};
 use crate::event::{Event, LinkState, Payload, SourceKind, SourceTable, TimeNs};
 
 /// A recording that cannot be read at all.
@@ -30,6 +30,76 @@ pub enum RecordingError {
     /// replay as recorded.
     #[error("{path}:{line}: {message}")]
     Header { path: String, line: u64, message: String },
+}
+
+/// Why a line of a recording's body (or of a candump log) was skipped.
+/// The text of each is what the user sees after `file:line: skipped: `.
+#[derive(Debug, thiserror::Error)]
+pub enum BodyError {
+    /// A line longer than [`MAX_LINE`]: corrupt, and not kept in memory.
+    #[error("line longer than {} bytes", MAX_LINE)]
+    TooLong,
+    /// Reading the file failed mid-way; the stream ends here.
+    #[error("read error: {0}")]
+    Read(io::Error),
+    /// A `(time) iface id#data` line that candump syntax does not accept.
+    #[error("CAN line: {0}")]
+    Can(CandumpError),
+    /// A CAN line whose interface name is not UTF-8.
+    #[error("CAN line: the interface name is not UTF-8")]
+    CanInterfaceNotUtf8,
+    /// A CAN frame from a source declared with another kind.
+    #[error("CAN frame from source {0} which is not a CAN source")]
+    NotCanSource(String),
+    /// The time of a `[time] source kind …` line does not parse.
+    #[error("event line: {0}")]
+    EventTime(CandumpError),
+    /// No space between an event line's time and its source.
+    #[error("event line: expected a space after the time")]
+    NoSpaceAfterTime,
+    /// An event line's source name is not UTF-8.
+    #[error("event line: source name is not UTF-8")]
+    SourceNameNotUtf8,
+    /// An event line names a source that no `%source` line declared (the
+    /// name, cut to 40 characters).
+    #[error("event line: source \"{0}\" is not declared")]
+    UndeclaredSource(String),
+    /// A `\xNN` escape in an event's text is incomplete or not hex.
+    #[error("event line: malformed \\x escape")]
+    BadEscape,
+    /// A mark, acknowledgement, note or link reason that is not UTF-8.
+    #[error("event line: text is not UTF-8")]
+    TextNotUtf8,
+    /// A `lost` event without a count of frames.
+    #[error("event line: expected lost and a count of frames")]
+    BadLostCount,
+    /// A `link` event whose state is not up, down or retrying.
+    #[error("event line: expected link up, down or retrying")]
+    BadLinkState,
+    /// An event kind this build does not know (cut to 20 characters).
+    #[error("event line: unknown event kind \"{0}\"")]
+    UnknownKind(String),
+    /// A `%source` line in the body that does not parse.
+    #[error(transparent)]
+    SourceDecl(#[from] SourceDeclError),
+    /// Another header line after the header ended (cut to 40 characters).
+    #[error("unexpected header line in the body: \"{0}\"")]
+    HeaderLineInBody(String),
+    /// A line that is neither a CAN frame nor an event (its start, cut to 30
+    /// characters).
+    #[error("expected '(' (CAN frame) or '[' (event) at the start, found \"{0}\"")]
+    Unrecognised(String),
+}
+
+/// A `%source NAME KIND` declaration that does not parse.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum SourceDeclError {
+    /// Nothing after `%source`.
+    #[error("expected a source name after %source")]
+    NoName,
+    /// A kind this build does not know (the word found).
+    #[error("expected a source kind (can, nmea, lines, operator, session), found \"{0}\"")]
+    UnknownKind(String),
 }
 
 /// A skipped line: where and why.
@@ -201,7 +271,7 @@ impl<R: Read> RecordingReader<R> {
                 // corrupt. Count it like any other bad line and read on.
                 self.header = Header { sources: SourceTable::default(), ..Header::default() };
                 self.stats.lines += 1;
-                self.malformed(format!("line longer than {MAX_LINE} bytes"));
+                self.malformed(BodyError::TooLong);
                 return Ok(());
             }
             Next::End => {
@@ -251,7 +321,7 @@ impl<R: Read> RecordingReader<R> {
                 header.created = Some(rest.to_string());
             } else if line.starts_with("%program ") {
             } else if let Some(rest) = line.strip_prefix("%source ") {
-                let (name, kind) = parse_source_decl(rest).map_err(|m| self.header_err(line_no, m))?;
+                let (name, kind) = parse_source_decl(rest).map_err(|m| self.header_err(line_no, m.to_string()))?;
                 header.sources.intern(name, kind);
             } else if let Some(rest) = line.strip_prefix("%config ") {
                 let mut parts = rest.splitn(3, ' ');
@@ -299,10 +369,10 @@ impl<R: Read> RecordingReader<R> {
         Ok(())
     }
 
-    fn malformed(&mut self, message: String) {
+    fn malformed(&mut self, problem: BodyError) {
         self.stats.malformed += 1;
         if self.stats.errors.len() < ReadStats::KEPT_ERRORS {
-            self.stats.errors.push(LineError { line: self.line_no, message });
+            self.stats.errors.push(LineError { line: self.line_no, message: problem.to_string() });
         }
     }
 
@@ -315,12 +385,12 @@ impl<R: Read> RecordingReader<R> {
                 Ok(Next::Line(s, e)) => (s, e),
                 Ok(Next::TooLong) => {
                     self.stats.lines += 1;
-                    self.malformed(format!("line longer than {MAX_LINE} bytes"));
+                    self.malformed(BodyError::TooLong);
                     continue;
                 }
                 Ok(Next::End) => return None,
                 Err(err) => {
-                    self.malformed(format!("read error: {err}"));
+                    self.malformed(BodyError::Read(err));
                     self.eof = true;
                     self.start = self.end;
                     return None;
@@ -347,25 +417,24 @@ impl<R: Read> RecordingReader<R> {
         }
     }
 
-    fn parse_body(&mut self, s: usize, e: usize) -> Result<Option<Event>, String> {
+    fn parse_body(&mut self, s: usize, e: usize) -> Result<Option<Event>, BodyError> {
         let line = &self.buf[s..e];
         let line = line.strip_suffix(b"\r").unwrap_or(line);
         match line.first() {
             None => Ok(None),
             Some(b'(') => {
-                let (t_ns, iface, frame) = candump::parse_line_bytes(line).map_err(|e| format!("CAN line: {e}"))?;
+                let (t_ns, iface, frame) = candump::parse_line_bytes(line).map_err(BodyError::Can)?;
                 if let Some((name, id)) = &self.last_can_source
                     && name.as_bytes() == iface
                 {
                     return Ok(Some(Event::new(t_ns, *id, Payload::Can(frame))));
                 }
-                let iface =
-                    std::str::from_utf8(iface).map_err(|_| "CAN line: the interface name is not UTF-8".to_string())?;
+                let iface = std::str::from_utf8(iface).map_err(|_| BodyError::CanInterfaceNotUtf8)?;
                 let src = match self.header.sources.find(iface) {
                     Some(id) => {
                         let kind = self.header.sources.get(id).map(|i| i.kind);
                         if kind != Some(SourceKind::Can) {
-                            return Err(format!("CAN frame from source {iface} which is not a CAN source"));
+                            return Err(BodyError::NotCanSource(iface.to_string()));
                         }
                         id
                     }
@@ -375,17 +444,17 @@ impl<R: Read> RecordingReader<R> {
                 Ok(Some(Event::new(t_ns, src, Payload::Can(frame))))
             }
             Some(b'[') => {
-                let (t_ns, i) = candump::parse_time_between(line, b']').map_err(|e| format!("event line: {e}"))?;
+                let (t_ns, i) = candump::parse_time_between(line, b']').map_err(BodyError::EventTime)?;
                 let rest = line.get(i..).unwrap_or(b"");
-                let rest = rest.strip_prefix(b" ").ok_or("event line: expected a space after the time")?;
+                let rest = rest.strip_prefix(b" ").ok_or(BodyError::NoSpaceAfterTime)?;
                 let (name, rest) = split_word(rest);
-                let name = std::str::from_utf8(name).map_err(|_| "event line: source name is not UTF-8".to_string())?;
+                let name = std::str::from_utf8(name).map_err(|_| BodyError::SourceNameNotUtf8)?;
                 let Some(src) = self.header.sources.find(name) else {
-                    return Err(format!("event line: source \"{}\" is not declared", truncate(name, 40)));
+                    return Err(BodyError::UndeclaredSource(truncate(name, 40)));
                 };
                 let (verb, arg) = split_word(rest);
-                let text = || unescape(arg).ok_or_else(|| "event line: malformed \\x escape".to_string());
-                let utf8 = |b: Vec<u8>| String::from_utf8(b).map_err(|_| "event line: text is not UTF-8".to_string());
+                let text = || unescape(arg).ok_or(BodyError::BadEscape);
+                let utf8 = |b: Vec<u8>| String::from_utf8(b).map_err(|_| BodyError::TextNotUtf8);
                 let payload = match verb {
                     b"line" => Payload::Line(text()?),
                     b"mark" => Payload::Mark(utf8(text()?)?),
@@ -393,26 +462,18 @@ impl<R: Read> RecordingReader<R> {
                     b"note" => Payload::Note(utf8(text()?)?),
                     b"tick" => Payload::Tick,
                     b"lost" => Payload::Lost(
-                        std::str::from_utf8(arg)
-                            .ok()
-                            .and_then(|a| a.parse().ok())
-                            .ok_or("event line: expected lost and a count of frames")?,
+                        std::str::from_utf8(arg).ok().and_then(|a| a.parse().ok()).ok_or(BodyError::BadLostCount)?,
                     ),
                     b"link" => {
                         let (state, reason) = split_word(arg);
                         let state = std::str::from_utf8(state)
                             .ok()
                             .and_then(LinkState::parse)
-                            .ok_or("event line: expected link up, down or retrying")?;
-                        let reason = utf8(unescape(reason).ok_or("event line: malformed \\x escape")?)?;
+                            .ok_or(BodyError::BadLinkState)?;
+                        let reason = utf8(unescape(reason).ok_or(BodyError::BadEscape)?)?;
                         Payload::Link(state, reason)
                     }
-                    other => {
-                        return Err(format!(
-                            "event line: unknown event kind \"{}\"",
-                            truncate(&String::from_utf8_lossy(other), 20)
-                        ));
-                    }
+                    other => return Err(BodyError::UnknownKind(truncate(&String::from_utf8_lossy(other), 20))),
                 };
                 Ok(Some(Event::new(t_ns, src, payload)))
             }
@@ -423,16 +484,10 @@ impl<R: Read> RecordingReader<R> {
                     self.header.sources.intern(name, kind);
                     Ok(None)
                 } else {
-                    Err(format!(
-                        "unexpected header line in the body: \"{}\"",
-                        truncate(&String::from_utf8_lossy(line), 40)
-                    ))
+                    Err(BodyError::HeaderLineInBody(truncate(&String::from_utf8_lossy(line), 40)))
                 }
             }
-            Some(_) => Err(format!(
-                "expected '(' (CAN frame) or '[' (event) at the start, found \"{}\"",
-                truncate(&String::from_utf8_lossy(line), 30)
-            )),
+            Some(_) => Err(BodyError::Unrecognised(truncate(&String::from_utf8_lossy(line), 30))),
         }
     }
 
@@ -454,12 +509,11 @@ fn split_word(s: &[u8]) -> (&[u8], &[u8]) {
     }
 }
 
-fn parse_source_decl(rest: &str) -> Result<(&str, SourceKind), String> {
+fn parse_source_decl(rest: &str) -> Result<(&str, SourceKind), SourceDeclError> {
     let mut parts = rest.split(' ');
-    let name = parts.next().filter(|n| !n.is_empty()).ok_or("expected a source name after %source")?;
+    let name = parts.next().filter(|n| !n.is_empty()).ok_or(SourceDeclError::NoName)?;
     let kind_s = parts.next().unwrap_or("");
-    let kind = SourceKind::parse(kind_s)
-        .ok_or_else(|| format!("expected a source kind (can, nmea, lines, operator, session), found \"{kind_s}\""))?;
+    let kind = SourceKind::parse(kind_s).ok_or_else(|| SourceDeclError::UnknownKind(kind_s.to_string()))?;
     Ok((name, kind))
 }
 
@@ -470,5 +524,56 @@ fn truncate(s: &str, n: usize) -> String {
 impl fmt::Display for LineError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         write!(f, "line {}: {}", self.line, self.message)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Reads `body` after a header declaring `can0` (CAN) and `op`
+    /// (operator); returns the events and the skipped lines' messages.
+    fn read(body: &str) -> (usize, Vec<String>) {
+        let text = format!("{MAGIC} {VERSION}\n%source can0 can\n%source op operator\n%end-header\n{body}");
+        let mut r = RecordingReader::new(text.as_bytes(), "t").unwrap();
+        let mut n = 0;
+        while r.next_event().is_some() {
+            n += 1;
+        }
+        (n, r.stats.errors.iter().map(|e| e.message.clone()).collect())
+    }
+
+    #[test]
+    fn skipped_lines_say_why_in_the_words_users_know() {
+        let (n, msgs) = read(concat!(
+            "[1.000000] op mark fine\n",
+            "[1.000000] op mark bad \\q1\n",
+            "[1.000000] ghost mark x\n",
+            "[1.000000] op telegram x\n",
+            "[1.000000] op lost many\n",
+            "[1.000000] op link sideways why\n",
+            "[1.000000] can0 mark x\n",
+            "(1.000000) op 123#00\n",
+            "%source\n",
+            "%source x wobble\n",
+            "%created again\n",
+            "hello\n",
+        ));
+        assert_eq!(n, 2, "the good mark and the mark from can0 (any declared source may mark)");
+        assert_eq!(
+            msgs,
+            vec![
+                "event line: malformed \\x escape",
+                "event line: source \"ghost\" is not declared",
+                "event line: unknown event kind \"telegram\"",
+                "event line: expected lost and a count of frames",
+                "event line: expected link up, down or retrying",
+                "CAN frame from source op which is not a CAN source",
+                "unexpected header line in the body: \"%source\"",
+                "expected a source kind (can, nmea, lines, operator, session), found \"wobble\"",
+                "unexpected header line in the body: \"%created again\"",
+                "expected '(' (CAN frame) or '[' (event) at the start, found \"hello\"",
+            ]
+        );
     }
 }

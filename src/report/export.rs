@@ -366,8 +366,7 @@ pub struct ExportOutcome {
 /// Opens a recording and its config (as a report does).
 fn open(file: &Path, config: &[PathBuf]) -> Result<(RecordingReader<std::fs::File>, Arc<ConfigSet>, String), String> {
     let r = RecordingReader::open(file).map_err(|e| e.to_string())?;
-    let opts = crate::cli::RunOpts { config: config.to_vec(), ..Default::default() };
-    let (cfg, origin) = crate::cmd::replay::resolve_config(&opts, &r.header, file)?;
+    let (cfg, origin) = r.header.config_set(config, file).map_err(|e| e.to_string())?;
     Ok((r, Arc::new(cfg), origin))
 }
 

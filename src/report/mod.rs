@@ -158,8 +158,7 @@ impl Run {
         let read = Arc::new(AtomicU64::new(0));
         let mut r = RecordingReader::new(Counting { inner: f, read: read.clone() }, &file.display().to_string())
             .map_err(|e| e.to_string())?;
-        let opts = crate::cli::RunOpts { config: config.to_vec(), ..Default::default() };
-        let (cfg, origin) = crate::cmd::replay::resolve_config(&opts, &r.header, file)?;
+        let (cfg, origin) = r.header.config_set(config, file).map_err(|e| e.to_string())?;
         let cfg = Arc::new(cfg);
         let mut engine = Engine::new(cfg.clone(), EngineOptions { snapshot_every_ns: REPORT_EVERY_NS });
         let mut rows = Vec::new();

@@ -9,8 +9,8 @@ use std::sync::Arc;
 use super::Simulator;
 use crate::config::{self, ConfigSet};
 use crate::event::NS_PER_S;
-use crate::player::EventSource;
 use crate::record::{Header, RecordingWriter, VERSION};
+use crate::sources::EventSource;
 
 /// File name of the bundled demo recording under `replays/`.
 pub const DEMO_FILE: &str = "demo.tvrec";
@@ -24,7 +24,7 @@ pub fn write_demo_recording<W: Write>(out: W) -> io::Result<u64> {
     let mut sim = Simulator::new(cfg.clone(), plan.clone());
     let header = Header {
         version: VERSION,
-        created: Some(crate::session::utc_iso(plan.start_ns.div_euclid(NS_PER_S))),
+        created: Some(crate::civil_time::utc_iso(plan.start_ns.div_euclid(NS_PER_S))),
         sources: sim.sources().clone(),
         configs: cfg.texts.clone(),
         is_termvel: true,

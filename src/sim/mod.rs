@@ -21,7 +21,7 @@ use crate::event::{
     CanFrame, DataFrame, ErrorFrame, Event, FdFrame, LinkState, NS_PER_S, Payload, SESSION, SourceId, SourceKind,
     SourceTable, TimeNs, err_class, fd_flags,
 };
-use crate::player::EventSource;
+use crate::sources::EventSource;
 use car::{Car, Phase};
 use rng::Rng;
 
@@ -307,7 +307,7 @@ impl Simulator {
         let lon = sens.longitude + (x * h.sin() / (EARTH_R_M * sens.latitude.to_radians().cos())).to_degrees();
         let v = (self.car.s.v_mps + sens.noise_gnss_speed_mps * self.rng.normal()).max(0.0);
         let kn = v / crate::units::KNOT_MPS;
-        let (y, mo, d, hh, mi, ss) = crate::session::utc_parts(t_ns.div_euclid(NS_PER_S));
+        let (y, mo, d, hh, mi, ss) = crate::civil_time::utc_parts(t_ns.div_euclid(NS_PER_S));
         let cs = t_ns.rem_euclid(NS_PER_S) / 10_000_000;
         let time = format!("{hh:02}{mi:02}{ss:02}.{cs:02}");
         let date = format!("{d:02}{mo:02}{:02}", y % 100);
@@ -433,7 +433,7 @@ impl EventSource for Simulator {
         &self.sources
     }
 
-    fn rewind(&mut self) -> Result<(), String> {
+    fn rewind(&mut self) -> Result<(), crate::sources::RewindError> {
         *self = Simulator::new(self.cfg.clone(), self.plan.clone());
         Ok(())
     }

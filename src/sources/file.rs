@@ -3,8 +3,8 @@
 use std::fs::File;
 use std::path::{Path, PathBuf};
 
+use super::{EventSource, RewindError};
 use crate::event::{Event, SourceTable};
-use crate::player::EventSource;
 use crate::record::{Header, ReadStats, RecordingError, RecordingReader};
 
 /// Events read from a file, from the start again on rewind.
@@ -36,8 +36,8 @@ impl EventSource for FileSource {
         &self.reader.header.sources
     }
 
-    fn rewind(&mut self) -> Result<(), String> {
-        self.reader = RecordingReader::open(&self.path).map_err(|e| e.to_string())?;
+    fn rewind(&mut self) -> Result<(), RewindError> {
+        self.reader = RecordingReader::open(&self.path)?;
         Ok(())
     }
 

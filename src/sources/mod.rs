@@ -1,9 +1,42 @@
 //! sources: where events come from. Sources do I/O and timestamping only;
 //! they hand raw events on and never decode or derive.
+//!
+//! Two shapes: a finite, restartable stream read on demand
+//! ([`EventSource`]: a recording or log on disk, the rehearsal simulator),
+//! and live devices that push events into a bounded channel as they arrive
+//! ([`link`]: the session clock, the channel, back-off and link state;
+//! [`serial`], [`socketcan`]). The stream drivers (`crate::stream`) take
+//! either; sources never import the drivers or the screens.
 
 pub mod file;
-pub mod live;
+pub mod link;
 pub mod serial;
 pub mod socketcan;
 
 pub use file::FileSource;
+
+use crate::event::{Event, SourceTable};
+use crate::record::{ReadStats, RecordingError};
+
+/// A finite, restartable stream of events in stream order.
+pub trait EventSource: Send {
+    /// The next event; `None` at the end.
+    fn next_event(&mut self) -> Option<Event>;
+    /// The sources seen so far (may grow as the stream is read).
+    fn sources(&self) -> &SourceTable;
+    /// Starts again from the first event.
+    fn rewind(&mut self) -> Result<(), RewindError>;
+    /// Reading statistics (malformed lines, torn tail), if the source reads a file.
+    fn read_stats(&self) -> ReadStats {
+        ReadStats::default()
+    }
+}
+
+/// A finite stream that cannot start again from its first event.
+#[derive(Debug, thiserror::Error)]
+pub enum RewindError {
+    /// The file could not be opened again (moved, deleted or made
+    /// unreadable since it was first read).
+    #[error(transparent)]
+    Reopen(#[from] RecordingError),
+}

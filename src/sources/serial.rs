@@ -11,7 +11,7 @@ use std::str::FromStr;
 
 use tokio::io::{AsyncReadExt, AsyncWriteExt};
 
-use super::live::{Backoff, EventSender, Link, SessionClock, Shutdown};
+use super::link::{Backoff, EventSender, Link, SessionClock, Shutdown};
 use crate::decode::slcan::{self, SlcanMsg};
 use crate::event::{Event, LinkState, Payload, SourceId, SourceKind};
 

@@ -10,7 +10,7 @@ use socketcan::{CanFdSocket, CanFilter, Socket, SocketOptions};
 use tokio::io::Interest;
 use tokio::io::unix::AsyncFd;
 
-use super::live::{Backoff, EventSender, Link, SessionClock, Shutdown, sleep_or_stop};
+use super::link::{Backoff, EventSender, Link, SessionClock, Shutdown, sleep_or_stop};
 use crate::event::{
     CanFrame, CanId, DataFrame, ErrorFrame, Event, FdFrame, LinkState, Payload, RemoteFrame, SourceId, fd_flags,
 };

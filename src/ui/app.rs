@@ -11,7 +11,7 @@ use super::theme::Theme;
 use crate::config::ConfigSet;
 use crate::engine::Snapshot;
 use crate::event::{NS_PER_S, TimeNs};
-use crate::player::{Control, PlayerStatus};
+use crate::stream::{Control, Operator, Playback, StreamStatus};
 
 /// The screens.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -71,7 +71,7 @@ pub struct SessionInfo {
 #[derive(Clone, Debug)]
 pub struct UiFrame {
     pub snapshot: Arc<Snapshot>,
-    pub status: PlayerStatus,
+    pub status: StreamStatus,
 }
 
 /// Latency figures for the feed screen, read from the shared histogram.
@@ -151,7 +151,7 @@ impl App {
         self.frame.as_deref().map(|f| &*f.snapshot)
     }
 
-    pub fn status(&self) -> Option<&PlayerStatus> {
+    pub fn status(&self) -> Option<&StreamStatus> {
         self.frame.as_deref().map(|f| &f.status)
     }
 
@@ -220,7 +220,7 @@ impl App {
                         text.trim().to_string()
                     };
                     self.say(format!("marked: {text}"));
-                    return vec![Action::Player(Control::Mark(text))];
+                    return vec![Action::Player(Control::Operator(Operator::Mark(text)))];
                 }
                 KeyCode::Esc => {
                     self.prompt = None;
@@ -255,6 +255,7 @@ impl App {
         }
         let live = self.info.mode == Mode::Live;
         let control = |c: Control| vec![Action::Player(c)];
+        let playback = |p: Playback| control(Control::Playback(p));
         if live
             && matches!(
                 key.code,
@@ -298,14 +299,14 @@ impl App {
                 self.screen = Screen::ALL[i];
                 vec![]
             }
-            KeyCode::Char(' ') | KeyCode::Char('p') => control(Control::TogglePause),
-            KeyCode::Char('+') | KeyCode::Char('=') => control(Control::Faster),
-            KeyCode::Char('-') => control(Control::Slower),
-            KeyCode::Right | KeyCode::Char('.') => control(Control::SeekBy(SEEK_SHORT_NS)),
-            KeyCode::Left | KeyCode::Char(',') => control(Control::SeekBy(-SEEK_SHORT_NS)),
-            KeyCode::Char('>') => control(Control::SeekBy(SEEK_LONG_NS)),
-            KeyCode::Char('<') => control(Control::SeekBy(-SEEK_LONG_NS)),
-            KeyCode::Char('s') => control(Control::Step),
+            KeyCode::Char(' ') | KeyCode::Char('p') => playback(Playback::TogglePause),
+            KeyCode::Char('+') | KeyCode::Char('=') => playback(Playback::Faster),
+            KeyCode::Char('-') => playback(Playback::Slower),
+            KeyCode::Right | KeyCode::Char('.') => playback(Playback::SeekBy(SEEK_SHORT_NS)),
+            KeyCode::Left | KeyCode::Char(',') => playback(Playback::SeekBy(-SEEK_SHORT_NS)),
+            KeyCode::Char('>') => playback(Playback::SeekBy(SEEK_LONG_NS)),
+            KeyCode::Char('<') => playback(Playback::SeekBy(-SEEK_LONG_NS)),
+            KeyCode::Char('s') => playback(Playback::Step),
             KeyCode::Char('m') => {
                 self.prompt = Some(String::new());
                 vec![]
@@ -313,7 +314,7 @@ impl App {
             KeyCode::Char('a') => {
                 let n = self.snapshot().map_or(0, |s| s.alerts.iter().filter(|a| !a.acked).count());
                 self.say(format!("acknowledged {n} alert{}", if n == 1 { "" } else { "s" }));
-                control(Control::Ack("*".into()))
+                control(Control::Operator(Operator::Ack("*".into())))
             }
             KeyCode::Char('u') => {
                 self.units = self.units.toggle();
@@ -405,12 +406,21 @@ mod tests {
             SessionInfo { mode: Mode::Replay { file: "x.tvrec".into() }, config: Arc::new(ConfigSet::embedded()) },
             Theme { color: false },
         );
-        assert_eq!(a.on_key(key(KeyCode::Char(' '))), vec![Action::Player(Control::TogglePause)]);
-        assert_eq!(a.on_key(key(KeyCode::Right)), vec![Action::Player(Control::SeekBy(5 * NS_PER_S))]);
-        assert_eq!(a.on_key(key(KeyCode::Char('<'))), vec![Action::Player(Control::SeekBy(-30 * NS_PER_S))]);
-        assert_eq!(a.on_key(key(KeyCode::Char('+'))), vec![Action::Player(Control::Faster)]);
-        assert_eq!(a.on_key(key(KeyCode::Char('s'))), vec![Action::Player(Control::Step)]);
-        assert_eq!(a.on_key(key(KeyCode::Char('a'))), vec![Action::Player(Control::Ack("*".into()))]);
+        assert_eq!(a.on_key(key(KeyCode::Char(' '))), vec![Action::Player(Control::Playback(Playback::TogglePause))]);
+        assert_eq!(
+            a.on_key(key(KeyCode::Right)),
+            vec![Action::Player(Control::Playback(Playback::SeekBy(5 * NS_PER_S)))]
+        );
+        assert_eq!(
+            a.on_key(key(KeyCode::Char('<'))),
+            vec![Action::Player(Control::Playback(Playback::SeekBy(-30 * NS_PER_S)))]
+        );
+        assert_eq!(a.on_key(key(KeyCode::Char('+'))), vec![Action::Player(Control::Playback(Playback::Faster))]);
+        assert_eq!(a.on_key(key(KeyCode::Char('s'))), vec![Action::Player(Control::Playback(Playback::Step))]);
+        assert_eq!(
+            a.on_key(key(KeyCode::Char('a'))),
+            vec![Action::Player(Control::Operator(Operator::Ack("*".into())))]
+        );
     }
 
     #[test]
@@ -421,7 +431,10 @@ mod tests {
             assert!(a.message.as_ref().is_some_and(|(m, _)| m.contains("for replays")));
         }
         // Marks and acknowledgements work live.
-        assert_eq!(a.on_key(key(KeyCode::Char('a'))), vec![Action::Player(Control::Ack("*".into()))]);
+        assert_eq!(
+            a.on_key(key(KeyCode::Char('a'))),
+            vec![Action::Player(Control::Operator(Operator::Ack("*".into())))]
+        );
     }
 
     #[test]
@@ -447,9 +460,15 @@ mod tests {
             assert!(a.on_key(key(KeyCode::Char(c))).is_empty(), "typing does not trigger other keys");
         }
         assert_eq!(a.screen, Screen::Run, "the digits and letters went into the prompt");
-        assert_eq!(a.on_key(key(KeyCode::Enter)), vec![Action::Player(Control::Mark("boost on".into()))]);
+        assert_eq!(
+            a.on_key(key(KeyCode::Enter)),
+            vec![Action::Player(Control::Operator(Operator::Mark("boost on".into())))]
+        );
         a.on_key(key(KeyCode::Char('m')));
-        assert_eq!(a.on_key(key(KeyCode::Enter)), vec![Action::Player(Control::Mark("mark 2".into()))]);
+        assert_eq!(
+            a.on_key(key(KeyCode::Enter)),
+            vec![Action::Player(Control::Operator(Operator::Mark("mark 2".into())))]
+        );
         a.on_key(key(KeyCode::Char('m')));
         a.on_key(key(KeyCode::Char('x')));
         assert!(a.on_key(key(KeyCode::Esc)).is_empty());

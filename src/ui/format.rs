@@ -93,7 +93,7 @@ pub fn seconds(s: Option<f64>) -> String {
 
 /// Stream time of day, UTC: "07:43:12.3".
 pub fn clock(t_ns: TimeNs) -> String {
-    let (_, _, _, h, m, s) = crate::session::utc_parts(t_ns.div_euclid(NS_PER_S));
+    let (_, _, _, h, m, s) = crate::civil_time::utc_parts(t_ns.div_euclid(NS_PER_S));
     let tenth = t_ns.rem_euclid(NS_PER_S) / (NS_PER_S / 10);
     format!("{h:02}:{m:02}:{s:02}.{tenth}")
 }

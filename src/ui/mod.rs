@@ -3,27 +3,29 @@
 //! One event enum ([`UiEvent`]: a key, a resize, a frame tick, new data, a
 //! signal) into one loop; state changes only in the handlers of
 //! [`app::App`]; drawing ([`draw`]) is a pure function of the app state. The
-//! player runs in its own task and publishes its latest snapshot through a
-//! `watch` channel: the screen takes the latest and never holds the
-//! pipeline back (the recorder, not the screen, sees every event).
+//! stream's driver (`crate::stream`) runs in its own task and publishes its
+//! latest snapshot through a `watch` channel ([`frames::UiSink`]): the
+//! screen takes the latest and never holds the stream back (the recorder,
+//! not the screen, sees every event).
 
 pub mod app;
 pub mod chrome;
 pub mod format;
+pub mod frames;
 pub mod screens;
 pub mod theme;
 pub mod widgets;
 
-use std::sync::{Arc, Mutex};
+use std::sync::Arc;
 use std::time::Duration;
 
 use crossterm::event::{Event as TermEvent, EventStream};
 use futures_util::StreamExt;
-use hdrhistogram::Histogram;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout};
 use tokio::sync::{mpsc, watch};
 
+use crate::stream::{Control, LatencyHistogram};
 use app::{Action, App, LatencyView, Screen, UiFrame};
 
 /// Frames drawn per second, whatever the input rate.
@@ -73,15 +75,6 @@ pub enum UiEvent {
     Signal(&'static str),
     /// The player ended (its task returned).
     PlayerDone,
-}
-
-/// Arrival-to-applied latency, shared by the player (writer) and the feed
-/// screen (reader): microseconds.
-pub type LatencyHistogram = Arc<Mutex<Histogram<u64>>>;
-
-/// A fresh latency histogram: 1 µs to 60 s, 3 significant digits.
-pub fn latency_histogram() -> LatencyHistogram {
-    Arc::new(Mutex::new(Histogram::new_with_bounds(1, 60_000_000, 3).expect("valid bounds")))
 }
 
 fn read_latency(h: &LatencyHistogram) -> LatencyView {
@@ -144,7 +137,7 @@ impl DrawStats {
 pub async fn run(
     mut app: App,
     mut frames: watch::Receiver<Option<Arc<UiFrame>>>,
-    controls: mpsc::Sender<crate::player::Control>,
+    controls: mpsc::Sender<Control>,
     latency: LatencyHistogram,
     mut player_done: tokio::sync::oneshot::Receiver<()>,
 ) -> std::io::Result<DrawStats> {
@@ -182,7 +175,7 @@ pub async fn run(
                 for action in app.on_key(k) {
                     match action {
                         Action::Quit => {
-                            let _ = controls.try_send(crate::player::Control::Quit);
+                            let _ = controls.try_send(Control::Quit);
                             stats.seconds = started.elapsed().as_secs_f64();
                             return Ok(stats);
                         }
@@ -214,7 +207,7 @@ pub async fn run(
             }
             UiEvent::Signal(why) => {
                 tracing::info!("leaving on {why}");
-                let _ = controls.try_send(crate::player::Control::Quit);
+                let _ = controls.try_send(Control::Quit);
                 stats.seconds = started.elapsed().as_secs_f64();
                 return Ok(stats);
             }
@@ -239,7 +232,7 @@ mod tests {
 
     #[test]
     fn latency_view_reads_quantiles_and_buckets() {
-        let h = latency_histogram();
+        let h = crate::stream::latency_histogram();
         {
             let mut g = h.lock().unwrap();
             for v in 1..=1000u64 {

@@ -6,8 +6,9 @@ use std::sync::Arc;
 use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions, Snapshot};
 use termvel::headless::snapshot_json;
-use termvel::player::{Control, PlayerOptions, PlayerStatus, play};
 use termvel::sources::FileSource;
+use termvel::stream::paced::{PlayerOptions, play};
+use termvel::stream::{Control, Playback, StreamStatus};
 
 use crate::util::{demo, snapshots_of, stdout, termvel};
 
@@ -29,7 +30,7 @@ fn played(speed: f64, controls: Vec<Control>) -> Vec<String> {
     }
     drop(tx);
     let mut out = Vec::new();
-    let mut sink = |s: Arc<Snapshot>, _: &PlayerStatus| out.push(snapshot_json(&s).to_string());
+    let mut sink = |s: Arc<Snapshot>, _: &StreamStatus| out.push(snapshot_json(&s).to_string());
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
     let opts = PlayerOptions { speed, start_paused: false, hold_at_end: false, recorder: None, latency: None };
     rt.block_on(play(FileSource::open(&demo()).unwrap(), make, opts, rx, &mut sink)).unwrap();
@@ -65,8 +66,13 @@ fn seeking_back_lands_on_exactly_the_straight_run() {
     // feeds forward; nothing of the later state leaks back).
     let straight = snapshots_of(FileSource::open(&demo()).unwrap(), demo_config());
     let t0_ns = serde_json::from_str::<serde_json::Value>(&straight[0]).unwrap()["t_ns"].as_i64().unwrap();
-    let seeked =
-        played(f64::INFINITY, vec![Control::SeekTo(t0_ns + 60_000_000_000), Control::SeekTo(t0_ns + 20_000_000_000)]);
+    let seeked = played(
+        f64::INFINITY,
+        vec![
+            Control::Playback(Playback::SeekTo(t0_ns + 60_000_000_000)),
+            Control::Playback(Playback::SeekTo(t0_ns + 20_000_000_000)),
+        ],
+    );
     // seeked = [where the forward seek landed, where the backward seek
     // landed, then everything played from there to the end].
     assert!(seeked.len() > 3);

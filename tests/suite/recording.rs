@@ -213,7 +213,7 @@ fn lost_frames_in_a_recording_raise_an_alert() {
     let mut sources = SourceTable::default();
     let can = sources.intern("can0", SourceKind::Can);
     let cfg = termvel::config::ConfigSet::embedded();
-    let (mut w, path) = termvel::session::create_recording(dir.path(), "test", &cfg, &sources).unwrap();
+    let (mut w, path) = termvel::record::create_recording(dir.path(), "test", &cfg, &sources).unwrap();
     let t0 = 1_800_000_000_000_000_000i64;
     let frame = |t: i64| {
         Event::new(t, can, Payload::Can(CanFrame::Data(DataFrame::new(CanId::Standard(0x5F0), &[1]).unwrap())))

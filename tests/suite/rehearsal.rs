@@ -9,9 +9,9 @@ use termvel::config::{self, ConfigSet, Parsed};
 use termvel::engine::alerts::Transition;
 use termvel::engine::{Engine, EngineOptions, Snapshot};
 use termvel::event::{Event, NS_PER_S, Payload, SESSION};
-use termvel::player::EventSource;
 use termvel::record::{Header, RecordingReader, RecordingWriter, VERSION};
 use termvel::sim::Simulator;
+use termvel::sources::EventSource;
 
 /// The demo plan without its own fault, plus `extra` TOML.
 pub fn plan_with(extra: &str) -> Plan {

@@ -8,8 +8,8 @@ use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions};
-use termvel::player::{EventSource, PlayerStatus};
-use termvel::sources::FileSource;
+use termvel::sources::{EventSource, FileSource};
+use termvel::stream::StreamStatus;
 use termvel::ui::app::{App, Mode, Screen, SessionInfo, UiFrame};
 use termvel::ui::theme::Theme;
 
@@ -35,13 +35,14 @@ pub fn demo_app(secs: f64, color: bool) -> App {
         }
         engine.feed(&ev, src.sources(), &mut |s| snaps.push(s));
         for s in snaps.drain(..) {
-            let status = PlayerStatus {
+            let status = StreamStatus {
                 start_ns: Some(t0),
                 position_ns: Some(s.t_ns),
                 speed: 4.0,
                 paused: false,
                 finished: false,
                 recording: Some("/rec/termvel-20260314-074210-replay.tvrec".into()),
+                record_failures: 0,
                 events_fed: 0,
             };
             app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status }));

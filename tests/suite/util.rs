@@ -7,7 +7,7 @@ use std::sync::Arc;
 use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions};
 use termvel::headless::snapshot_json;
-use termvel::player::EventSource;
+use termvel::sources::EventSource;
 
 /// The repository root.
 pub fn root() -> PathBuf {

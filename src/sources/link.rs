@@ -1,5 +1,6 @@
-//! What every live source shares: the session clock, the channel into the
-//! pipeline, shutdown, and reconnection back-off.
+//! The link between a live device and the running stream, shared by every
+//! live source: the session clock, the bounded channel into the stream,
+//! shutdown, reconnection back-off, and link state reported once per change.
 
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};
 

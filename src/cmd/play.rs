@@ -1,28 +1,28 @@
-//! Running a finite event stream (a replay, a rehearsal) to its end: on the
-//! screens or headless, recording unless told not to. Shared by `replay`
-//! and `rehearse`.
+//! Playing a finite event stream (a replay, a rehearsal) to its end: on
+//! the screens or headless, recording unless told not to. Shared by
+//! `replay` and `rehearse`; the stream itself runs in
+//! [`crate::stream::paced`].
 
-use std::fs::File;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::Arc;
 
 use tokio::sync::{mpsc, oneshot, watch};
 
+use super::{init_log_file, report_recording, start_recording};
 use crate::cli::RunOpts;
 use crate::config::ConfigSet;
-use crate::engine::{Engine, EngineOptions, Snapshot};
-use crate::event::SourceTable;
-use crate::headless::{Summary, snapshot_json};
-use crate::player::{self, EventSource, PlayerOptions, PlayerOutcome, PlayerStatus, SnapshotSink};
-use crate::record::RecordingWriter;
-use crate::session;
+use crate::engine::{Engine, EngineOptions};
+use crate::headless::Summary;
+use crate::sources::EventSource;
+use crate::stream::paced::{self, PlayerOptions, PlayerOutcome};
+use crate::stream::{JsonPrinter, latency_histogram};
 use crate::ui;
-use crate::ui::app::{App, Mode, SessionInfo, UiFrame};
+use crate::ui::app::{App, Mode, SessionInfo};
+use crate::ui::frames::UiSink;
 
-/// How to run a session.
-pub struct SessionSpec {
+/// How to play a stream.
+pub struct PlaySpec {
     pub mode: Mode,
     /// The word in the recording's file name.
     pub command: &'static str,
@@ -35,30 +35,8 @@ pub struct SessionSpec {
     pub file: Option<PathBuf>,
 }
 
-/// The session's recording as `--no-record` and `--record-dir` ask (`None`
-/// when not recording), its path said on stderr; `Err` is the one-line
-/// reason when the file cannot be made. `command` is the word in its name.
-pub fn start_recording(
-    run: &RunOpts,
-    command: &str,
-    config: &ConfigSet,
-    sources: &SourceTable,
-) -> Result<Option<(RecordingWriter<File>, PathBuf)>, String> {
-    if run.no_record {
-        return Ok(None);
-    }
-    let dir = run.record_dir.clone().unwrap_or_else(session::default_record_dir);
-    match session::create_recording(&dir, command, config, sources) {
-        Ok((w, p)) => {
-            crate::say!("termvel: recording to {}", p.display());
-            Ok(Some((w, p)))
-        }
-        Err(e) => Err(format!("cannot create a recording in {}: {e} (use --no-record or --record-dir)", dir.display())),
-    }
-}
-
 /// Runs `src` to its end (headless) or until the user quits (screens).
-pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Result<ExitCode> {
+pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<ExitCode> {
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(r) => r,
         Err(reason) => return super::unusable(reason),
@@ -77,23 +55,18 @@ pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Resul
             latency: None,
         };
         let stdout = std::io::stdout();
-        let mut printer = JsonPrinter { out: std::io::BufWriter::new(stdout.lock()), broken: false };
+        let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().build()?;
         let (_tx, rx) = mpsc::channel(16);
-        let outcome =
-            rt.block_on(player::play(src, make_engine, popts, rx, &mut printer)).map_err(anyhow::Error::msg)?;
-        let summary = summarise(&outcome);
-        if !printer.broken {
-            let _ = writeln!(printer.out, "{}", summary.json());
-            let _ = printer.out.flush();
-        }
+        let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut printer))?;
+        printer.finish_json(&summarise(&outcome).json());
         drop(printer);
         return finish(&spec, &outcome);
     }
 
     // On the screens: the player in its own task, the UI on this one.
     let _log = init_log_file();
-    let latency = ui::latency_histogram();
+    let latency = latency_histogram();
     let popts = PlayerOptions {
         speed: spec.speed.unwrap_or(1.0),
         start_paused: spec.paused,
@@ -111,8 +84,8 @@ pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Resul
     );
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
-            let mut sink = UiSink { tx: frames_tx, last: None };
-            let r = player::play(src, make_engine, popts, ctl_rx, &mut sink).await;
+            let mut sink = UiSink::new(frames_tx);
+            let r = paced::play(src, make_engine, popts, ctl_rx, &mut sink).await;
             let _ = done_tx.send(());
             r
         });
@@ -124,13 +97,13 @@ pub fn run<S: EventSource + 'static>(src: S, spec: SessionSpec) -> anyhow::Resul
     crate::say!("{}", ui_result?.line());
     match outcome {
         Ok(Ok(Ok(o))) => finish(&spec, &o),
-        Ok(Ok(Err(e))) => Err(anyhow::anyhow!(e)),
+        Ok(Ok(Err(e))) => Err(e.into()),
         Ok(Err(e)) => Err(anyhow::anyhow!("the player failed: {e}")),
         Err(_) => Err(anyhow::anyhow!("the player did not stop within 10 s")),
     }
 }
 
-fn finish(spec: &SessionSpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
+fn finish(spec: &PlaySpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
     if let Some(f) = &spec.file {
         report_read_problems(f, o);
         if o.read_stats.events == 0 {
@@ -140,20 +113,8 @@ fn finish(spec: &SessionSpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
             ));
         }
     }
-    if let Some(p) = &o.recording {
-        crate::say!("termvel: recorded {} events to {}", o.recorded_events, p.display());
-    }
+    report_recording(&o.recording);
     Ok(ExitCode::SUCCESS)
-}
-
-/// Tracing to a file in the data directory (never to the screen).
-pub(crate) fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGuard> {
-    let dir = session::default_record_dir().parent()?.join("logs");
-    std::fs::create_dir_all(&dir).ok()?;
-    let appender = tracing_appender::rolling::never(dir, "termvel.log");
-    let (writer, guard) = tracing_appender::non_blocking(appender);
-    let _ = tracing_subscriber::fmt().with_writer(writer).with_ansi(false).try_init();
-    Some(guard)
 }
 
 /// The closing summary of a played stream.
@@ -213,67 +174,5 @@ pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
             t.line,
             t.bytes
         );
-    }
-}
-
-pub(crate) struct JsonPrinter<W: Write> {
-    out: W,
-    /// The reader went away (`| head`): stop printing, keep running.
-    broken: bool,
-}
-
-impl<W: Write> JsonPrinter<W> {
-    pub(crate) fn new(out: W) -> JsonPrinter<W> {
-        JsonPrinter { out, broken: false }
-    }
-
-    /// Prints the closing summary line.
-    pub(crate) fn finish_json(&mut self, summary: &serde_json::Value) {
-        if !self.broken {
-            let _ = writeln!(self.out, "{summary}");
-            let _ = self.out.flush();
-        }
-    }
-}
-
-impl<W: Write> SnapshotSink for JsonPrinter<W> {
-    fn snapshot(&mut self, snap: Arc<Snapshot>, _status: &PlayerStatus) {
-        if self.broken {
-            return;
-        }
-        // Each line goes out whole and at once: a reader following a live
-        // session sees every snapshot when it is made, not a buffer later.
-        if serde_json::to_writer(&mut self.out, &snapshot_json(&snap)).is_err()
-            || self.out.write_all(b"\n").is_err()
-            || self.out.flush().is_err()
-        {
-            self.broken = true;
-        }
-    }
-}
-
-/// Publishes the latest snapshot and status to the screens. The watch
-/// channel keeps only the latest: a slow screen skips, the player never waits.
-pub(crate) struct UiSink {
-    tx: watch::Sender<Option<Arc<UiFrame>>>,
-    last: Option<Arc<Snapshot>>,
-}
-
-impl UiSink {
-    pub(crate) fn new(tx: watch::Sender<Option<Arc<UiFrame>>>) -> UiSink {
-        UiSink { tx, last: None }
-    }
-}
-
-impl SnapshotSink for UiSink {
-    fn snapshot(&mut self, snap: Arc<Snapshot>, status: &PlayerStatus) {
-        self.last = Some(snap.clone());
-        let _ = self.tx.send(Some(Arc::new(UiFrame { snapshot: snap, status: status.clone() })));
-    }
-
-    fn status(&mut self, status: &PlayerStatus) {
-        if let Some(s) = &self.last {
-            let _ = self.tx.send(Some(Arc::new(UiFrame { snapshot: s.clone(), status: status.clone() })));
-        }
     }
 }

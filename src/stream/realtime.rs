@@ -1,0 +1,264 @@
+//! The real-time driver: events from every live source, merged in arrival
+//! order, through the pipeline (engine and recorder); snapshots to the
+//! screens or the headless printer. It adds a clock tick every 100 ms
+//! (recorded, so a replay judges staleness exactly as the live run did),
+//! measures how long each event waited between arrival and being applied,
+//! and writes every event to the recording: nothing that reached the
+//! stream is dropped.
+
+use std::fs::File;
+use std::path::PathBuf;
+use std::sync::Arc;
+use std::time::Duration;
+
+use tokio::sync::{mpsc, watch};
+
+use super::control::Control;
+use super::latency::{LatencyHistogram, record_latency};
+use super::pipeline::{Pass, Pipeline, RecordingOutcome};
+use super::sink::{SnapshotSink, StreamStatus};
+use crate::engine::{Engine, Snapshot};
+use crate::event::{Event, OPERATOR, Payload, SESSION, SourceTable};
+use crate::record::RecordingWriter;
+use crate::sources::link::SessionClock;
+
+/// Interval of the clock ticks and of the recorder's wall-clock flush.
+pub const TICK: Duration = Duration::from_millis(100);
+/// Events taken from the input at a time.
+pub const BATCH: usize = 1024;
+
+/// What a live session ends with.
+pub struct LiveOutcome {
+    pub engine: Engine,
+    pub events: u64,
+    /// The recording written, how many events went into it, and whether it
+    /// stopped on a failed write.
+    pub recording: RecordingOutcome,
+    /// Why it ended.
+    pub reason: &'static str,
+}
+
+/// Settings of a live session.
+pub struct LiveOptions {
+    pub engine: Engine,
+    pub sources: SourceTable,
+    pub clock: SessionClock,
+    pub recorder: Option<(RecordingWriter<File>, PathBuf)>,
+    pub latency: Option<LatencyHistogram>,
+    /// Stop after this long (for scripts and tests).
+    pub duration: Option<Duration>,
+}
+
+struct State<'k, K> {
+    pipe: Pipeline,
+    sources: SourceTable,
+    clock: SessionClock,
+    latency: Option<LatencyHistogram>,
+    events: u64,
+    sink: &'k mut K,
+    snaps: Vec<Snapshot>,
+}
+
+impl<K: SnapshotSink> State<'_, K> {
+    fn handle(&mut self, ev: Event) {
+        self.events += 1;
+        let arrival = ev.t_ns;
+        self.pipe.step(&ev, &self.sources, Pass::First, &mut self.snaps);
+        if ev.source != SESSION
+            && ev.source != OPERATOR
+            && let Some(h) = &self.latency
+        {
+            record_latency(h, ((self.clock.now_ns() - arrival) / 1000).max(1) as u64);
+        }
+        let status = &mut self.pipe.status;
+        status.position_ns = Some(ev.t_ns.max(status.position_ns.unwrap_or(ev.t_ns)));
+        status.events_fed = self.events;
+        self.emit();
+    }
+
+    fn emit(&mut self) {
+        for s in self.snaps.drain(..) {
+            self.sink.snapshot(Arc::new(s), &self.pipe.status);
+        }
+    }
+}
+
+/// Runs until `controls` says quit (or closes), the duration passes, or
+/// every source has ended. `stop` tells the sources to end; the events they
+/// had already sent are drained and recorded before this returns.
+pub async fn run<K: SnapshotSink>(
+    opts: LiveOptions,
+    mut input: mpsc::Receiver<Event>,
+    mut controls: mpsc::Receiver<Control>,
+    stop: watch::Sender<bool>,
+    sink: &mut K,
+) -> LiveOutcome {
+    let status = StreamStatus { start_ns: Some(opts.clock.start_ns()), ..StreamStatus::default() };
+    let mut st = State {
+        pipe: Pipeline::new(opts.engine, opts.recorder, status),
+        sources: opts.sources,
+        clock: opts.clock,
+        latency: opts.latency,
+        events: 0,
+        sink,
+        snaps: Vec::new(),
+    };
+    let mut tick = tokio::time::interval(TICK);
+    tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
+    let deadline = opts.duration.map(|d| tokio::time::Instant::now() + d);
+    let mut batch = Vec::with_capacity(BATCH);
+    let mut controls_open = true;
+    let reason = loop {
+        tokio::select! {
+            n = input.recv_many(&mut batch, BATCH) => {
+                if n == 0 {
+                    break "every source ended";
+                }
+                for ev in batch.drain(..) {
+                    st.handle(ev);
+                }
+            }
+            _ = tick.tick() => {
+                let t = st.clock.now_ns();
+                st.handle(Event::new(t, SESSION, Payload::Tick));
+                st.pipe.flush();
+            }
+            c = controls.recv(), if controls_open => match c {
+                Some(Control::Operator(action)) => {
+                    let t = st.clock.now_ns();
+                    st.handle(action.event(t));
+                }
+                Some(Control::Quit) => break "quit",
+                // A live run cannot pause, seek or change pace: its status,
+                // unchanged, is the answer the screens show.
+                Some(Control::Playback(_)) => st.sink.status(&st.pipe.status),
+                None => controls_open = false,
+            },
+            _ = async { tokio::time::sleep_until(deadline.expect("guarded")).await }, if deadline.is_some() => break "the duration passed",
+        }
+    };
+    // Tell the sources to stop, then record what they had already sent.
+    let _ = stop.send(true);
+    let drain_until = tokio::time::Instant::now() + Duration::from_secs(2);
+    loop {
+        tokio::select! {
+            n = input.recv_many(&mut batch, BATCH) => {
+                if n == 0 {
+                    break;
+                }
+                for ev in batch.drain(..) {
+                    st.handle(ev);
+                }
+            }
+            _ = tokio::time::sleep_until(drain_until) => break,
+        }
+    }
+    // End as a replay of the recording ends, so the two print the same.
+    st.pipe.end_of_stream(&st.sources, &mut st.snaps);
+    st.emit();
+    let events = st.events;
+    let (engine, recording) = st.pipe.close();
+    LiveOutcome { engine, events, recording, reason }
+}
+
+/// The figures a live session ends with, for the headless summary line:
+/// events taken and recorded, the arrival-to-applied latency (µs: p50, p99,
+/// max, from the histogram the feed screen shows) and the processor time
+/// the whole process used (user + system, seconds).
+pub fn figures(out: &LiveOutcome, latency: &LatencyHistogram) -> serde_json::Value {
+    let lat = match latency.lock() {
+        Ok(h) if !h.is_empty() => serde_json::json!({
+            "count": h.len(),
+            "p50": h.value_at_quantile(0.50),
+            "p99": h.value_at_quantile(0.99),
+            "max": h.max(),
+        }),
+        _ => serde_json::Value::Null,
+    };
+    serde_json::json!({
+        "events": out.events,
+        "recorded_events": out.recording.events,
+        "latency_us": lat,
+        "cpu_s": cpu_seconds(),
+        "ended": out.reason,
+    })
+}
+
+/// Processor time used by this process so far (user + system), seconds.
+pub fn cpu_seconds() -> f64 {
+    // SAFETY: getrusage fills the struct it is given.
+    let mut ru: libc::rusage = unsafe { std::mem::zeroed() };
+    if unsafe { libc::getrusage(libc::RUSAGE_SELF, &mut ru) } != 0 {
+        return f64::NAN;
+    }
+    let tv = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
+    tv(ru.ru_utime) + tv(ru.ru_stime)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::ConfigSet;
+    use crate::engine::EngineOptions;
+    use crate::record::RecordingReader;
+    use crate::stream::control::{Operator, Playback};
+
+    /// Keeps what a live run shows: statuses without a snapshot.
+    #[derive(Default)]
+    struct Shown {
+        statuses: Vec<StreamStatus>,
+    }
+
+    impl SnapshotSink for Shown {
+        fn snapshot(&mut self, _snap: Arc<Snapshot>, _status: &StreamStatus) {}
+        fn status(&mut self, status: &StreamStatus) {
+            self.statuses.push(status.clone());
+        }
+    }
+
+    #[tokio::test(start_paused = true)]
+    async fn live_records_marks_and_answers_playback_with_its_status() {
+        let config = Arc::new(ConfigSet::embedded());
+        let sources = SourceTable::default();
+        let dir = tempfile::tempdir().unwrap();
+        let rec = crate::record::create_recording(dir.path(), "live", &config, &sources).unwrap();
+        let path = rec.1.clone();
+        let opts = LiveOptions {
+            engine: Engine::new(config, EngineOptions::default()),
+            sources,
+            clock: SessionClock::start(),
+            recorder: Some(rec),
+            latency: None,
+            duration: None,
+        };
+        // The input stays open (a source that is quiet), so only the controls end the run.
+        let (_input_tx, input) = mpsc::channel(4);
+        let (ctl, controls) = mpsc::channel(4);
+        let (stop, stopped) = watch::channel(false);
+        for c in [
+            Control::Playback(Playback::TogglePause),
+            Control::Operator(Operator::Mark("boost on".into())),
+            Control::Playback(Playback::SeekBy(-5 * crate::event::NS_PER_S)),
+            Control::Quit,
+        ] {
+            ctl.send(c).await.unwrap();
+        }
+        let mut shown = Shown::default();
+        let out = run(opts, input, controls, stop, &mut shown).await;
+        assert_eq!(out.reason, "quit");
+        assert!(*stopped.borrow(), "the sources were told to stop");
+        assert_eq!(shown.statuses.len(), 2, "each playback control is answered");
+        for s in &shown.statuses {
+            assert!(!s.paused && s.speed == 1.0 && !s.finished, "unchanged: {s:?}");
+            assert_eq!(s.recording.as_deref(), Some(path.as_path()));
+        }
+        assert_eq!((out.recording.failures, out.recording.path.as_deref()), (0, Some(path.as_path())));
+        let mut r = RecordingReader::open(&path).unwrap();
+        let marks: Vec<Payload> = std::iter::from_fn(|| r.next_event())
+            .map(|e| e.payload)
+            .filter(|p| matches!(p, Payload::Mark(_)))
+            .collect();
+        assert_eq!(marks, vec![Payload::Mark("boost on".into())]);
+        assert_eq!(out.recording.events, out.events, "every event taken is recorded");
+    }
+}

@@ -1,0 +1,58 @@
+//! The contract between a running stream and whatever presents it: the
+//! status a driver keeps, and the sink that receives every snapshot with
+//! it (the screens keep the latest, the headless printer prints each one).
+
+use std::path::PathBuf;
+use std::sync::Arc;
+
+use crate::engine::Snapshot;
+use crate::event::TimeNs;
+
+/// Where a running stream is.
+#[derive(Clone, Debug, PartialEq)]
+pub struct StreamStatus {
+    /// Stream time of the first event (live: the session's start).
+    pub start_ns: Option<TimeNs>,
+    /// Stream time of the latest event fed.
+    pub position_ns: Option<TimeNs>,
+    /// Pace (a factor of real time; `f64::INFINITY` for as fast as
+    /// possible). Live streams run at 1.
+    pub speed: f64,
+    pub paused: bool,
+    pub finished: bool,
+    /// The recording being written; `None` when not recording, or once the
+    /// recording stopped after a failed write.
+    pub recording: Option<PathBuf>,
+    /// Writes to the recording that failed (it stops at the first).
+    pub record_failures: u64,
+    pub events_fed: u64,
+}
+
+impl Default for StreamStatus {
+    fn default() -> StreamStatus {
+        StreamStatus {
+            start_ns: None,
+            position_ns: None,
+            speed: 1.0,
+            paused: false,
+            finished: false,
+            recording: None,
+            record_failures: 0,
+            events_fed: 0,
+        }
+    }
+}
+
+/// Something that receives every snapshot with the stream's status. The
+/// headless printer takes every one; a screen keeps only the latest.
+pub trait SnapshotSink {
+    fn snapshot(&mut self, snap: Arc<Snapshot>, status: &StreamStatus);
+    /// Status changed without a new snapshot (pause, speed).
+    fn status(&mut self, _status: &StreamStatus) {}
+}
+
+impl<F: FnMut(Arc<Snapshot>, &StreamStatus)> SnapshotSink for F {
+    fn snapshot(&mut self, snap: Arc<Snapshot>, status: &StreamStatus) {
+        self(snap, status)
+    }
+}
