@@ -398,6 +398,17 @@ pub enum Payload {
     /// One line of text from a serial source, without its line ending. Bytes,
     /// not `String`: serial garbage is kept as it came.
     Line(Vec<u8>),
+    /// A serial line that its protocol's parser refused where it was read
+    /// (a serial CAN adapter's message that is not valid), with the error,
+    /// so the decoder counts it without parsing the bytes again. Recorded as
+    /// a [`Payload::Line`] (the bytes are what arrived); a replay parses the
+    /// line once and finds the same error.
+    BadLine {
+        /// The line as it came, without its line ending.
+        line: Vec<u8>,
+        /// The parse error, as the decoder counts and shows it.
+        error: String,
+    },
     /// An operator mark with its text.
     Mark(String),
     /// The operator acknowledged an alert (its key), or all (`*`).

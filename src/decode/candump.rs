@@ -10,8 +10,9 @@
 //! The parser is hand-written and allocation-free: it is the hot path of a
 //! replay and of a report on an hour-long log.
 
-use std::fmt;
+pub use super::syntax::FrameSyntaxError;
 
+use super::hex::{HEX, NOT_HEX};
 use crate::event::{CanFrame, CanId, DataFrame, ErrorFrame, FdFrame, RemoteFrame, TimeNs, err_class};
 
 /// Longest line accepted: a 64-byte FD frame with dots and a long interface
@@ -25,38 +26,6 @@ pub struct CandumpLine<'a> {
     pub iface: &'a str,
     pub frame: CanFrame,
 }
-
-/// Why a line is not a valid log line: the 1-based column and what was
-/// expected there.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct CandumpError {
-    pub column: usize,
-    pub expected: &'static str,
-}
-
-impl fmt::Display for CandumpError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "column {}: expected {}", self.column, self.expected)
-    }
-}
-
-impl std::error::Error for CandumpError {}
-
-const HEX: [u8; 256] = {
-    let mut t = [0xFFu8; 256];
-    let mut i = 0;
-    while i < 10 {
-        t[b'0' as usize + i] = i as u8;
-        i += 1;
-    }
-    let mut i = 0;
-    while i < 6 {
-        t[b'a' as usize + i] = 10 + i as u8;
-        t[b'A' as usize + i] = 10 + i as u8;
-        i += 1;
-    }
-    t
-};
 
 /// Eight ASCII decimal digits at `b[..8]` as a number, or `None` if any byte
 /// is not a digit (SWAR: the classic multiply-and-fold, Lemire's "fast
@@ -107,14 +76,14 @@ fn eight_hex(b: &[u8]) -> Option<[u8; 4]> {
 }
 
 #[inline(always)]
-fn err(column: usize, expected: &'static str) -> CandumpError {
-    CandumpError { column: column + 1, expected }
+fn err(column: usize, expected: &'static str) -> FrameSyntaxError {
+    FrameSyntaxError::at(column, expected)
 }
 
 /// Parses the timestamp of `(SECONDS.FRACTION)` starting at `line[0] == '('`.
 /// Returns the time and the index after `)`.
 #[inline]
-pub fn parse_time(line: &[u8]) -> Result<(TimeNs, usize), CandumpError> {
+pub fn parse_time(line: &[u8]) -> Result<(TimeNs, usize), FrameSyntaxError> {
     if line.first() != Some(&b'(') {
         return Err(err(0, "'(' opening the timestamp"));
     }
@@ -124,7 +93,7 @@ pub fn parse_time(line: &[u8]) -> Result<(TimeNs, usize), CandumpError> {
 /// Parses `?SECONDS.FRACTION<close>` where `line[0]` is any opening byte
 /// (the recording format uses `[...]` for events that are not CAN frames).
 #[inline]
-pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), CandumpError> {
+pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), FrameSyntaxError> {
     // Fast path for the common `(SSSSSSSSSS.UUUUUU)`: 10 digits of seconds,
     // 6 of microseconds, read eight at a time.
     if line.len() >= 19 && line[11] == b'.' && line[18] == close {
@@ -180,7 +149,7 @@ pub fn parse_time_between(line: &[u8], close: u8) -> Result<(TimeNs, usize), Can
 }
 
 /// Parses one log line (without its line ending).
-pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
+pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, FrameSyntaxError> {
     let (t_ns, iface, frame) = parse_line_bytes(line)?;
     let iface = std::str::from_utf8(iface)
         .map_err(|_| err(line.iter().position(|b| *b == b' ').unwrap_or(0) + 1, "an interface name in UTF-8"))?;
@@ -189,7 +158,7 @@ pub fn parse_line(line: &[u8]) -> Result<CandumpLine<'_>, CandumpError> {
 
 /// [`parse_line`] with the interface name left as bytes (the reader
 /// compares them with the previous line's before paying for validation).
-pub fn parse_line_bytes(line: &[u8]) -> Result<(TimeNs, &[u8], CanFrame), CandumpError> {
+pub fn parse_line_bytes(line: &[u8]) -> Result<(TimeNs, &[u8], CanFrame), FrameSyntaxError> {
     if line.len() > MAX_LINE {
         return Err(err(MAX_LINE, "a line of at most 512 bytes"));
     }
@@ -224,12 +193,12 @@ pub fn parse_line_bytes(line: &[u8]) -> Result<(TimeNs, &[u8], CanFrame), Candum
 /// Parses a frame in candump syntax starting at `line[i]`; returns the frame
 /// and the index after it.
 #[inline]
-pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), CandumpError> {
+pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), FrameSyntaxError> {
     let id_start = i;
     let mut id: u32 = 0;
     while i < line.len() {
         let v = HEX[line[i] as usize];
-        if v == 0xFF {
+        if v == NOT_HEX {
             break;
         }
         id = (id << 4) | v as u32;
@@ -262,7 +231,7 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
             i += 1;
             let mut dlc = 0u8;
             if let Some(&c) = line.get(i)
-                && HEX[c as usize] != 0xFF
+                && HEX[c as usize] != NOT_HEX
             {
                 dlc = HEX[c as usize];
                 if dlc > 8 {
@@ -272,7 +241,7 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
                 // Linux `len8_dlc` on a remote frame: `R8_<dlc>`.
                 if dlc == 8 && line.get(i) == Some(&b'_') {
                     match line.get(i + 1).map(|c| HEX[*c as usize]) {
-                        Some(d) if d != 0xFF => i += 2,
+                        Some(d) if d != NOT_HEX => i += 2,
                         _ => return Err(err(i + 1, "a hex DLC digit after '_'")),
                     }
                 }
@@ -285,7 +254,7 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
         Some(b'#') => {
             i += 1;
             let flags = match line.get(i).map(|c| HEX[*c as usize]) {
-                Some(v) if v != 0xFF => v,
+                Some(v) if v != NOT_HEX => v,
                 _ => return Err(err(i, "a hex flags digit after '##'")),
             };
             i += 1;
@@ -304,7 +273,7 @@ pub fn parse_frame_at(line: &[u8], mut i: usize) -> Result<(CanFrame, usize), Ca
             let (n, mut end) = parse_data(line, i, &mut data, 8)?;
             // Linux `len8_dlc`: `_<dlc>` after 8 bytes; the payload is what counts.
             if line.get(end) == Some(&b'_') && n == 8 {
-                if line.get(end + 1).is_some_and(|c| HEX[*c as usize] != 0xFF) {
+                if line.get(end + 1).is_some_and(|c| HEX[*c as usize] != NOT_HEX) {
                     end += 2;
                 } else {
                     return Err(err(end + 1, "a hex DLC digit after '_'"));
@@ -327,7 +296,7 @@ fn parse_data<const N: usize>(
     mut i: usize,
     out: &mut [u8; N],
     max: usize,
-) -> Result<(usize, usize), CandumpError> {
+) -> Result<(usize, usize), FrameSyntaxError> {
     let mut n = 0;
     // Fast path: eight hex digits at a time while they last.
     while n + 4 <= max
@@ -340,16 +309,16 @@ fn parse_data<const N: usize>(
     while i < line.len() {
         let c = line[i];
         // One '.' may separate two bytes (can-utils' own rule).
-        if c == b'.' && n > 0 && line.get(i + 1).is_some_and(|d| HEX[*d as usize] != 0xFF) {
+        if c == b'.' && n > 0 && line.get(i + 1).is_some_and(|d| HEX[*d as usize] != NOT_HEX) {
             i += 1;
             continue;
         }
         let hi = HEX[c as usize];
-        if hi == 0xFF {
+        if hi == NOT_HEX {
             break;
         }
         let lo = match line.get(i + 1) {
-            Some(&d) if HEX[d as usize] != 0xFF => HEX[d as usize],
+            Some(&d) if HEX[d as usize] != NOT_HEX => HEX[d as usize],
             _ => return Err(err(i + 1, "two hex digits per data byte")),
         };
         if n == max {
@@ -479,7 +448,7 @@ mod tests {
         let e = |s: &str| parse_line(s.as_bytes()).unwrap_err();
         assert_eq!(
             e("1436509052.249713) can0 044#00"),
-            CandumpError { column: 1, expected: "'(' opening the timestamp" }
+            FrameSyntaxError { column: 1, expected: "'(' opening the timestamp" }
         );
         assert_eq!(e("(1.0) can0 0444#00").column, 12);
         assert_eq!(e("(1.0) can0 800#00").expected, "a standard id up to 7FF");
@@ -514,7 +483,7 @@ mod tests {
             for b in 0..=255u8 {
                 let mut s = *b"00000000";
                 s[pos] = b;
-                assert_eq!(eight_hex(&s).is_some(), HEX[b as usize] != 0xFF, "byte {b:#x} at {pos}");
+                assert_eq!(eight_hex(&s).is_some(), HEX[b as usize] != NOT_HEX, "byte {b:#x} at {pos}");
                 assert_eq!(eight_digits(&s).is_some(), b.is_ascii_digit(), "byte {b:#x} at {pos}");
             }
         }

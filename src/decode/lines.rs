@@ -49,6 +49,8 @@
 use std::fmt;
 use std::fmt::Write as _;
 
+use super::hex::{HEX, NOT_HEX};
+
 /// Longest line accepted, not counting a trailing `\r`.
 pub const MAX_LINE: usize = 256;
 
@@ -102,22 +104,6 @@ impl fmt::Display for LinesError {
 }
 
 impl std::error::Error for LinesError {}
-
-const HEX: [u8; 256] = {
-    let mut t = [0xFFu8; 256];
-    let mut i = 0;
-    while i < 10 {
-        t[b'0' as usize + i] = i as u8;
-        i += 1;
-    }
-    let mut i = 0;
-    while i < 6 {
-        t[b'a' as usize + i] = 10 + i as u8;
-        t[b'A' as usize + i] = 10 + i as u8;
-        i += 1;
-    }
-    t
-};
 
 /// CRC-8/SMBUS lookup table: the CRC of each single byte.
 const CRC8_TABLE: [u8; 256] = {
@@ -173,8 +159,8 @@ fn parse_into<'a>(line: &'a [u8], out: &mut Vec<Field<'a>>) -> Result<(), LinesE
     };
     let mut found = 0u8;
     for k in 1..=2 {
-        let v = line.get(hash + k).map_or(0xFF, |&c| HEX[usize::from(c)]);
-        if v == 0xFF {
+        let v = line.get(hash + k).map_or(NOT_HEX, |&c| HEX[usize::from(c)]);
+        if v == NOT_HEX {
             return Err(LinesError::BadChecksumDigits { column: hash + k + 1 });
         }
         found = (found << 4) | v;

@@ -8,9 +8,12 @@
 pub mod busload;
 pub mod can;
 pub mod candump;
+pub mod hex;
 pub mod lines;
 pub mod nmea;
+pub mod serial;
 pub mod slcan;
+pub mod syntax;
 
 pub use can::{CanCounters, CanMap, Sample};
 
@@ -87,12 +90,16 @@ impl Decoder {
             (Payload::Can(frame), _) => self.can.decode(ev.t_ns, frame, out),
             (Payload::Line(line), SourceKind::Nmea) => self.decode_nmea(ev.t_ns, ev.source, line, out),
             (Payload::Line(line), SourceKind::Lines) => self.decode_lines(ev.t_ns, ev.source, line, out),
-            // A CAN source's line: what a serial CAN adapter sent that the
-            // source could not take as a frame.
-            (Payload::Line(line), SourceKind::Can) => match slcan::parse(line) {
-                Ok(slcan::SlcanMsg::Frame { frame, .. }) => self.can.decode(ev.t_ns, &frame, out),
-                Ok(_) => {}
-                Err(e) => self.parse_error(ev.source, format!("CAN adapter: {e}")),
+            // Refused where it was read, error included: counted, not
+            // parsed again.
+            (Payload::BadLine { error, .. }, _) => self.parse_error(ev.source, error.clone()),
+            // A CAN source's line, read back from a recording: what a serial
+            // CAN adapter sent that was not a frame (recorded as a line).
+            // This is its one parse in a replay.
+            (Payload::Line(line), SourceKind::Can) => match serial::adapter_message(line) {
+                Ok(Some(frame)) => self.can.decode(ev.t_ns, &frame, out),
+                Ok(None) => {}
+                Err(e) => self.parse_error(ev.source, serial::adapter_error(&e)),
             },
             _ => {}
         }

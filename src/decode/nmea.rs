@@ -26,6 +26,7 @@ pub const MAX_SENTENCE: usize = 82;
 /// talkers exceed [`MAX_SENTENCE`]; anything longer is corrupt.
 pub const MAX_ACCEPTED: usize = 120;
 
+use super::hex::{HEX, NOT_HEX};
 use crate::units::KNOT_MPS;
 
 /// Fields kept for lookup (the address and 23 fields): more than any
@@ -146,22 +147,6 @@ impl fmt::Display for NmeaError {
 
 impl std::error::Error for NmeaError {}
 
-const HEX: [u8; 256] = {
-    let mut t = [0xFFu8; 256];
-    let mut i = 0;
-    while i < 10 {
-        t[b'0' as usize + i] = i as u8;
-        i += 1;
-    }
-    let mut i = 0;
-    while i < 6 {
-        t[b'a' as usize + i] = 10 + i as u8;
-        t[b'A' as usize + i] = 10 + i as u8;
-        i += 1;
-    }
-    t
-};
-
 /// The NMEA checksum of `body`, the bytes strictly between `$` and `*`:
 /// their XOR.
 pub fn checksum(body: &[u8]) -> u8 {
@@ -195,8 +180,8 @@ pub fn parse_sentence(line: &[u8]) -> Result<Option<NmeaData>, NmeaError> {
     };
     let mut found = 0u8;
     for k in 1..=2 {
-        let v = line.get(star + k).map_or(0xFF, |&c| HEX[c as usize]);
-        if v == 0xFF {
+        let v = line.get(star + k).map_or(NOT_HEX, |&c| HEX[c as usize]);
+        if v == NOT_HEX {
             return Err(NmeaError::BadChecksumDigits { column: star + k + 1 });
         }
         found = (found << 4) | v;

@@ -25,8 +25,9 @@
 //!
 //! The parser is hand-written and allocates only for [`SlcanMsg::Other`].
 
-use std::fmt;
+pub use super::syntax::FrameSyntaxError;
 
+use super::hex::{HEX, NOT_HEX};
 use crate::event::{CanFrame, CanId, DataFrame, FdFrame, RemoteFrame, fd_flags};
 
 /// Longest message accepted, without its `\r`: `B`, 8 id digits, the DLC,
@@ -55,37 +56,6 @@ pub enum SlcanMsg {
     Other(Vec<u8>),
 }
 
-/// Why a message is not valid: the 1-based column and what was expected there.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub struct SlcanError {
-    pub column: usize,
-    pub expected: &'static str,
-}
-
-impl fmt::Display for SlcanError {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        write!(f, "column {}: expected {}", self.column, self.expected)
-    }
-}
-
-impl std::error::Error for SlcanError {}
-
-const HEX: [u8; 256] = {
-    let mut t = [0xFFu8; 256];
-    let mut i = 0;
-    while i < 10 {
-        t[b'0' as usize + i] = i as u8;
-        i += 1;
-    }
-    let mut i = 0;
-    while i < 6 {
-        t[b'a' as usize + i] = 10 + i as u8;
-        t[b'A' as usize + i] = 10 + i as u8;
-        i += 1;
-    }
-    t
-};
-
 const DIGITS: &[u8; 16] = b"0123456789ABCDEF";
 
 /// Bit rates of the `Sn` command, in bit/s, indexed by `n`.
@@ -93,8 +63,8 @@ const BITRATES: [u32; 9] = [10_000, 20_000, 50_000, 100_000, 125_000, 250_000, 5
 
 /// An error at the 0-based index `i`.
 #[inline(always)]
-fn err(i: usize, expected: &'static str) -> SlcanError {
-    SlcanError { column: i + 1, expected }
+fn err(i: usize, expected: &'static str) -> FrameSyntaxError {
+    FrameSyntaxError::at(i, expected)
 }
 
 /// Splits the first complete message off `buf`: returns it without its
@@ -112,7 +82,7 @@ pub fn split_message(buf: &[u8]) -> Option<(&[u8], usize)> {
 
 /// Parses one message from the adapter, without its `\r` (a trailing `\r`
 /// is tolerated).
-pub fn parse(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
+pub fn parse(line: &[u8]) -> Result<SlcanMsg, FrameSyntaxError> {
     let line = line.strip_suffix(b"\r").unwrap_or(line);
     if line.len() > MAX_MESSAGE {
         return Err(err(MAX_MESSAGE, "a message of at most 142 bytes"));
@@ -126,10 +96,10 @@ pub fn parse(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
         b't' | b'T' | b'r' | b'R' | b'd' | b'D' | b'b' | b'B' => parse_frame(line),
         b'F' => {
             let (hi, lo) = (hex_at(line, 1), hex_at(line, 2));
-            if hi == 0xFF {
+            if hi == NOT_HEX {
                 return Err(err(1, "two hex digits of status flags"));
             }
-            if lo == 0xFF {
+            if lo == NOT_HEX {
                 return Err(err(2, "two hex digits of status flags"));
             }
             if line.len() > 3 {
@@ -147,13 +117,13 @@ pub fn parse(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
     }
 }
 
-/// The hex value of `line[i]`, or 0xFF when it is missing or not hex.
+/// The hex value of `line[i]`, or `NOT_HEX` when it is missing or not hex.
 #[inline]
 fn hex_at(line: &[u8], i: usize) -> u8 {
-    line.get(i).map_or(0xFF, |&c| HEX[c as usize])
+    line.get(i).map_or(NOT_HEX, |&c| HEX[c as usize])
 }
 
-fn parse_frame(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
+fn parse_frame(line: &[u8]) -> Result<SlcanMsg, FrameSyntaxError> {
     let letter = line[0];
     let extended = letter.is_ascii_uppercase();
     let remote = matches!(letter, b'r' | b'R');
@@ -164,7 +134,7 @@ fn parse_frame(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
     let mut id: u32 = 0;
     for i in 1..=id_digits {
         let v = hex_at(line, i);
-        if v == 0xFF {
+        if v == NOT_HEX {
             return Err(err(
                 i,
                 if extended { "8 hex digits of an extended id" } else { "3 hex digits of a standard id" },
@@ -180,7 +150,7 @@ fn parse_frame(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
 
     let mut i = 1 + id_digits;
     let dlc = hex_at(line, i);
-    if dlc == 0xFF {
+    if dlc == NOT_HEX {
         return Err(err(i, if fd { "a DLC digit 0-F" } else { "a DLC digit 0-8" }));
     }
     if !fd && dlc > 8 {
@@ -192,10 +162,10 @@ fn parse_frame(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
     let mut data = [0u8; 64];
     for byte in data.iter_mut().take(len) {
         let (hi, lo) = (hex_at(line, i), hex_at(line, i + 1));
-        if hi == 0xFF {
+        if hi == NOT_HEX {
             return Err(err(i, "two hex digits per data byte, as many bytes as the DLC says"));
         }
-        if lo == 0xFF {
+        if lo == NOT_HEX {
             return Err(err(i + 1, "two hex digits per data byte, as many bytes as the DLC says"));
         }
         *byte = (hi << 4) | lo;
@@ -208,7 +178,7 @@ fn parse_frame(line: &[u8]) -> Result<SlcanMsg, SlcanError> {
             let mut t: u16 = 0;
             for k in 0..4 {
                 let v = hex_at(line, i + k);
-                if v == 0xFF {
+                if v == NOT_HEX {
                     return Err(err(i + k, "a hex digit of the 4-digit timestamp"));
                 }
                 t = (t << 4) | u16::from(v);
@@ -314,7 +284,7 @@ mod tests {
         CanFrame::Data(DataFrame::new(id, bytes).expect("test frame"))
     }
 
-    fn e(s: &[u8]) -> SlcanError {
+    fn e(s: &[u8]) -> FrameSyntaxError {
         match parse(s) {
             Err(e) => e,
             other => panic!("{}: expected an error, got {other:?}", String::from_utf8_lossy(s)),
@@ -413,32 +383,33 @@ mod tests {
 
     #[test]
     fn errors_say_where_and_what() {
-        assert_eq!(e(b"t1239"), SlcanError { column: 5, expected: "a DLC digit 0-8" });
-        assert_eq!(e(b"r123A"), SlcanError { column: 5, expected: "a DLC digit 0-8" });
-        assert_eq!(e(b"T1234567890"), SlcanError { column: 10, expected: "a DLC digit 0-8" });
-        assert_eq!(e(b"t123"), SlcanError { column: 5, expected: "a DLC digit 0-8" });
-        assert_eq!(e(b"d123"), SlcanError { column: 5, expected: "a DLC digit 0-F" });
-        assert_eq!(e(b"t12G0"), SlcanError { column: 4, expected: "3 hex digits of a standard id" });
-        assert_eq!(e(b"T1230"), SlcanError { column: 6, expected: "8 hex digits of an extended id" });
-        assert_eq!(e(b"t8000"), SlcanError { column: 2, expected: "a standard id up to 7FF" });
-        assert_eq!(e(b"T200000000"), SlcanError { column: 2, expected: "an extended id up to 1FFFFFFF" });
+        assert_eq!(e(b"t1239"), FrameSyntaxError { column: 5, expected: "a DLC digit 0-8" });
+        assert_eq!(e(b"r123A"), FrameSyntaxError { column: 5, expected: "a DLC digit 0-8" });
+        assert_eq!(e(b"T1234567890"), FrameSyntaxError { column: 10, expected: "a DLC digit 0-8" });
+        assert_eq!(e(b"t123"), FrameSyntaxError { column: 5, expected: "a DLC digit 0-8" });
+        assert_eq!(e(b"d123"), FrameSyntaxError { column: 5, expected: "a DLC digit 0-F" });
+        assert_eq!(e(b"t12G0"), FrameSyntaxError { column: 4, expected: "3 hex digits of a standard id" });
+        assert_eq!(e(b"T1230"), FrameSyntaxError { column: 6, expected: "8 hex digits of an extended id" });
+        assert_eq!(e(b"t8000"), FrameSyntaxError { column: 2, expected: "a standard id up to 7FF" });
+        assert_eq!(e(b"T200000000"), FrameSyntaxError { column: 2, expected: "an extended id up to 1FFFFFFF" });
         // Odd hex: the last byte has one digit.
-        let odd = SlcanError { column: 9, expected: "two hex digits per data byte, as many bytes as the DLC says" };
-        assert_eq!(e(b"t1232"), SlcanError { column: 6, ..odd });
-        assert_eq!(e(b"t12321"), SlcanError { column: 7, ..odd });
+        let odd =
+            FrameSyntaxError { column: 9, expected: "two hex digits per data byte, as many bytes as the DLC says" };
+        assert_eq!(e(b"t1232"), FrameSyntaxError { column: 6, ..odd });
+        assert_eq!(e(b"t12321"), FrameSyntaxError { column: 7, ..odd });
         assert_eq!(e(b"t1232112"), odd);
-        assert_eq!(e(b"t123211X2"), SlcanError { column: 8, ..odd });
+        assert_eq!(e(b"t123211X2"), FrameSyntaxError { column: 8, ..odd });
         // Data longer than the DLC says (by one byte, or three).
         let long = "the end of the message or a 4-digit timestamp after the DLC's data bytes";
-        assert_eq!(e(b"t12311122"), SlcanError { column: 8, expected: long });
-        assert_eq!(e(b"t12321122334455"), SlcanError { column: 10, expected: long });
+        assert_eq!(e(b"t12311122"), FrameSyntaxError { column: 8, expected: long });
+        assert_eq!(e(b"t12321122334455"), FrameSyntaxError { column: 10, expected: long });
         // Trailing junk.
-        assert_eq!(e(b"t1230 "), SlcanError { column: 6, expected: long });
-        assert_eq!(e(b"t1230xyzw"), SlcanError { column: 6, expected: "a hex digit of the 4-digit timestamp" });
-        assert_eq!(e(b"t1230EA60"), SlcanError { column: 6, expected: "a timestamp up to EA5F (59999 ms)" });
-        assert_eq!(e(b"F0"), SlcanError { column: 3, expected: "two hex digits of status flags" });
-        assert_eq!(e(b"F000"), SlcanError { column: 4, expected: "the end of the status message" });
-        assert_eq!(e(b"\x07t"), SlcanError { column: 2, expected: "nothing after BEL" });
+        assert_eq!(e(b"t1230 "), FrameSyntaxError { column: 6, expected: long });
+        assert_eq!(e(b"t1230xyzw"), FrameSyntaxError { column: 6, expected: "a hex digit of the 4-digit timestamp" });
+        assert_eq!(e(b"t1230EA60"), FrameSyntaxError { column: 6, expected: "a timestamp up to EA5F (59999 ms)" });
+        assert_eq!(e(b"F0"), FrameSyntaxError { column: 3, expected: "two hex digits of status flags" });
+        assert_eq!(e(b"F000"), FrameSyntaxError { column: 4, expected: "the end of the status message" });
+        assert_eq!(e(b"\x07t"), FrameSyntaxError { column: 2, expected: "nothing after BEL" });
         assert_eq!(e(b"V10\x0013").column, 4);
         assert_eq!(e(b"\xFFt1230").column, 1);
         assert_eq!(e(&[b'B'; 200]).column, 143);

@@ -288,7 +288,7 @@ impl Engine {
                     h.lost_arbitration += u64::from(e.is_lost_arbitration());
                 }
             }
-            Payload::Line(_) => self.health[idx].lines += 1,
+            Payload::Line(_) | Payload::BadLine { .. } => self.health[idx].lines += 1,
             Payload::Mark(text) => self.marks.push((ev.t_ns, text.clone())),
             Payload::Ack(key) => self.alerts.ack(ev.t_ns, key),
             Payload::Link(state, reason) => {

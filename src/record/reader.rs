@@ -13,7 +13,7 @@ use std::path::Path;
 
 use super::{Header, MAGIC, MAX_LINE, VERSION, unescape};
 use crate::config::{ConfigKind, ConfigText};
-use crate::decode::candump::{self, CandumpError};
+use crate::decode::candump::{self, FrameSyntaxError};
 use crate::event::{Event, LinkState, Payload, SourceKind, SourceTable, TimeNs};
 
 /// A recording that cannot be read at all.
@@ -44,7 +44,7 @@ pub enum BodyError {
     Read(io::Error),
     /// A `(time) iface id#data` line that candump syntax does not accept.
     #[error("CAN line: {0}")]
-    Can(CandumpError),
+    Can(FrameSyntaxError),
     /// A CAN line whose interface name is not UTF-8.
     #[error("CAN line: the interface name is not UTF-8")]
     CanInterfaceNotUtf8,
@@ -53,7 +53,7 @@ pub enum BodyError {
     NotCanSource(String),
     /// The time of a `[time] source kind …` line does not parse.
     #[error("event line: {0}")]
-    EventTime(CandumpError),
+    EventTime(FrameSyntaxError),
     /// No space between an event line's time and its source.
     #[error("event line: expected a space after the time")]
     NoSpaceAfterTime,

@@ -133,7 +133,9 @@ pub fn format_event(out: &mut Vec<u8>, ev: &Event, source_name: &str) {
     out.extend_from_slice(source_name.as_bytes());
     match &ev.payload {
         Payload::Can(_) => unreachable!("handled above"),
-        Payload::Line(bytes) => {
+        // A bad line is recorded as the line it was: a replay finds its
+        // error again.
+        Payload::Line(bytes) | Payload::BadLine { line: bytes, .. } => {
             out.extend_from_slice(b" line ");
             escape_into(out, bytes);
         }

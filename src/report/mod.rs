@@ -24,7 +24,7 @@ use crate::engine::derived::AirOrigin;
 use crate::engine::estimators::DeratingFit;
 use crate::engine::{Derived, Engine, EngineOptions, Snapshot};
 use crate::event::{NS_PER_S, Payload, SourceKind, TimeNs};
-use crate::record::RecordingReader;
+use crate::record::{RecordingError, RecordingReader};
 
 /// Snapshot interval of a report, ns.
 pub const REPORT_EVERY_NS: TimeNs = NS_PER_S / 10;
@@ -133,6 +133,35 @@ pub struct Run {
     pub torn_tail_line: Option<u64>,
 }
 
+/// Why a run cannot be reported on.
+#[derive(Debug, thiserror::Error)]
+pub enum ReportError {
+    /// The file could not be opened.
+    #[error("{}: {source}", file.display())]
+    Open {
+        /// The file asked for.
+        file: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    /// The file is not a recording that can be read (unreadable, or its
+    /// header is damaged).
+    #[error(transparent)]
+    Recording(#[from] RecordingError),
+    /// No usable config: the one given does not load, or the one embedded in
+    /// the recording is not valid for this build. The message says which and
+    /// what to do.
+    #[error(transparent)]
+    Config(#[from] crate::record::ConfigChoiceError),
+    /// The file holds no events.
+    #[error("{}: no events to report on", file.display())]
+    NoEvents {
+        /// The file read.
+        file: PathBuf,
+    },
+}
+
+
 /// A reader that counts the bytes read through it (for the progress bar).
 struct Counting<R> {
     inner: R,
@@ -152,13 +181,12 @@ impl Run {
     /// engine. `config` overrides the recording's own (a candump log without
     /// one gets the built-in demo set). `progress` is called now and then
     /// with (bytes read, file size).
-    pub fn read(file: &Path, config: &[PathBuf], progress: &mut dyn FnMut(u64, u64)) -> Result<Run, String> {
-        let f = std::fs::File::open(file).map_err(|e| format!("{}: {e}", file.display()))?;
+    pub fn read(file: &Path, config: &[PathBuf], progress: &mut dyn FnMut(u64, u64)) -> Result<Run, ReportError> {
+        let f = std::fs::File::open(file).map_err(|source| ReportError::Open { file: file.to_path_buf(), source })?;
         let size = f.metadata().map(|m| m.len()).unwrap_or(0);
         let read = Arc::new(AtomicU64::new(0));
-        let mut r = RecordingReader::new(Counting { inner: f, read: read.clone() }, &file.display().to_string())
-            .map_err(|e| e.to_string())?;
-        let (cfg, origin) = r.header.config_set(config, file).map_err(|e| e.to_string())?;
+        let mut r = RecordingReader::new(Counting { inner: f, read: read.clone() }, &file.display().to_string())?;
+        let (cfg, origin) = r.header.config_set(config, file)?;
         let cfg = Arc::new(cfg);
         let mut engine = Engine::new(cfg.clone(), EngineOptions { snapshot_every_ns: REPORT_EVERY_NS });
         let mut rows = Vec::new();
@@ -176,7 +204,7 @@ impl Run {
             }
         }
         let sources_table = r.header.sources.clone();
-        let start = start_ns.ok_or_else(|| format!("{}: no events to report on", file.display()))?;
+        let start = start_ns.ok_or_else(|| ReportError::NoEvents { file: file.to_path_buf() })?;
         engine.finish(&sources_table, &mut |s| rows.push(Row::of(&s, start)));
         progress(size, size);
         let end = engine.now_ns().unwrap_or(start);
@@ -720,4 +748,43 @@ pub fn json(runs: &[Summary]) -> serde_json::Value {
         });
     }
     v
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn read(file: &Path) -> Result<Run, ReportError> {
+        Run::read(file, &[], &mut |_, _| {})
+    }
+
+    #[test]
+    fn errors_say_which_file_and_why() {
+        let dir = tempfile::tempdir().unwrap();
+        let missing = dir.path().join("missing.tvrec");
+        let e = read(&missing).unwrap_err();
+        assert!(matches!(&e, ReportError::Open { file, .. } if file == &missing), "{e:?}");
+        assert!(e.to_string().starts_with(&format!("{}: ", missing.display())), "{e}");
+
+        let empty = dir.path().join("empty.log");
+        std::fs::write(&empty, b"").unwrap();
+        let e = read(&empty).unwrap_err();
+        assert!(matches!(&e, ReportError::NoEvents { file } if file == &empty), "{e:?}");
+        assert_eq!(e.to_string(), format!("{}: no events to report on", empty.display()));
+
+        // A damaged header: the reader's own error, unchanged.
+        let damaged = dir.path().join("damaged.tvrec");
+        std::fs::write(&damaged, b"%termvel-recording 1\n%source can0 nonsense\n").unwrap();
+        let e = read(&damaged).unwrap_err();
+        assert!(matches!(e, ReportError::Recording(RecordingError::Header { .. })), "{e:?}");
+    }
+
+    #[test]
+    fn a_candump_log_reads_with_the_built_in_config() {
+        let dir = tempfile::tempdir().unwrap();
+        let log = dir.path().join("short.log");
+        std::fs::write(&log, b"(1.000000) can0 123#00\n(1.500000) can0 123#01\n").unwrap();
+        let run = read(&log).unwrap();
+        assert_eq!((run.events, run.can_frames, run.name().as_str()), (2, 2, "short.log"));
+    }
 }

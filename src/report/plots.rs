@@ -41,10 +41,49 @@ fn fonts() {
     });
 }
 
-type Res = Result<(), String>;
+/// Why the plots could not be written: the file (or folder) and what failed.
+#[derive(Debug, thiserror::Error)]
+pub enum PlotError {
+    /// The folder for the plots could not be created.
+    #[error("{}: {source}", dir.display())]
+    CreateDir {
+        /// The folder asked for.
+        dir: PathBuf,
+        #[source]
+        source: std::io::Error,
+    },
+    /// Drawing or writing one plot file failed.
+    #[error("{}: {what}: {source}", file.display())]
+    Draw {
+        /// The SVG or PNG file being written.
+        file: PathBuf,
+        /// The step that failed, in words ("drawing a series").
+        what: &'static str,
+        /// The drawing library's error. Boxed: its type depends on the
+        /// backend (SVG or bitmap), and each plot is drawn with both.
+        #[source]
+        source: Box<dyn std::error::Error + Send + Sync>,
+    },
+}
 
-fn err<E: std::fmt::Debug>(e: E) -> String {
-    format!("plot: {e:?}")
+/// A drawing step that failed, before the file it was drawing is known.
+#[derive(Debug)]
+struct DrawError {
+    what: &'static str,
+    source: Box<dyn std::error::Error + Send + Sync>,
+}
+
+impl DrawError {
+    fn in_file(self, file: &Path) -> PlotError {
+        PlotError::Draw { file: file.to_path_buf(), what: self.what, source: self.source }
+    }
+}
+
+type Res = Result<(), DrawError>;
+
+/// Names the step for a plotters error.
+fn fail<E: std::error::Error + Send + Sync + 'static>(what: &'static str) -> impl FnOnce(E) -> DrawError {
+    move |e| DrawError { what, source: Box::new(e) }
 }
 
 /// Range with a little room, never empty.
@@ -69,12 +108,18 @@ type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<RangedCoordf64, RangedCoor
 
 /// The grid and the two axis titles (light lines left out: they blur in
 /// black and white).
-fn axes<DB: DrawingBackend>(chart: &mut Chart<'_, DB>, x: &str, y: &str) -> Res {
-    chart.configure_mesh().x_desc(x).y_desc(y).light_line_style(WHITE.mix(0.0)).draw().map_err(err)
+fn axes<DB: DrawingBackend>(chart: &mut Chart<'_, DB>, x: &str, y: &str) -> Res
+where
+    DB::ErrorType: 'static,
+{
+    chart.configure_mesh().x_desc(x).y_desc(y).light_line_style(WHITE.mix(0.0)).draw().map_err(fail("drawing the axes"))
 }
 
 /// The legend box, where the plot leaves room for it.
-fn legend<'a, DB: DrawingBackend + 'a>(chart: &mut Chart<'a, DB>, at: SeriesLabelPosition) -> Res {
+fn legend<'a, DB: DrawingBackend + 'a>(chart: &mut Chart<'a, DB>, at: SeriesLabelPosition) -> Res
+where
+    DB::ErrorType: 'static,
+{
     chart
         .configure_series_labels()
         .position(at)
@@ -82,11 +127,14 @@ fn legend<'a, DB: DrawingBackend + 'a>(chart: &mut Chart<'a, DB>, at: SeriesLabe
         .border_style(BLACK)
         .label_font((FONT, 14))
         .draw()
-        .map_err(err)
+        .map_err(fail("drawing the legend"))
 }
 
-fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&Run, &Summary)]) -> Res {
-    area.fill(&WHITE).map_err(err)?;
+fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&Run, &Summary)]) -> Res
+where
+    DB::ErrorType: 'static,
+{
+    area.fill(&WHITE).map_err(fail("filling the background"))?;
     let xs = range(runs.iter().flat_map(|(r, _)| r.rows.iter().map(|x| x.distance_m / 1000.0)), true);
     let top = runs.iter().map(|(_, s)| s.target_speed_mps * 3.6).fold(0.0, f64::max);
     let ys = range(
@@ -99,7 +147,7 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
         .x_label_area_size(45)
         .y_label_area_size(65)
         .build_cartesian_2d(xs.clone(), ys.clone())
-        .map_err(err)?;
+        .map_err(fail("laying out the chart"))?;
     axes(&mut chart, "distance, km", "speed, km/h")?;
     let styles = [BLACK.stroke_width(2), DARK_BLUE.stroke_width(2)];
     for (i, (run, _)) in runs.iter().enumerate() {
@@ -110,13 +158,13 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
         if i == 0 {
             chart
                 .draw_series(LineSeries::new(pts, style))
-                .map_err(err)?
+                .map_err(fail("drawing a series"))?
                 .label(label)
                 .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], style));
         } else {
             chart
                 .draw_series(DashedLineSeries::new(pts, 10, 6, style))
-                .map_err(err)?
+                .map_err(fail("drawing a series"))?
                 .label(format!("{label} (dashed)"))
                 .legend(move |(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 8, 5, style));
         }
@@ -126,18 +174,18 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
     let target = s.target_speed_mps * 3.6;
     chart
         .draw_series(DashedLineSeries::new(vec![(xs.start, target), (xs.end, target)], 4, 4, GREY.stroke_width(1)))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label(format!("target {target:.0} km/h (dotted)"))
         .legend(|(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 3, 3, GREY.stroke_width(1)));
     chart
         .draw_series(LineSeries::new(v_line(s.stop_by_m / 1000.0), DARK_RED.stroke_width(3)))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label("stop by (thick)")
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], DARK_RED.stroke_width(3)));
     if let Some(bp) = s.latest_brake_point_m {
         chart
             .draw_series(DashedLineSeries::new(v_line(bp / 1000.0), 12, 4, DARK_RED.stroke_width(1)))
-            .map_err(err)?
+            .map_err(fail("drawing a series"))?
             .label("latest braking point at the peak (long dashes)")
             .legend(|(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 10, 4, DARK_RED.stroke_width(1)));
     }
@@ -148,7 +196,7 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
                 9,
                 BLACK.filled(),
             )))
-            .map_err(err)?
+            .map_err(fail("drawing a series"))?
             .label("braking began (triangle)")
             .legend(|(x, y)| TriangleMarker::new((x + 8, y), 6, BLACK.filled()));
     }
@@ -156,8 +204,11 @@ fn speed_distance<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, runs: &[(&R
     Ok(())
 }
 
-fn power_speed<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Summary) -> Res {
-    area.fill(&WHITE).map_err(err)?;
+fn power_speed<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Summary) -> Res
+where
+    DB::ErrorType: 'static,
+{
+    area.fill(&WHITE).map_err(fail("filling the background"))?;
     let veh = &run.config.vehicle;
     // Driving, not braking: the points where demand and availability mean
     // something against each other.
@@ -209,36 +260,39 @@ fn power_speed<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: 
         .x_label_area_size(45)
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..vmax * 3.6, ys)
-        .map_err(err)?;
+        .map_err(fail("laying out the chart"))?;
     axes(&mut chart, "speed, km/h", "power, kW")?;
     let every = (demand.len() / 1500).max(1);
     chart
         .draw_series(demand.iter().step_by(every).map(|p| Circle::new(*p, 2, GREY.stroke_width(1))))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label("demand at 50 % throttle or more: road load + inertia (circles)")
         .legend(|(x, y)| Circle::new((x + 8, y), 3, GREY.stroke_width(1)));
     chart
         .draw_series(avail.iter().step_by(every).map(|p| Cross::new(*p, 3, DARK_BLUE.stroke_width(1))))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label("available (crosses)")
         .legend(|(x, y)| Cross::new((x + 8, y), 3, DARK_BLUE.stroke_width(1)));
     let e = &s.estimate;
     chart
         .draw_series(LineSeries::new(fitted, BLACK.stroke_width(2)))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label(format!("road load, fitted: CdA {:.3} m², Crr {:.4}", e.cda_m2, e.crr))
         .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLACK.stroke_width(2)));
     chart
         .draw_series(DashedLineSeries::new(prior, 8, 5, BLACK.stroke_width(1)))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label(format!("road load, vehicle file: CdA {:.3} m², Crr {:.4} (dashed)", veh.cda_m2, veh.crr0))
         .legend(|(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 7, 4, BLACK.stroke_width(1)));
     legend(&mut chart, SeriesLabelPosition::UpperLeft)?;
     Ok(())
 }
 
-fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Summary) -> Res {
-    area.fill(&WHITE).map_err(err)?;
+fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Summary) -> Res
+where
+    DB::ErrorType: 'static,
+{
+    area.fill(&WHITE).map_err(fail("filling the background"))?;
     let rated = run.last.battery.rated_w;
     let boost: Vec<_> = run.rows.iter().filter(|r| r.boosting).collect();
     let power: Vec<(f64, f64)> =
@@ -253,16 +307,16 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
         .x_label_area_size(45)
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..tmax * 1.02, ys)
-        .map_err(err)?;
+        .map_err(fail("laying out the chart"))?;
     axes(&mut chart, "time in boost, s", "power, kW")?;
     chart
         .draw_series(power.iter().map(|p| Circle::new(*p, 2, GREY.stroke_width(1))))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label("battery power (circles)")
         .legend(|(x, y)| Circle::new((x + 8, y), 3, GREY.stroke_width(1)));
     chart
         .draw_series(deliver.iter().map(|p| Cross::new(*p, 3, DARK_BLUE.stroke_width(1))))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label("deliverable now (crosses)")
         .legend(|(x, y)| Cross::new((x + 8, y), 3, DARK_BLUE.stroke_width(1)));
     chart
@@ -272,7 +326,7 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
             4,
             GREY.stroke_width(1),
         ))
-        .map_err(err)?
+        .map_err(fail("drawing a series"))?
         .label(format!("rated {:.0} kW (dotted)", rated / 1000.0))
         .legend(|(x, y)| DashedPathElement::new(vec![(x, y), (x + 26, y)], 3, 3, GREY.stroke_width(1)));
     if let Some(f) = run.last.battery.fit {
@@ -281,7 +335,7 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
         let d = s.derating.expect("the summary has the same fit");
         chart
             .draw_series(LineSeries::new(fit, BLACK.stroke_width(2)))
-            .map_err(err)?
+            .map_err(fail("drawing a series"))?
             .label(format!("fit: {:.3} + {:.3}·e^(−t/{:.1} s) of rated, R² {:.3}", d.floor, d.amplitude, d.tau_s, d.r2))
             .legend(|(x, y)| PathElement::new(vec![(x, y), (x + 24, y)], BLACK.stroke_width(2)));
     }
@@ -289,8 +343,11 @@ fn derating<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run, s: &Su
     Ok(())
 }
 
-fn charge_temperature<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run) -> Res {
-    area.fill(&WHITE).map_err(err)?;
+fn charge_temperature<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &Run) -> Res
+where
+    DB::ErrorType: 'static,
+{
+    area.fill(&WHITE).map_err(fail("filling the background"))?;
     let (upper, lower) = area.split_vertically(H / 2);
     let tmax = run.rows.last().map_or(1.0, |r| r.t_s.max(1.0));
     let soc: Vec<(f64, f64)> = run.rows.iter().filter_map(|r| Some((r.t_s, r.soc? * 100.0))).collect();
@@ -301,17 +358,21 @@ fn charge_temperature<DB: DrawingBackend>(area: &DrawingArea<DB, Shift>, run: &R
         .x_label_area_size(30)
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..tmax, range(soc.iter().map(|p| p.1), false))
-        .map_err(err)?;
-    c.configure_mesh().y_desc("state of charge, %").light_line_style(WHITE.mix(0.0)).draw().map_err(err)?;
-    c.draw_series(LineSeries::new(soc, BLACK.stroke_width(2))).map_err(err)?;
+        .map_err(fail("laying out the chart"))?;
+    c.configure_mesh()
+        .y_desc("state of charge, %")
+        .light_line_style(WHITE.mix(0.0))
+        .draw()
+        .map_err(fail("drawing the axes"))?;
+    c.draw_series(LineSeries::new(soc, BLACK.stroke_width(2))).map_err(fail("drawing a series"))?;
     let mut c = ChartBuilder::on(&lower)
         .margin(14)
         .x_label_area_size(45)
         .y_label_area_size(65)
         .build_cartesian_2d(0.0..tmax, range(temp.iter().map(|p| p.1), false))
-        .map_err(err)?;
+        .map_err(fail("laying out the chart"))?;
     axes(&mut c, "time from the start of the recording, s", "pack temperature, °C")?;
-    c.draw_series(LineSeries::new(temp, BLACK.stroke_width(2))).map_err(err)?;
+    c.draw_series(LineSeries::new(temp, BLACK.stroke_width(2))).map_err(fail("drawing a series"))?;
     Ok(())
 }
 
@@ -322,16 +383,16 @@ macro_rules! render {
         {
             let root = SVGBackend::new(&svg, (W, H)).into_drawing_area();
             let $area = &root;
-            $body?;
-            root.present().map_err(err)?;
+            $body.map_err(|e| e.in_file(&svg))?;
+            root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&svg))?;
         }
         $written.push(svg);
         let png = $dir.join(format!("{}.png", $stem));
         {
             let root = BitMapBackend::new(&png, (W, H)).into_drawing_area();
             let $area = &root;
-            $body?;
-            root.present().map_err(err)?;
+            $body.map_err(|e| e.in_file(&png))?;
+            root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&png))?;
         }
         $written.push(png);
     }};
@@ -339,9 +400,9 @@ macro_rules! render {
 
 /// Draws the plots of one run, or of two (speed over distance overlaid, the
 /// others per run, named `A-…` and `B-…`), into `dir`; the files written.
-pub fn write(dir: &Path, runs: &[(&Run, &Summary)]) -> Result<Vec<PathBuf>, String> {
+pub fn write(dir: &Path, runs: &[(&Run, &Summary)]) -> Result<Vec<PathBuf>, PlotError> {
     fonts();
-    std::fs::create_dir_all(dir).map_err(|e| format!("{}: {e}", dir.display()))?;
+    std::fs::create_dir_all(dir).map_err(|source| PlotError::CreateDir { dir: dir.to_path_buf(), source })?;
     let mut written = Vec::new();
     render!(dir, "speed-distance", written, |area| speed_distance(area, runs));
     for (i, (run, s)) in runs.iter().enumerate() {
@@ -351,4 +412,47 @@ pub fn write(dir: &Path, runs: &[(&Run, &Summary)]) -> Result<Vec<PathBuf>, Stri
         render!(dir, format!("{prefix}charge-temperature"), written, |area| charge_temperature(area, run));
     }
     Ok(written)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn short_run(dir: &Path) -> Run {
+        let log = dir.join("short.log");
+        std::fs::write(&log, b"(1.000000) can0 123#00\n(1.500000) can0 123#01\n").unwrap();
+        Run::read(&log, &[], &mut |_, _| {}).unwrap()
+    }
+
+    #[test]
+    fn errors_name_the_file_and_the_step() {
+        let dir = tempfile::tempdir().unwrap();
+        let run = short_run(dir.path());
+        let summary = Summary::of(&run);
+
+        // The folder cannot be made: a file is in the way.
+        let blocked = dir.path().join("short.log").join("plots");
+        let e = write(&blocked, &[(&run, &summary)]).unwrap_err();
+        assert!(matches!(&e, PlotError::CreateDir { dir, .. } if dir == &blocked), "{e:?}");
+        assert!(e.to_string().starts_with(&format!("{}: ", blocked.display())), "{e}");
+
+        // The first file cannot be written: a folder of its name is there.
+        let out = dir.path().join("plots");
+        let svg = out.join("speed-distance.svg");
+        std::fs::create_dir_all(&svg).unwrap();
+        let e = write(&out, &[(&run, &summary)]).unwrap_err();
+        assert!(matches!(&e, PlotError::Draw { file, .. } if file == &svg), "{e:?}");
+        assert!(e.to_string().starts_with(&format!("{}: ", svg.display())), "{e}");
+        assert!(std::error::Error::source(&e).is_some(), "the drawing library's error is kept as the source");
+    }
+
+    #[test]
+    fn all_plots_of_one_run_are_written() {
+        let dir = tempfile::tempdir().unwrap();
+        let run = short_run(dir.path());
+        let summary = Summary::of(&run);
+        let files = write(&dir.path().join("plots"), &[(&run, &summary)]).unwrap();
+        assert_eq!(files.len(), 8, "four plots, SVG and PNG each: {files:?}");
+        assert!(files.iter().all(|f| std::fs::metadata(f).is_ok_and(|m| m.len() > 0)));
+    }
 }

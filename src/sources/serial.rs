@@ -1,9 +1,11 @@
 //! A serial port as a source, speaking one of three line protocols: NMEA 0183
 //! from a GNSS receiver, the ASCII serial-line CAN protocol of common USB-CAN
 //! adapters (the one Linux's slcan driver implements), or termvel's own
-//! `key=value` line telemetry. Lines are timestamped on arrival; adapter
-//! frames become CAN events (an adapter line that does not parse is kept as
-//! a line, so the decoder counts it and the recording keeps it). A port that
+//! `key=value` line telemetry. The source reads, splits lines and stamps
+//! them on arrival; the decode layer says once what each line is
+//! ([`decode::serial::payload_of`]): an adapter frame becomes a CAN event, an
+//! adapter line that does not parse a bad line carrying its error (the
+//! decoder counts it, the recording keeps it as a line). A port that
 //! vanishes (end of file, an I/O error: a USB device unplugged) is reported
 //! down at once and reopened with back-off when it returns.
 
@@ -12,8 +14,8 @@ use std::str::FromStr;
 use tokio::io::{AsyncReadExt, AsyncWriteExt};
 
 use super::link::{Backoff, EventSender, Link, SessionClock, Shutdown};
-use crate::decode::slcan::{self, SlcanMsg};
-use crate::event::{Event, LinkState, Payload, SourceId, SourceKind};
+use crate::decode::{self, slcan};
+use crate::event::{Event, LinkState, SourceId, SourceKind};
 
 /// The protocol a serial port speaks.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -147,17 +149,11 @@ impl LineSplitter {
     }
 }
 
-/// Turns one line into the event it stands for.
+/// Stamps one line as the event it stands for; what it is (a frame, chatter,
+/// a bad line with its error, a sentence) is the decode layer's call, made
+/// once here.
 pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Option<Event> {
-    match proto {
-        Proto::Slcan => match slcan::parse(line) {
-            Ok(SlcanMsg::Frame { frame, .. }) => Some(Event::new(t_ns, source, Payload::Can(frame))),
-            // Acknowledgements and status replies are protocol chatter.
-            Ok(_) => None,
-            Err(_) => Some(Event::new(t_ns, source, Payload::Line(line.to_vec()))),
-        },
-        _ => Some(Event::new(t_ns, source, Payload::Line(line.to_vec()))),
-    }
+    decode::serial::payload_of(proto.source_kind(), line).map(|p| Event::new(t_ns, source, p))
 }
 
 /// Reads `spec.path` until shutdown.
@@ -236,6 +232,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::event::Payload;
 
     #[test]
     fn specs_parse_with_their_defaults() {
@@ -274,14 +271,33 @@ mod tests {
     }
 
     #[test]
-    fn adapter_lines_become_frames_or_stay_lines() {
+    fn adapter_lines_become_frames_or_bad_lines_decoded_once() {
         let src = SourceId(2);
         assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").unwrap().payload, Payload::Can(_)));
         assert!(event_of(Proto::Slcan, 1, src, b"").is_none(), "an acknowledgement is not an event");
-        assert!(
-            matches!(event_of(Proto::Slcan, 1, src, b"t12").unwrap().payload, Payload::Line(_)),
-            "a bad line is kept"
+        let bad = event_of(Proto::Slcan, 7, src, b"t12").unwrap();
+        assert_eq!((bad.t_ns, bad.source), (7, src));
+        let Payload::BadLine { line, error } = &bad.payload else { panic!("a bad line is kept: {bad:?}") };
+        assert_eq!(
+            (line.as_slice(), error.as_str()),
+            (&b"t12"[..], "CAN adapter: column 4: expected 3 hex digits of a standard id")
         );
         assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").unwrap().payload, Payload::Line(_)));
+
+        // The decoder takes the error it carries, and records it as the
+        // line it was; a replay of that line finds the same error.
+        let signals = crate::config::ConfigSet::embedded().signals;
+        let mut live = decode::Decoder::new(&signals);
+        let mut out = Vec::new();
+        live.decode(&bad, SourceKind::Can, &mut out);
+        assert!(out.is_empty());
+        let stats = live.source_stats(src);
+        assert_eq!((stats.parse_errors, stats.last_error.as_deref()), (1, Some(error.as_str())));
+        let mut recorded = Vec::new();
+        crate::record::writer::format_event(&mut recorded, &bad, "slcan0");
+        assert!(recorded.ends_with(b" slcan0 line t12\n"), "{}", String::from_utf8_lossy(&recorded));
+        let mut replay = decode::Decoder::new(&signals);
+        replay.decode(&Event::new(7, src, Payload::Line(line.clone())), SourceKind::Can, &mut out);
+        assert_eq!(replay.source_stats(src), stats);
     }
 }
