@@ -1,10 +1,13 @@
 //! The derived quantities a snapshot carries, and their computation at each
 //! snapshot tick from the channel store and the estimators.
 
-use super::estimators::{DeratingFit, Estimated, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior};
+use super::estimators::{
+    DeratingFit, Estimated, PackEstimate, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior,
+};
 use super::physics::{air, battery as bat, braking, roadload};
 use super::projection::{BoostModel, ProjectionInputs, project};
-use crate::config::ConfigSet;
+use crate::config::vehicle::Battery;
+use crate::config::{ConfigSet, Track, Vehicle};
 
 /// Where the air density came from.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -203,7 +206,35 @@ pub struct TickInputs {
     pub brake: Option<f64>,
 }
 
+/// The air and the road-load coefficients the road load, the boost need
+/// and the projection are computed with.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct RoadModel {
+    /// Air density, kg/m³.
+    pub rho: f64,
+    /// Mean wind along the run, m/s, headwind positive.
+    pub wind_mps: f64,
+    pub cda_m2: f64,
+    pub crr: f64,
+    /// Whether the road-load estimate has converged.
+    pub converged: bool,
+}
+
+/// The derating curve the boost model follows: its time constant, its floor
+/// relative to a fresh pack, and whether it is the fit (else the vehicle
+/// file's).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct DeratingCurve {
+    pub tau_s: f64,
+    pub floor: f64,
+    pub fitted: bool,
+}
+
 /// Computes the derived block. Pure: the same inputs give the same output.
+///
+/// A short sequence of named steps, each a pure function below with its
+/// own tests: air, coefficients, battery, the boost model, road load, boost
+/// need and boost left, braking or projection, tyre.
 pub fn compute(
     cfg: &ConfigSet,
     inp: &TickInputs,
@@ -219,20 +250,12 @@ pub fn compute(
     let mut d = Derived { distance_m: inp.distance_m, ..Derived::default() };
     let mut stale: Vec<&'static str> = Vec::new();
 
-    // Air density: measured weather (CIPM-2007) or the standard atmosphere.
-    match inp.weather {
-        Some((t_c, p_pa, rh, age_s)) => {
-            d.air_density = air::moist_air_density_cipm2007(t_c, p_pa, rh.unwrap_or(0.5));
-            d.air_origin = Some(AirOrigin::Measured { age_s, humidity_assumed: rh.is_none() });
-        }
-        None => {
-            d.air_density = air::isa_troposphere(air::geopotential_m(track.elevation_m)).2;
-            d.air_origin = Some(AirOrigin::Standard);
-            stale.push("weather");
-        }
+    let (rho, origin) = air_step(inp.weather, track.elevation_m);
+    d.air_density = rho;
+    d.air_origin = Some(origin);
+    if origin == AirOrigin::Standard {
+        stale.push("weather");
     }
-    let rho = d.air_density;
-    let wind = inp.wind_mps.unwrap_or(0.0);
     if let Some((v, src, _)) = inp.speed {
         d.speed_mps = Some(v);
         d.speed_source = src;
@@ -243,12 +266,87 @@ pub fn compute(
         d.accel_mps2 = Some(a);
         d.accel_source = src;
     }
-    // The estimator's current values (its prior, the vehicle file's, blended
-    // with the data so far) once the data has told it something: each
-    // coefficient's standard deviation under half its prior's. Before that
-    // the first seconds of data can mislead more than the file does.
-    // Whether the estimate has converged is carried along and shown.
-    let informative = |e: super::estimators::Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
+    let (cda_m2, crr) = coefficients_step(veh, estimate);
+    let model = RoadModel { rho, wind_mps: inp.wind_mps.unwrap_or(0.0), cda_m2, crr, converged: estimate.converged };
+
+    let bv = battery_step(b, inp, pack, time_in_boost_s, fit, heating);
+    if bv.deliverable_w.is_none() {
+        stale.push("battery");
+    }
+    let curve = derating_curve(b, fit);
+    let boost = BoostModel {
+        soc_fade_per_s: soc_fade_per_s(b, pack, curve.fitted, bv.deliverable_w),
+        available: bv.energy_above_reserve_j.unwrap_or(0.0) > 0.0 && bv.deliverable_w.is_some_and(|p| p > 0.0),
+        deliverable_w: bv.deliverable_w.unwrap_or(0.0),
+        tau_s: curve.tau_s,
+        floor: curve.floor,
+        time_in_boost_s: if inp.boosting { time_in_boost_s } else { 0.0 },
+        rated_w: b.rated_power_w,
+        energy_j: bv.energy_above_reserve_j.unwrap_or(0.0),
+    };
+
+    let grade = track.grade_at(inp.distance_m);
+    d.road_load = d.speed_mps.map(|v| road_load_step(veh, &model, grade, v, inp, &boost));
+
+    let need_w = boost_need_w(veh, &model, track.target_speed_mps);
+    let left = boost_left_step(b, &bv, inp.current_a, &boost, need_w, curve.fitted);
+
+    if let Some(v) = d.speed_mps {
+        let stopping = stopping_distance_m(track, &model, veh.mass_kg, v);
+        let braking_now = inp.brake.is_some_and(|b| b > 0.1);
+        if let Some((view, note)) = braking_step(track, inp.distance_m, stopping, braking_now) {
+            d.projection_note = Some(note);
+            d.braking = Some(view);
+        } else {
+            let base = ProjectionInputs {
+                vehicle: veh,
+                track,
+                x0_m: inp.distance_m,
+                v0_mps: v,
+                rho,
+                wind_mps: model.wind_mps,
+                cda_m2,
+                crr0: crr,
+                boost,
+            };
+            let (projection, braking) =
+                projection_step(&base, estimate.cda_m2.sd, model.converged, curve.fitted, stopping);
+            d.projection = Some(projection);
+            d.braking = Some(braking);
+        }
+        d.tyre = Some(tyre_step(veh.tyre_rated_mps, v, d.projection.as_ref().map(|p| p.peak_mps)));
+    } else {
+        d.projection_note = Some("no speed");
+    }
+    d.stale_inputs = stale;
+    d.estimate = *estimate;
+    d.battery = bv;
+    d.boost_left = left;
+    d
+}
+
+/// Air density, kg/m³, and where it came from: CIPM-2007 moist air
+/// (Picard et al., Metrologia 45, 2008) from the weather channels
+/// (temperature °C, pressure Pa, relative humidity 0–1 assumed 0.5 when
+/// not measured, age s), else the ISO 2533 standard atmosphere at the
+/// track's elevation.
+pub fn air_step(weather: Option<(f64, f64, Option<f64>, f64)>, elevation_m: f64) -> (f64, AirOrigin) {
+    match weather {
+        Some((t_c, p_pa, rh, age_s)) => (
+            air::moist_air_density_cipm2007(t_c, p_pa, rh.unwrap_or(0.5)),
+            AirOrigin::Measured { age_s, humidity_assumed: rh.is_none() },
+        ),
+        None => (air::isa_troposphere(air::geopotential_m(elevation_m)).2, AirOrigin::Standard),
+    }
+}
+
+/// The CdA (m²) and Crr the road load uses: the estimator's current values
+/// (its prior, the vehicle file's, blended with the data so far) once the
+/// data has told it something, each coefficient's standard deviation under
+/// half its prior's; before that the vehicle file's, since the first seconds
+/// of data can mislead more than the file does.
+pub fn coefficients_step(veh: &Vehicle, estimate: &RoadLoadEstimate) -> (f64, f64) {
+    let informative = |e: Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
     let cda = if informative(estimate.cda_m2, RoadLoadEstimatorPrior::cda_sd(veh)) {
         estimate.cda_m2.value
     } else {
@@ -256,9 +354,22 @@ pub fn compute(
     };
     let crr =
         if informative(estimate.crr, RoadLoadEstimatorPrior::crr_sd(veh)) { estimate.crr.value } else { veh.crr0 };
-    let from_estimate = estimate.converged;
+    (cda, crr)
+}
 
-    // Battery.
+/// The battery now: terminal power P = V·I, the discharge rate, energy
+/// above the reserve E = (soc − reserve)·E_pack, and what it can deliver:
+/// the battery system's reported limit, else the HPPC maximum from the
+/// fitted OCV and R (the vehicle file's R until the fit converges), capped
+/// at 1.5 times the rating (a guard against a wild fit or report).
+pub fn battery_step(
+    b: &Battery,
+    inp: &TickInputs,
+    pack: Option<PackEstimate>,
+    time_in_boost_s: f64,
+    fit: Option<DeratingFit>,
+    heating: Option<f64>,
+) -> BatteryView {
     let rated_w = b.rated_power_w;
     let mut bv = BatteryView {
         rated_w,
@@ -283,26 +394,33 @@ pub fn compute(
     bv.reported_limit_w = inp.power_limit_w;
     bv.deliverable_w = inp.power_limit_w.or(bv.hppc_max_w).map(|p| p.min(rated_w * 1.5));
     bv.derating_ratio = bv.deliverable_w.map(|p| p / rated_w);
-    if bv.deliverable_w.is_none() {
-        stale.push("battery");
-    }
+    bv
+}
 
-    // The derating curve: the fit once converged, else the vehicle file's.
-    let (tau, floor, curve_fitted) = match fit {
+/// The derating curve: the fit once converged, else the vehicle file's.
+/// The fit's floor is a ratio of rated; the projection's curve is relative
+/// to a fresh pack, so it is normalised by the fitted start (floor +
+/// amplitude).
+pub fn derating_curve(b: &Battery, fit: Option<DeratingFit>) -> DeratingCurve {
+    match fit {
         Some(f) if f.converged => {
-            // The fit's floor is a ratio of rated; the projection's curve is
-            // relative to a fresh pack: normalise by the fitted start.
             let r0 = (f.floor + f.amplitude).max(1e-6);
-            (f.tau_s, (f.floor / r0).clamp(0.0, 1.0), true)
+            DeratingCurve { tau_s: f.tau_s, floor: (f.floor / r0).clamp(0.0, 1.0), fitted: true }
         }
-        _ => (b.derate_tau_s, b.derate_floor, false),
-    };
-    let energy_j = bv.energy_above_reserve_j.unwrap_or(0.0);
-    // With the vehicle file's curve (a ratio), add the fall of the
-    // current-limited power with the open-circuit voltage as charge is
-    // drawn: d(ln P)/dt = (dP/dOCV)·(dOCV/dsoc)·(dsoc/dt)/P. A fitted curve
-    // has it in already.
-    let soc_fade_per_s = match (curve_fitted, pack, bv.deliverable_w) {
+        _ => DeratingCurve { tau_s: b.derate_tau_s, floor: b.derate_floor, fitted: false },
+    }
+}
+
+/// How fast the deliverable power falls as charge is drawn, fraction per
+/// second: with the vehicle file's curve (a ratio), the fall of the HPPC
+/// power with the open-circuit voltage, d(ln P)/dt =
+/// (dP/dOCV)·(dOCV/dsoc)·(dsoc/dt)/P, with dP/dOCV = I_max when the
+/// current limit binds and V_min/R when the voltage limit does, and
+/// dsoc/dt = P_deliverable/E_pack. A fitted curve has it in already: 0.
+/// The OCV slope is the fitted one when it is tight (sd under 30 %), else
+/// 0.8 V per cell from full to empty (common practice for lithium-ion).
+pub fn soc_fade_per_s(b: &Battery, pack: Option<PackEstimate>, curve_fitted: bool, deliverable_w: Option<f64>) -> f64 {
+    match (curve_fitted, pack, deliverable_w) {
         (false, Some(p), Some(deliv)) if deliv > 0.0 => {
             let slope = if p.ocv_slope_v.value > 0.0 && p.ocv_slope_v.sd < 0.3 * p.ocv_slope_v.value {
                 p.ocv_slope_v.value
@@ -318,192 +436,217 @@ pub fn compute(
             if hppc > 0.0 { (dp_docv * slope * deliv / (b.energy_j * hppc)).clamp(0.0, 0.05) } else { 0.0 }
         }
         _ => 0.0,
-    };
-    let boost = BoostModel {
-        soc_fade_per_s,
-        available: energy_j > 0.0 && bv.deliverable_w.is_some_and(|p| p > 0.0),
-        deliverable_w: bv.deliverable_w.unwrap_or(0.0),
-        tau_s: tau,
-        floor,
-        time_in_boost_s: if inp.boosting { time_in_boost_s } else { 0.0 },
-        rated_w,
-        energy_j,
-    };
-
-    // Road load at the present speed.
-    let grade = track.grade_at(inp.distance_m);
-    let comb_env = |v: f64| veh.full_load_power_w(v);
-    if let Some(v) = d.speed_mps {
-        let rl = roadload::road_load(&roadload::RoadLoadInputs {
-            v_mps: v,
-            wind_mps: wind,
-            rho,
-            cda_m2: cda,
-            crr0: crr,
-            crr2_s2_m2: veh.crr2_s2_m2,
-            mass_kg: veh.mass_kg,
-            grade,
-        });
-        let inertial = d.accel_mps2.map_or(0.0, |a| roadload::inertial_power_w(veh.effective_mass_kg(), a, v));
-        let wheel_w = match (inp.engine_w, inp.motor_w) {
-            (None, None) => None,
-            (e, m) => Some(roadload::wheel_power_w(e.unwrap_or(0.0), m.unwrap_or(0.0), veh.driveline_efficiency)),
-        };
-        let motor_avail = if boost.available {
-            (boost.deliverable_w * veh.motor_efficiency).min(veh.motor_rated_power_w)
-        } else {
-            0.0
-        };
-        let available = veh.driveline_efficiency * (comb_env(v) + motor_avail);
-        d.road_load = Some(RoadLoadView {
-            aero_w: rl.aero_w,
-            rolling_w: rl.rolling_w,
-            grade_w: rl.grade_w,
-            total_w: rl.total_w,
-            inertial_w: inertial,
-            demand_w: rl.total_w + inertial,
-            wheel_w,
-            available_w: available,
-            margin_w: available - rl.total_w,
-            cda_m2: cda,
-            crr,
-            estimate_converged: from_estimate,
-        });
     }
+}
 
-    // Battery power needed to reach and hold the target: road load at the
-    // target speed beyond what the combustion engine gives there.
-    let vt = track.target_speed_mps;
+/// Road load at the present speed `v_mps` (aero ½ρCdA·v_air²·v, rolling,
+/// grade: [`roadload::road_load`]), inertial power m_eff·a·v, the measured
+/// wheel power η·(engine + motor), and what the powertrain could deliver at
+/// the wheels at full demand: η·(full-load envelope + motor), the motor fed
+/// by the battery's deliverable power only while boost is available.
+pub fn road_load_step(
+    veh: &Vehicle,
+    model: &RoadModel,
+    grade: f64,
+    v_mps: f64,
+    inp: &TickInputs,
+    boost: &BoostModel,
+) -> RoadLoadView {
+    let v = v_mps;
+    let rl = roadload::road_load(&roadload::RoadLoadInputs {
+        v_mps: v,
+        wind_mps: model.wind_mps,
+        rho: model.rho,
+        cda_m2: model.cda_m2,
+        crr0: model.crr,
+        crr2_s2_m2: veh.crr2_s2_m2,
+        mass_kg: veh.mass_kg,
+        grade,
+    });
+    let inertial = inp.accel.map_or(0.0, |(a, _)| roadload::inertial_power_w(veh.effective_mass_kg(), a, v));
+    let wheel_w = match (inp.engine_w, inp.motor_w) {
+        (None, None) => None,
+        (e, m) => Some(roadload::wheel_power_w(e.unwrap_or(0.0), m.unwrap_or(0.0), veh.driveline_efficiency)),
+    };
+    let motor_avail =
+        if boost.available { (boost.deliverable_w * veh.motor_efficiency).min(veh.motor_rated_power_w) } else { 0.0 };
+    let available = veh.driveline_efficiency * (veh.full_load_power_w(v) + motor_avail);
+    RoadLoadView {
+        aero_w: rl.aero_w,
+        rolling_w: rl.rolling_w,
+        grade_w: rl.grade_w,
+        total_w: rl.total_w,
+        inertial_w: inertial,
+        demand_w: rl.total_w + inertial,
+        wheel_w,
+        available_w: available,
+        margin_w: available - rl.total_w,
+        cda_m2: model.cda_m2,
+        crr: model.crr,
+        estimate_converged: model.converged,
+    }
+}
+
+/// Battery terminal power needed to reach and hold the target speed `vt`,
+/// W: the level road load there beyond what the combustion engine gives,
+/// through the driveline and the motor, (RL(vt)/η_drive − P_engine(vt))/η_motor,
+/// floored at 0.
+pub fn boost_need_w(veh: &Vehicle, model: &RoadModel, vt: f64) -> f64 {
     let rl_target = roadload::road_load(&roadload::RoadLoadInputs {
         v_mps: vt,
-        wind_mps: wind,
-        rho,
-        cda_m2: cda,
-        crr0: crr,
+        wind_mps: model.wind_mps,
+        rho: model.rho,
+        cda_m2: model.cda_m2,
+        crr0: model.crr,
         crr2_s2_m2: veh.crr2_s2_m2,
         mass_kg: veh.mass_kg,
         grade: 0.0,
     })
     .total_w;
-    let need_w = ((rl_target / veh.driveline_efficiency - comb_env(vt)) / veh.motor_efficiency).max(0.0);
+    ((rl_target / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency).max(0.0)
+}
 
-    // Boost time left, three ways.
+/// Seconds of boost left, three ways, and the limit that binds first:
+/// energy (E/(OCV·I), [`bat::energy_limited_time_s`]), power (until the
+/// derating curve from what is delivered now falls below `need_w`) and
+/// thermal ((T_limit − T)/rate, the measured heating rate after 5 s of
+/// boost, else I²R/C). The current is the measured one while boosting
+/// above 10 A, else the current at the deliverable power
+/// ([`bat::current_at_power_a`]). Empty without a deliverable power and a
+/// pack model.
+pub fn boost_left_step(
+    b: &Battery,
+    bv: &BatteryView,
+    current_a: Option<f64>,
+    boost: &BoostModel,
+    need_w: f64,
+    curve_fitted: bool,
+) -> BoostLeft {
     let mut left = BoostLeft { need_w: Some(need_w), curve_fitted, ..BoostLeft::default() };
-    if let (Some(p), Some(ocv)) = (bv.deliverable_w, bv.ocv_v) {
-        let r = bv.resistance_ohm.filter(|_| bv.model_converged).map_or(b.resistance_ohm, |e| e.value);
-        // At the present current while boosting; else at the deliverable power.
-        let i_boost = if inp.boosting && inp.current_a.is_some_and(|i| i > 10.0) {
-            inp.current_a.unwrap_or(0.0)
-        } else {
-            let disc = (ocv.value * ocv.value - 4.0 * r * p).max(0.0);
-            (ocv.value - disc.sqrt()) / (2.0 * r)
-        };
-        if bv.energy_above_reserve_j.is_some() {
-            left.energy_s = Some(bat::energy_limited_time_s(energy_j, ocv.value, r, i_boost));
-        }
-        // Power: when the curve from what is delivered now falls below the need.
-        let now = bat::derating_ratio(boost.time_in_boost_s, tau, floor);
-        left.power_s = Some(if p < need_w {
-            0.0
-        } else if now > 0.0 {
-            let ratio_needed = need_w / p * now;
-            (bat::time_until_ratio_s(ratio_needed, tau, floor) - boost.time_in_boost_s).max(0.0)
-        } else {
-            0.0
-        });
-        // Thermal: the measured heating rate while boosting, else I²R/C.
-        let rate = match heating {
-            Some(h) if inp.boosting && time_in_boost_s >= 5.0 => h,
-            _ => i_boost * i_boost * r / b.heat_capacity_j_per_k,
-        };
-        if let Some(t) = inp.temp_c {
-            left.thermal_s = Some(bat::thermal_limited_time_s(t, b.temp_limit_c, rate));
-        }
-        let mut best: Option<(BoostLimit, f64)> = None;
-        for (lim, s) in [
-            (BoostLimit::Energy, left.energy_s),
-            (BoostLimit::Power, left.power_s),
-            (BoostLimit::Thermal, left.thermal_s),
-        ] {
-            if let Some(s) = s
-                && s.is_finite()
-                && best.is_none_or(|(_, b)| s < b)
-            {
-                best = Some((lim, s));
-            }
-        }
-        left.binding = best.map(|b| b.0);
-        left.seconds = best.map(|b| b.1);
-    }
-
-    // Projection and braking point.
-    let braking_now = inp.brake.is_some_and(|b| b > 0.1);
-    if let Some(v) = d.speed_mps {
-        let base = ProjectionInputs {
-            vehicle: veh,
-            track,
-            x0_m: inp.distance_m,
-            v0_mps: v,
-            rho,
-            wind_mps: wind,
-            cda_m2: cda,
-            crr0: crr,
-            boost,
-        };
-        let kappa = 0.5 * rho * cda / veh.mass_kg;
-        let stopping = braking::braking_distance_m(v, track.exit_speed_mps.min(v), track.braking_decel_mps2, kappa);
-        let to_stop_by = track.stop_by_m() - inp.distance_m;
-        if braking_now || to_stop_by < stopping {
-            d.projection_note = Some(if braking_now { "braking" } else { "past the braking point" });
-            d.braking = Some(BrakingView {
-                point_m: track.stop_by_m() - stopping,
-                distance_m: to_stop_by - stopping,
-                in_s: 0.0,
-                stopping_m: stopping,
-                passed: to_stop_by < stopping,
-            });
-        } else {
-            let p = project(&base);
-            let sd = estimate.cda_m2.sd.max(0.0);
-            let band = |dc: f64| project(&ProjectionInputs { cda_m2: (cda + dc).max(0.05), ..base }).peak_mps;
-            let (lo, hi) = if from_estimate { (band(sd), band(-sd)) } else { (band(0.1 * cda), band(-0.1 * cda)) };
-            let step = (p.points.len() / 60).max(1);
-            let trajectory: Vec<(f64, f64)> =
-                p.points.iter().step_by(step).chain(p.points.last()).map(|&(_, x, v)| (x, v)).collect();
-            d.braking = Some(BrakingView {
-                point_m: p.brake_at_m,
-                distance_m: p.brake_at_m - inp.distance_m,
-                in_s: p.brake_in_s,
-                stopping_m: stopping,
-                passed: false,
-            });
-            d.projection = Some(ProjectionView {
-                peak_mps: p.peak_mps,
-                peak_low_mps: lo.min(p.peak_mps),
-                peak_high_mps: hi.max(p.peak_mps),
-                peak_at_m: p.peak_at_m,
-                peak_in_s: p.peak_in_s,
-                terminal_mps: p.terminal_mps,
-                terminal_no_boost_mps: p.terminal_no_boost_mps,
-                target_mps: vt,
-                target_reachable: p.target.is_some(),
-                target_in_s: p.target.map(|t| t.0),
-                target_at_m: p.target.map(|t| t.1),
-                trajectory,
-                converged: from_estimate && curve_fitted,
-            });
-        }
-        d.tyre = Some(TyreView {
-            rated_mps: veh.tyre_rated_mps,
-            margin_mps: braking::tyre_speed_margin_mps(v, veh.tyre_rated_mps),
-            peak_margin_mps: d.projection.as_ref().map(|p| veh.tyre_rated_mps - p.peak_mps),
-        });
+    let (Some(p), Some(ocv)) = (bv.deliverable_w, bv.ocv_v) else { return left };
+    let (tau, floor) = (boost.tau_s, boost.floor);
+    let r = bv.resistance_ohm.filter(|_| bv.model_converged).map_or(b.resistance_ohm, |e| e.value);
+    let i_boost = if bv.boosting && current_a.is_some_and(|i| i > 10.0) {
+        current_a.unwrap_or(0.0)
     } else {
-        d.projection_note = Some("no speed");
+        bat::current_at_power_a(ocv.value, r, p)
+    };
+    if bv.energy_above_reserve_j.is_some() {
+        left.energy_s = Some(bat::energy_limited_time_s(boost.energy_j, ocv.value, r, i_boost));
     }
-    d.stale_inputs = stale;
-    d.estimate = *estimate;
-    d.battery = bv;
-    d.boost_left = left;
-    d
+    let now = bat::derating_ratio(boost.time_in_boost_s, tau, floor);
+    left.power_s = Some(if p < need_w {
+        0.0
+    } else if now > 0.0 {
+        let ratio_needed = need_w / p * now;
+        (bat::time_until_ratio_s(ratio_needed, tau, floor) - boost.time_in_boost_s).max(0.0)
+    } else {
+        0.0
+    });
+    let rate = match bv.heating_c_per_s {
+        Some(h) if bv.boosting && bv.time_in_boost_s >= 5.0 => h,
+        _ => i_boost * i_boost * r / b.heat_capacity_j_per_k,
+    };
+    if let Some(t) = bv.temp_c {
+        left.thermal_s = Some(bat::thermal_limited_time_s(t, b.temp_limit_c, rate));
+    }
+    let mut best: Option<(BoostLimit, f64)> = None;
+    for (lim, s) in
+        [(BoostLimit::Energy, left.energy_s), (BoostLimit::Power, left.power_s), (BoostLimit::Thermal, left.thermal_s)]
+    {
+        if let Some(s) = s
+            && s.is_finite()
+            && best.is_none_or(|(_, b)| s < b)
+        {
+            best = Some((lim, s));
+        }
+    }
+    left.binding = best.map(|b| b.0);
+    left.seconds = best.map(|b| b.1);
+    left
+}
+
+/// Distance to slow from `v_mps` to the track's exit speed at its braking
+/// deceleration with aerodynamic drag (κ = ½ρCdA/m), m:
+/// [`braking::braking_distance_m`].
+pub fn stopping_distance_m(track: &Track, model: &RoadModel, mass_kg: f64, v_mps: f64) -> f64 {
+    let kappa = 0.5 * model.rho * model.cda_m2 / mass_kg;
+    braking::braking_distance_m(v_mps, track.exit_speed_mps.min(v_mps), track.braking_decel_mps2, kappa)
+}
+
+/// The braking point when there is nothing to project: the driver is
+/// braking, or the stop-by point is closer than the stopping distance (the
+/// braking point is behind the car). `None` when the projection should run.
+pub fn braking_step(
+    track: &Track,
+    distance_m: f64,
+    stopping_m: f64,
+    braking_now: bool,
+) -> Option<(BrakingView, &'static str)> {
+    let to_stop_by = track.stop_by_m() - distance_m;
+    if !(braking_now || to_stop_by < stopping_m) {
+        return None;
+    }
+    let view = BrakingView {
+        point_m: track.stop_by_m() - stopping_m,
+        distance_m: to_stop_by - stopping_m,
+        in_s: 0.0,
+        stopping_m,
+        passed: to_stop_by < stopping_m,
+    };
+    Some((view, if braking_now { "braking" } else { "past the braking point" }))
+}
+
+/// The projection at full demand from the present state, its band with CdA
+/// at ±1 standard deviation of the estimate (±10 % before it converges),
+/// about 60 trajectory points for drawing, and the braking point where the
+/// projection ends.
+pub fn projection_step(
+    base: &ProjectionInputs<'_>,
+    cda_sd: f64,
+    estimate_converged: bool,
+    curve_fitted: bool,
+    stopping_m: f64,
+) -> (ProjectionView, BrakingView) {
+    let cda = base.cda_m2;
+    let p = project(base);
+    let sd = cda_sd.max(0.0);
+    let band = |dc: f64| project(&ProjectionInputs { cda_m2: (cda + dc).max(0.05), ..*base }).peak_mps;
+    let (lo, hi) = if estimate_converged { (band(sd), band(-sd)) } else { (band(0.1 * cda), band(-0.1 * cda)) };
+    let step = (p.points.len() / 60).max(1);
+    let trajectory: Vec<(f64, f64)> =
+        p.points.iter().step_by(step).chain(p.points.last()).map(|&(_, x, v)| (x, v)).collect();
+    let braking = BrakingView {
+        point_m: p.brake_at_m,
+        distance_m: p.brake_at_m - base.x0_m,
+        in_s: p.brake_in_s,
+        stopping_m,
+        passed: false,
+    };
+    let view = ProjectionView {
+        peak_mps: p.peak_mps,
+        peak_low_mps: lo.min(p.peak_mps),
+        peak_high_mps: hi.max(p.peak_mps),
+        peak_at_m: p.peak_at_m,
+        peak_in_s: p.peak_in_s,
+        terminal_mps: p.terminal_mps,
+        terminal_no_boost_mps: p.terminal_no_boost_mps,
+        target_mps: base.track.target_speed_mps,
+        target_reachable: p.target.is_some(),
+        target_in_s: p.target.map(|t| t.0),
+        target_at_m: p.target.map(|t| t.1),
+        trajectory,
+        converged: estimate_converged && curve_fitted,
+    };
+    (view, braking)
+}
+
+/// Tyre speed margin: rated minus present speed, and rated minus the
+/// projected peak when there is one, m/s.
+pub fn tyre_step(rated_mps: f64, v_mps: f64, peak_mps: Option<f64>) -> TyreView {
+    TyreView {
+        rated_mps,
+        margin_mps: braking::tyre_speed_margin_mps(v_mps, rated_mps),
+        peak_margin_mps: peak_mps.map(|p| rated_mps - p),
+    }
 }
