@@ -26,9 +26,9 @@ pub use store::{ChannelState, ChannelStore};
 use std::sync::Arc;
 
 use crate::channel::{ChannelId, ch};
-use crate::config::{ConfigSet, Severity};
+use crate::config::ConfigSet;
 use crate::decode::{Decoder, Sample};
-use crate::event::{Event, LinkState, NS_PER_S, Payload, SourceId, SourceKind, SourceTable, TimeNs};
+use crate::event::{Event, LinkState, NS_PER_S, Payload, SourceKind, SourceTable, TimeNs};
 use derived::TickInputs;
 use estimators::{BalanceSample, DeratingTracker, HeatingRate, PackEstimator, RoadLoadEstimator};
 
@@ -187,14 +187,12 @@ pub struct Engine {
     derived: Derived,
     /// Derived quantities rejected for being non-finite.
     pub rejected_values: u64,
-    /// Per-message frame counts at the start of the rate window, and when.
-    rate_window: (TimeNs, Vec<u64>),
-    /// Messages short of their rate in the last window: (name, fraction).
-    short_messages: Vec<(String, f64)>,
+    /// Per-message frame counts over the rate window, and the messages short of their rate.
+    rates: alerts::staleness::RateCheck,
     /// Since when wheel and GNSS speed disagree.
     speed_disagree_since: Option<TimeNs>,
-    /// Since when the projection has said the target is out of reach.
-    target_lost_since: Option<TimeNs>,
+    /// What the physics-limit alerts carry between ticks.
+    limits: alerts::limits::LimitState,
 }
 
 impl Engine {
@@ -226,10 +224,9 @@ impl Engine {
             alerts: AlertBook::default(),
             derived: Derived::default(),
             rejected_values: 0,
-            rate_window: (0, Vec::new()),
-            short_messages: Vec::new(),
+            rates: alerts::staleness::RateCheck::default(),
             speed_disagree_since: None,
-            target_lost_since: None,
+            limits: alerts::limits::LimitState::default(),
         };
         e.sync_names();
         e
@@ -503,230 +500,28 @@ impl Engine {
             d.projection_note = Some("rejected: non-finite result");
         }
         self.derived = d;
-        self.check_message_rates(t);
+        self.rates.update(t, &self.decoder.can.message_counts);
         self.evaluate_alerts(t, sources, &inp);
     }
 
-    /// Every [`RATE_WINDOW_NS`], compares each message's frames with what
-    /// its period promises; a message that has arrived at all but below
-    /// [`RATE_SHORT`] of its rate is short (lost frames, a failing node).
-    fn check_message_rates(&mut self, t: TimeNs) {
-        let counts = &self.decoder.can.message_counts;
-        if self.rate_window.1.len() != counts.len() {
-            self.rate_window = (t, counts.iter().map(|c| c.frames).collect());
-            return;
-        }
-        let span = t - self.rate_window.0;
-        if span < RATE_WINDOW_NS {
-            return;
-        }
-        self.short_messages.clear();
-        for (c, &before) in counts.iter().zip(&self.rate_window.1) {
-            let got = (c.frames - before) as f64;
-            let expected = span as f64 / c.period_ns as f64;
-            if c.frames > 0 && expected >= 5.0 && got > 0.0 && got < RATE_SHORT * expected {
-                self.short_messages.push((c.name.clone(), got / expected));
-            }
-        }
-        self.rate_window = (t, counts.iter().map(|c| c.frames).collect());
-    }
-
+    /// The alert families in their fixed order (the order of the
+    /// annotations depends on it): source health, stale channels, message
+    /// rates, range, speed agreement, physics limits, the engineer's rules.
     fn evaluate_alerts(&mut self, t: TimeNs, sources: &SourceTable, inp: &TickInputs) {
         let cfg = self.config.clone();
-        let lim = &cfg.alerts.limits;
-        let d = &self.derived;
+        let decoder = &self.decoder;
         let book = &mut self.alerts;
-        // Sources: down, silent, parse errors, CAN bus errors.
-        let mut quiet_sources: Vec<SourceId> = Vec::new();
-        for (id, info) in sources.iter() {
-            let Some(h) = self.health.get_mut(id.0 as usize) else { continue };
-            if !matches!(info.kind, SourceKind::Can | SourceKind::Nmea | SourceKind::Lines) {
-                continue;
-            }
-            let down = h.link == Some(LinkState::Down) || h.link == Some(LinkState::Retrying);
-            let silent = !down && h.events >= 10 && h.last_t_ns.is_some_and(|l| t - l > SILENT_AFTER_NS);
-            // A source just back up has a moment to deliver before its
-            // channels count as stale.
-            let returning = h.up_since_ns.is_some_and(|u| t - u < RETURN_GRACE_NS);
-            if down || silent || returning {
-                quiet_sources.push(id);
-            }
-            let reason = h.link_reason.clone();
-            book.set(t, &format!("down:{}", info.name), Severity::Alarm, down, || {
-                format!("{} is down: {reason}", info.name)
-            });
-            let last = h.last_t_ns.unwrap_or(t);
-            book.set(t, &format!("silent:{}", info.name), Severity::Alarm, silent, || {
-                format!("{} silent for {:.1} s", info.name, (t - last) as f64 * 1e-9)
-            });
-            let pe = self.decoder.source_stats(id);
-            if pe.parse_errors > h.parse_errors_seen {
-                h.parse_errors_seen = pe.parse_errors;
-                h.last_parse_error_ns = Some(t);
-            }
-            let recent = h.last_parse_error_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
-            let n = pe.parse_errors;
-            book.set(t, &format!("parse:{}", info.name), Severity::Caution, recent, || {
-                format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default())
-            });
-            let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
-            let lost = h.lost;
-            book.set(t, &format!("lost:{}", info.name), Severity::Caution, lost_recent, || {
-                format!("{}: {lost} frames lost before termvel could read them (receive queue full)", info.name)
-            });
-            let bus = h.last_bus_error_ns.is_some_and(|p| t - p < 5 * NS_PER_S);
-            let (ef, bo, ep, la) = (h.error_frames, h.bus_off, h.error_passive, h.lost_arbitration);
-            book.set(
-                t,
-                &format!("bus:{}", info.name),
-                if bo > 0 { Severity::Alarm } else { Severity::Caution },
-                bus,
-                || {
-                    format!(
-                        "{}: {ef} CAN error frames (bus-off {bo}, error-passive {ep}, lost arbitration {la})",
-                        info.name
-                    )
-                },
-            );
-        }
-        // Stale channels, grouped by the CAN message they come in (or the
-        // source, for serial channels): one dropped message is one alert
-        // listing its channels. Not when the source is already reported quiet.
-        let mut groups: std::collections::BTreeMap<String, (Vec<&str>, f64)> = std::collections::BTreeMap::new();
-        for (id, info) in self.decoder.channels.iter() {
-            let Some(stc) = self.store.get(id) else { continue };
-            if info.expected_period_ns.is_none() {
-                continue;
-            }
-            let group = match self.decoder.can.channel_message.iter().find(|(c, _)| *c == id) {
-                Some((_, m)) => m.clone(),
-                None => sources.name(stc.source).to_string(),
-            };
-            let entry = groups.entry(group).or_insert((Vec::new(), 0.0));
-            if self.store.is_stale(id, t) && !quiet_sources.contains(&stc.source) {
-                entry.0.push(&info.name);
-                entry.1 = entry.1.max((t - stc.t_ns) as f64 * 1e-9);
-            }
-        }
-        for (group, (stale, age_s)) in &groups {
-            book.set(t, &format!("stale:{group}"), Severity::Caution, !stale.is_empty(), || {
-                let list = if stale.len() <= 2 {
-                    stale.join(", ")
-                } else {
-                    format!("{}, {} and {} more", stale[0], stale[1], stale.len() - 2)
-                };
-                format!("{group} stale {age_s:.1} s: {list}")
-            });
-        }
-        // Messages short of their rate (frames lost on the way).
-        let short = &self.short_messages;
-        for c in &self.decoder.can.message_counts {
-            let s = short.iter().find(|(n, _)| *n == c.name);
-            book.set(t, &format!("rate:{}", c.name), Severity::Caution, s.is_some(), || {
-                format!("{} arriving at {:.0} % of its rate: frames lost", c.name, s.map_or(0.0, |x| x.1 * 100.0))
-            });
-        }
-        // Channels reading outside their valid range.
-        for (id, info) in self.decoder.channels.iter() {
-            let Some(stc) = self.store.get(id) else { continue };
-            if stc.invalid == 0 {
-                continue;
-            }
-            let out = !stc.valid && t - stc.t_ns < 5 * NS_PER_S;
-            let v = stc.value;
-            book.set(t, &format!("range:{}", info.name), Severity::Caution, out, || {
-                format!("{} reads {v:.4} {}: outside its valid range, not used", info.name, info.dimension.si_unit())
-            });
-        }
-        // Wheel speed against GNSS speed: a stuck or failing speed sensor.
-        let disagree = match (self.store.fresh(ch::VEHICLE_SPEED, t), self.store.fresh(ch::GNSS_SPEED, t)) {
-            (Some(w), Some(g)) => (w - g).abs() > SPEED_AGREE_MPS.max(SPEED_AGREE_FRAC * g.abs()),
-            _ => false,
-        };
-        let since = if disagree { Some(*self.speed_disagree_since.get_or_insert(t)) } else { None };
-        if !disagree {
-            self.speed_disagree_since = None;
-        }
-        let (w, g) =
-            (self.store.fresh(ch::VEHICLE_SPEED, t).unwrap_or(0.0), self.store.fresh(ch::GNSS_SPEED, t).unwrap_or(0.0));
-        book.set(t, "speed-disagree", Severity::Caution, since.is_some_and(|s| t - s >= SPEED_DISAGREE_NS), || {
-            format!("wheel speed {:.1} m/s and GNSS {:.1} m/s disagree: a sensor may be stuck", w, g)
-        });
-        let b = &d.battery;
-        let running = d.speed_mps.is_some_and(|v| v > 5.0);
-        let ratio = b.derating_ratio.unwrap_or(1.0);
-        book.set(t, "derating", Severity::Caution, b.boosting && ratio < lim.derating_onset_ratio, || {
-            format!("battery derating: {:.0} % of rated power", ratio * 100.0)
-        });
-        let left = d.boost_left;
-        book.set(
-            t,
-            "boost-low",
-            Severity::Caution,
-            b.boosting && left.seconds.is_some_and(|s| s < lim.boost_left_low_s),
-            || {
-                format!(
-                    "boost left {:.1} s ({} limit)",
-                    left.seconds.unwrap_or(0.0),
-                    left.binding.map_or("?", |l| l.as_str())
-                )
-            },
-        );
-        let target_kmh = cfg.track.target_speed_mps * 3.6;
-        let peak = d.projection.as_ref().map(|p| p.peak_mps * 3.6);
-        // A prediction hovering at the target should not flap the alert:
-        // out of reach for TARGET_PERSIST_NS before it is raised.
-        let lost = running && d.projection.as_ref().is_some_and(|p| !p.target_reachable);
-        let lost_since = if lost { Some(*self.target_lost_since.get_or_insert(t)) } else { None };
-        if !lost {
-            self.target_lost_since = None;
-        }
-        book.set(t, "target", Severity::Caution, lost_since.is_some_and(|s| t - s >= TARGET_PERSIST_NS), || {
-            format!("target {target_kmh:.0} km/h out of reach: projected peak {:.0} km/h", peak.unwrap_or(0.0))
-        });
+        let quiet = alerts::health::evaluate(book, t, sources, &mut self.health, |id| decoder.source_stats(id));
+        let (channels, store) = (&decoder.channels, &self.store);
+        alerts::staleness::stale_channels(book, t, channels, store, &decoder.can.channel_message, sources, &quiet);
+        alerts::staleness::message_rates(book, t, &decoder.can.message_counts, &self.rates.short);
+        alerts::staleness::out_of_range(book, t, channels, store);
+        let (wheel, gnss) = (store.fresh(ch::VEHICLE_SPEED, t), store.fresh(ch::GNSS_SPEED, t));
+        alerts::staleness::speed_agreement(book, t, wheel, gnss, &mut self.speed_disagree_since);
         let braking_now = inp.brake.is_some_and(|x| x > 0.1);
-        let br = d.braking;
-        let approach = running && !braking_now && br.is_some_and(|x| !x.passed && x.in_s < lim.braking_approach_s);
-        book.set(t, "brake-approach", Severity::Alarm, approach, || {
-            format!("braking point in {:.1} s ({:.0} m)", br.map_or(0.0, |x| x.in_s), br.map_or(0.0, |x| x.distance_m))
-        });
-        let passed = running && !braking_now && br.is_some_and(|x| x.passed);
-        book.set(t, "brake-passed", Severity::Alarm, passed, || {
-            format!("past the braking point by {:.0} m: brake", br.map_or(0.0, |x| -x.distance_m))
-        });
-        let ty = d.tyre;
-        book.set(t, "tyre", Severity::Alarm, ty.is_some_and(|x| x.margin_mps < lim.tyre_margin_low_mps), || {
-            format!("tyre speed margin {:.0} km/h", ty.map_or(0.0, |x| x.margin_mps * 3.6))
-        });
-        book.set(
-            t,
-            "tyre-projected",
-            Severity::Caution,
-            running && ty.is_some_and(|x| x.peak_margin_mps.is_some_and(|m| m < 0.0)),
-            || {
-                format!(
-                    "projected peak above the tyres' rating by {:.0} km/h",
-                    ty.and_then(|x| x.peak_margin_mps).map_or(0.0, |m| -m * 3.6)
-                )
-            },
-        );
-        let temp_limit = cfg.vehicle.battery.temp_limit_c;
-        let temp = b.temp_c;
-        let hot = temp.is_some_and(|x| x >= temp_limit - lim.battery_temp_margin_c);
-        let sev = if temp.is_some_and(|x| x >= temp_limit) { Severity::Alarm } else { Severity::Caution };
-        book.set(t, "battery-temp", sev, hot, || {
-            format!("pack at {:.1} °C (limit {temp_limit:.0} °C)", temp.unwrap_or(0.0))
-        });
-        // The engineer's own rules.
-        let store = &self.store;
-        let channels = &self.decoder.channels;
-        book.evaluate_rules(t, &cfg.alerts.rules, |name| {
-            if name.starts_with("derived.") {
-                d.value(name)
-            } else {
-                channels.find(name).and_then(|id| store.fresh(id, t))
-            }
-        });
+        let d = &self.derived;
+        alerts::limits::evaluate(book, t, &cfg, d, braking_now, &mut self.limits);
+        alerts::rules::evaluate(book, t, &cfg.alerts.rules, |name| d.value(name), channels, store);
     }
 
     /// The state at stream time `t_ns` (at or after the last event).
