@@ -650,3 +650,285 @@ pub fn tyre_step(rated_mps: f64, v_mps: f64, peak_mps: Option<f64>) -> TyreView 
         peak_margin_mps: peak_mps.map(|p| rated_mps - p),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn close(a: f64, b: f64, tol: f64) -> bool {
+        (a - b).abs() <= tol
+    }
+
+    /// A vehicle and track with round numbers (the embedded demo with its
+    /// battery and track edited): 5 kWh above nothing, 150 kW rated, 80
+    /// cells of 3.75 V minimum (300 V), 0.1 Ω, 500 A.
+    fn cfg() -> ConfigSet {
+        let mut cfg = ConfigSet::embedded();
+        let b = &mut cfg.vehicle.battery;
+        b.energy_j = 5.0 * 3.6e6;
+        b.rated_power_w = 150e3;
+        b.soc_reserve = 0.2;
+        b.cells_in_series = 80;
+        b.cell_min_v = 3.75;
+        b.resistance_ohm = 0.1;
+        b.max_current_a = 500.0;
+        b.heat_capacity_j_per_k = 10_000.0;
+        b.temp_limit_c = 60.0;
+        cfg.track.zone_length_m = 10_000.0;
+        cfg.track.safety_margin_m = 500.0;
+        cfg.track.exit_speed_mps = 0.0;
+        cfg.track.braking_decel_mps2 = 5.0;
+        cfg
+    }
+
+    fn pack(ocv_v: f64, r_ohm: f64) -> PackEstimate {
+        PackEstimate {
+            ocv_v: Estimated { value: ocv_v, sd: 0.1 },
+            resistance_ohm: Estimated { value: r_ohm, sd: 0.001 },
+            ocv_slope_v: Estimated { value: 0.0, sd: 1.0 },
+            converged: true,
+        }
+    }
+
+    #[test]
+    fn air_falls_back_to_the_standard_atmosphere_without_weather() {
+        // ISO 2533 sea level: 1.225 kg/m³.
+        let (rho, origin) = air_step(None, 0.0);
+        assert!(close(rho, 1.225, 1e-3), "{rho}");
+        assert_eq!(origin, AirOrigin::Standard);
+        // Higher is thinner (ISO 2533 at 1000 m: 1.112 kg/m³).
+        assert!(close(air_step(None, 1000.0).0, 1.112, 2e-3));
+    }
+
+    #[test]
+    fn air_is_measured_when_weather_is_present() {
+        // Dry air at 20 °C and 101 325 Pa: 1.204 kg/m³ (common practice).
+        let (rho, origin) = air_step(Some((20.0, 101_325.0, Some(0.0), 3.0)), 0.0);
+        assert!(close(rho, 1.204, 1e-3), "{rho}");
+        assert_eq!(origin, AirOrigin::Measured { age_s: 3.0, humidity_assumed: false });
+        // Without humidity, 50 % is assumed and said: moist air is lighter.
+        let (moist, origin) = air_step(Some((20.0, 101_325.0, None, 3.0)), 0.0);
+        assert!(moist < rho && moist > rho - 0.01, "{moist}");
+        assert_eq!(origin, AirOrigin::Measured { age_s: 3.0, humidity_assumed: true });
+    }
+
+    #[test]
+    fn coefficients_come_from_the_estimate_once_it_is_informative() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let prior = RoadLoadEstimate::default();
+        assert_eq!(coefficients_step(veh, &prior), (veh.cda_m2, veh.crr0), "sd 0 but value 0: not informative");
+        let tight = RoadLoadEstimate {
+            cda_m2: Estimated { value: 0.91, sd: 0.01 },
+            crr: Estimated { value: 0.013, sd: 0.5 },
+            ..RoadLoadEstimate::default()
+        };
+        // CdA tight, Crr's sd far over half its prior's: CdA from the data, Crr from the file.
+        assert_eq!(coefficients_step(veh, &tight), (0.91, veh.crr0));
+    }
+
+    #[test]
+    fn road_load_aero_term_is_half_rho_cda_vair_squared_v() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let model = RoadModel { rho: 1.2, wind_mps: 5.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let inp = TickInputs { accel: Some((0.5, "channel")), ..TickInputs::default() };
+        let boost = BoostModel {
+            available: false,
+            deliverable_w: 0.0,
+            tau_s: 20.0,
+            floor: 0.6,
+            time_in_boost_s: 0.0,
+            rated_w: 150e3,
+            energy_j: 0.0,
+            soc_fade_per_s: 0.0,
+        };
+        let rl = road_load_step(veh, &model, 0.0, 50.0, &inp, &boost);
+        // By hand: ½·1.2·0.8·55²·50 = 0.48·3025·50 = 72 600 W.
+        assert!(close(rl.aero_w, 72_600.0, 1e-6), "{}", rl.aero_w);
+        assert_eq!(rl.grade_w, 0.0);
+        assert!(close(rl.total_w, rl.aero_w + rl.rolling_w, 1e-9));
+        // Inertial m_eff·a·v, and no measured wheel power without engine or motor channels.
+        assert!(close(rl.inertial_w, veh.effective_mass_kg() * 0.5 * 50.0, 1e-6));
+        assert_eq!(rl.wheel_w, None);
+        // Boost unavailable: available is the engine alone through the driveline.
+        assert!(close(rl.available_w, veh.driveline_efficiency * veh.full_load_power_w(50.0), 1e-6));
+        assert!(close(rl.margin_w, rl.available_w - rl.total_w, 1e-9));
+        // With boost, the motor adds η_motor·deliverable up to its rating.
+        let boosted = BoostModel { available: true, deliverable_w: 10e3, ..boost };
+        let with = road_load_step(veh, &model, 0.0, 50.0, &inp, &boosted);
+        let motor = (10e3 * veh.motor_efficiency).min(veh.motor_rated_power_w);
+        assert!(close(with.available_w - rl.available_w, veh.driveline_efficiency * motor, 1e-6));
+    }
+
+    #[test]
+    fn battery_discharge_rate_and_hppc_maximum_by_hand() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        let inp =
+            TickInputs { voltage_v: Some(400.0), current_a: Some(250.0), soc: Some(0.7), ..TickInputs::default() };
+        let bv = battery_step(b, &inp, Some(pack(400.0, 0.1)), 0.0, None, None);
+        // P = 400·250 = 100 kW over 5 kWh: 20 kW per kWh.
+        assert_eq!(bv.power_w, Some(100e3));
+        assert!(close(bv.discharge_rate_kw_per_kwh.unwrap(), 20.0, 1e-12));
+        // (0.7 − 0.2)·18 MJ = 9 MJ above the reserve.
+        assert!(close(bv.energy_above_reserve_j.unwrap(), 9e6, 1e-6));
+        // HPPC: voltage-limited 300·(400 − 300)/0.1 = 300 kW; current-limited
+        // 500·(400 − 50) = 175 kW: the current limit binds.
+        assert!(close(bv.hppc_max_w.unwrap(), 175e3, 1e-6));
+        assert!(close(bv.deliverable_w.unwrap(), 175e3, 1e-6));
+        assert!(close(bv.derating_ratio.unwrap(), 175.0 / 150.0, 1e-12));
+        // The battery system's own limit wins over the model; a wild one is
+        // capped at 1.5 times the rating.
+        let reported = TickInputs { power_limit_w: Some(120e3), ..inp };
+        assert_eq!(battery_step(b, &reported, Some(pack(400.0, 0.1)), 0.0, None, None).deliverable_w, Some(120e3));
+        let wild = TickInputs { power_limit_w: Some(1e9), ..inp };
+        assert_eq!(battery_step(b, &wild, None, 0.0, None, None).deliverable_w, Some(225e3));
+        assert_eq!(battery_step(b, &TickInputs::default(), None, 0.0, None, None).deliverable_w, None);
+    }
+
+    #[test]
+    fn a_converged_derating_fit_is_normalised_to_a_fresh_pack() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        let fit = DeratingFit { tau_s: 12.0, floor: 0.4, amplitude: 0.4, converged: true, ..DeratingFit::default() };
+        // Floor 0.4 of rated from a start of 0.8: half of a fresh pack.
+        assert_eq!(derating_curve(b, Some(fit)), DeratingCurve { tau_s: 12.0, floor: 0.5, fitted: true });
+        let unconverged = DeratingFit { converged: false, ..fit };
+        assert_eq!(
+            derating_curve(b, Some(unconverged)),
+            DeratingCurve { tau_s: b.derate_tau_s, floor: b.derate_floor, fitted: false }
+        );
+        assert_eq!(soc_fade_per_s(b, Some(pack(400.0, 0.1)), true, Some(100e3)), 0.0, "a fit has the fade in it");
+        // Current limit binds (175 kW < 300 kW): dP/dOCV = I_max = 500 A; slope
+        // 0.8 V per cell ·80 = 64 V; 500·64·100 kW/(18 MJ·175 kW) = 1.0159e-3 /s.
+        let fade = soc_fade_per_s(b, Some(pack(400.0, 0.1)), false, Some(100e3));
+        assert!(close(fade, 500.0 * 64.0 * 100e3 / (18e6 * 175e3), 1e-12), "{fade}");
+    }
+
+    fn boost(energy_j: f64) -> BoostModel {
+        BoostModel {
+            available: true,
+            deliverable_w: 100e3,
+            tau_s: 20.0,
+            floor: 0.5,
+            time_in_boost_s: 0.0,
+            rated_w: 150e3,
+            energy_j,
+            soc_fade_per_s: 0.0,
+        }
+    }
+
+    fn battery_view(boosting: bool, temp_c: Option<f64>) -> BatteryView {
+        BatteryView {
+            deliverable_w: Some(100e3),
+            ocv_v: Some(Estimated { value: 400.0, sd: 0.1 }),
+            resistance_ohm: Some(Estimated { value: 0.1, sd: 0.001 }),
+            model_converged: true,
+            energy_above_reserve_j: Some(3.6e6),
+            boosting,
+            temp_c,
+            ..BatteryView::default()
+        }
+    }
+
+    #[test]
+    fn boost_left_energy_limited_is_energy_over_draw() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        // Boosting at a measured 250 A: 3.6 MJ/(400 V·250 A) = 36 s. The
+        // power limit never binds (no need), no temperature: energy binds.
+        let left = boost_left_step(b, &battery_view(true, None), Some(250.0), &boost(3.6e6), 0.0, false);
+        assert!(close(left.energy_s.unwrap(), 36.0, 1e-9));
+        assert_eq!(left.power_s, Some(f64::INFINITY));
+        assert_eq!((left.binding, left.seconds), (Some(BoostLimit::Energy), Some(36.0)));
+        assert_eq!(left.need_w, Some(0.0));
+    }
+
+    #[test]
+    fn boost_left_thermal_and_power_limits_by_hand() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        // Not boosting: the current at the deliverable 100 kW, I = (400 −
+        // √(160 000 − 40 000))/0.2 = 267.949 A; heating I²R/C =
+        // 71 797.7·0.1/10 000 = 0.717968 °C/s; 1 °C below the limit: 1.3928 s.
+        let i = (400.0 - 120_000f64.sqrt()) / 0.2;
+        let rate = i * i * 0.1 / 10_000.0;
+        let left = boost_left_step(b, &battery_view(false, Some(59.0)), None, &boost(3.6e6), 0.0, false);
+        assert!(close(left.thermal_s.unwrap(), 1.0 / rate, 1e-9), "{left:?}");
+        assert!(close(left.thermal_s.unwrap(), 1.3928, 1e-4));
+        assert!(close(left.energy_s.unwrap(), 3.6e6 / (400.0 * i), 1e-9));
+        assert_eq!(left.binding, Some(BoostLimit::Thermal));
+        // Needing more than is deliverable: no power-limited time at all.
+        let left = boost_left_step(b, &battery_view(false, Some(59.0)), None, &boost(3.6e6), 120e3, false);
+        assert_eq!((left.binding, left.seconds), (Some(BoostLimit::Power), Some(0.0)));
+        // Needing 75 kW of 100 kW: the curve (floor 0.5, τ 20 s) falls to
+        // 0.75 at t = −20·ln((0.75 − 0.5)/0.5) = 20·ln 2 = 13.863 s.
+        let left = boost_left_step(b, &battery_view(false, None), None, &boost(3.6e6), 75e3, false);
+        assert!(close(left.power_s.unwrap(), 20.0 * 2f64.ln(), 1e-9), "{left:?}");
+        // Without a pack model there is nothing to say.
+        let none = BatteryView { ocv_v: None, ..battery_view(true, Some(30.0)) };
+        assert_eq!(boost_left_step(b, &none, None, &boost(1.0), 0.0, false).seconds, None);
+    }
+
+    #[test]
+    fn boost_need_is_the_road_load_the_engine_cannot_cover() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let model = RoadModel { rho: 1.2, wind_mps: 0.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let vt = 100.0;
+        let rl = roadload::road_load(&roadload::RoadLoadInputs {
+            v_mps: vt,
+            wind_mps: 0.0,
+            rho: 1.2,
+            cda_m2: 0.8,
+            crr0: 0.012,
+            crr2_s2_m2: veh.crr2_s2_m2,
+            mass_kg: veh.mass_kg,
+            grade: 0.0,
+        });
+        let by_hand = (rl.total_w / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency;
+        assert!(close(boost_need_w(veh, &model, vt), by_hand.max(0.0), 1e-6));
+        // A slow target the engine holds alone needs nothing.
+        assert_eq!(boost_need_w(veh, &model, 20.0), 0.0);
+    }
+
+    #[test]
+    fn braking_closed_form_without_drag() {
+        let cfg = cfg();
+        let track = &cfg.track;
+        let no_air = RoadModel { rho: 0.0, ..RoadModel::default() };
+        // Closed form at κ = 0: v²/(2a) = 80²/10 = 640 m to a stop.
+        let stopping = stopping_distance_m(track, &no_air, 1500.0, 80.0);
+        assert!(close(stopping, 640.0, 1e-9), "{stopping}");
+        // Stop-by point at 9500 m: from 8000 m there is room, project.
+        assert_eq!(braking_step(track, 8000.0, stopping, false), None);
+        // From 9000 m the braking point (8860 m) is 140 m behind.
+        let (view, note) = braking_step(track, 9000.0, stopping, false).unwrap();
+        assert_eq!(note, "past the braking point");
+        assert!(view.passed && close(view.point_m, 8860.0, 1e-9) && close(view.distance_m, -140.0, 1e-9));
+        // On the brake: no projection, whatever the distance.
+        let (view, note) = braking_step(track, 1000.0, stopping, true).unwrap();
+        assert_eq!(note, "braking");
+        assert!(!view.passed && view.in_s == 0.0);
+    }
+
+    #[test]
+    fn tyre_margin_now_and_at_the_peak() {
+        // 300 km/h rated (83.333 m/s), at 80 m/s and a projected 85 m/s.
+        let t = tyre_step(300.0 / 3.6, 80.0, Some(85.0));
+        assert!(close(t.margin_mps, 300.0 / 3.6 - 80.0, 1e-12));
+        assert!(close(t.peak_margin_mps.unwrap(), 300.0 / 3.6 - 85.0, 1e-12));
+        assert_eq!(tyre_step(83.0, 80.0, None).peak_margin_mps, None);
+    }
+
+    #[test]
+    fn compute_without_speed_says_so_and_lists_stale_inputs() {
+        let cfg = cfg();
+        let d = compute(&cfg, &TickInputs::default(), &RoadLoadEstimate::default(), None, 0.0, None, None);
+        assert_eq!(d.projection_note, Some("no speed"));
+        assert_eq!(d.stale_inputs, vec!["weather", "speed", "battery"]);
+        assert!(d.road_load.is_none() && d.braking.is_none() && d.tyre.is_none());
+        assert_eq!(d.air_origin, Some(AirOrigin::Standard));
+    }
+}
