@@ -5,15 +5,18 @@
 //! physics the engine projects with (full-load envelope through the gears,
 //! grip, the motor fed by a battery whose deliverable power follows the
 //! derating law and falls with the open-circuit voltage as charge is drawn,
-//! energy above the reserve, road load with wind and grade), integrated by
-//! RK4 on (distance, speed, energy drawn). It is pure and fast (a run costs
+//! energy above the reserve, road load with wind and grade), integrated on
+//! (distance, speed, energy drawn) with the engine's RK4 step
+//! ([`motion::rk4_step`]) and acceleration ([`motion::acceleration_mps2`]),
+//! the battery current from [`bat::current_at_power_a`]. It is pure and fast (a run costs
 //! some 100 µs), so the planner can search boost starts and run thousands
 //! of Monte Carlo trials over the plan's uncertainty ranges. Trials draw from
 //! independent seeded streams, so results do not depend on the thread count.
 
 use crate::config::plan::{BoostStart, Plan};
 use crate::config::{ConfigSet, Track, Vehicle};
-use crate::engine::physics::{air, battery as bat, braking, roadload};
+use crate::engine::physics::motion::{self, MotionParams, TRACTION_SPEED_FLOOR_MPS};
+use crate::engine::physics::{air, battery as bat, braking};
 use crate::sim::rng::Rng;
 use crate::units::G0;
 
@@ -142,33 +145,35 @@ pub fn run(veh: &Vehicle, track: &Track, c: &Conditions, boost: BoostStart, brak
     let mut boost_from = None;
     let mut target = None;
     let mut peak = (0.0, 0.0, 0.0);
-    // Acceleration and the rate energy is drawn, for a given state.
-    let deriv = |x: f64, v: f64, e: f64, tb: f64, boosting: bool| -> (f64, f64) {
+    // The road load's level terms; the grade at x is set per evaluation.
+    let level = MotionParams {
+        mass_eff_kg: m_eff,
+        mass_kg: mass,
+        k: 0.5 * rho * c.cda_m2,
+        crr0: c.crr0,
+        crr2_s2_m2: veh.crr2_s2_m2,
+        wind_mps: c.headwind_mps,
+        grade: 0.0,
+    };
+    // Acceleration and the rate energy is drawn, for a given state (time in
+    // boost, distance, speed, energy drawn).
+    let deriv = |tb: f64, x: f64, v: f64, e: f64, boosting: bool| -> (f64, f64) {
         let comb = veh.full_load_power_w(v);
         let (motor, draw) = if boosting && e < e_avail {
             let soc = c.soc_start - e / e_total;
             let p_term = deliverable_w(veh, c, soc, tb).min(veh.motor_rated_power_w / veh.motor_efficiency);
             // Energy drawn from the cells is OCV·I; the terminal gets OCV·I − I²R.
             let ocv = pack_ocv_v(veh, soc);
-            let disc = (ocv * ocv - 4.0 * b.resistance_ohm * p_term).max(0.0);
-            let i = (ocv - disc.sqrt()) / (2.0 * b.resistance_ohm);
+            let i = bat::current_at_power_a(ocv, b.resistance_ohm, p_term);
             (p_term * veh.motor_efficiency, ocv * i)
         } else {
             (0.0, 0.0)
         };
-        let f_drive = (veh.driveline_efficiency * (comb + motor) / v.max(0.5)).min(grip);
-        let rl = roadload::road_load(&roadload::RoadLoadInputs {
-            v_mps: v,
-            wind_mps: c.headwind_mps,
-            rho,
-            cda_m2: c.cda_m2,
-            crr0: c.crr0,
-            crr2_s2_m2: veh.crr2_s2_m2,
-            mass_kg: mass,
-            grade: track.grade_at(x),
-        });
-        let f_res = if v > 0.0 { rl.total_w / v } else { 0.0 };
-        ((f_drive - f_res) / m_eff, draw)
+        // Drive force capped by grip, as power at the speed the traction
+        // force is evaluated at.
+        let p_drive = (veh.driveline_efficiency * (comb + motor)).min(grip * v.max(TRACTION_SPEED_FLOOR_MPS));
+        let here = MotionParams { grade: track.grade_at(x), ..level };
+        (motion::acceleration_mps2(&here, p_drive, v), draw)
     };
     while t < HORIZON_S {
         if !boosting {
@@ -184,14 +189,10 @@ pub fn run(veh: &Vehicle, track: &Track, c: &Conditions, boost: BoostStart, brak
             break;
         }
         let h = STEP_S;
-        let (a1, p1) = deriv(x, v, e, tb, boosting);
-        let (a2, p2) = deriv(x + 0.5 * h * v, v + 0.5 * h * a1, e + 0.5 * h * p1, tb + 0.5 * h, boosting);
-        let (a3, p3) =
-            deriv(x + 0.5 * h * (v + 0.5 * h * a1), v + 0.5 * h * a2, e + 0.5 * h * p2, tb + 0.5 * h, boosting);
-        let (a4, p4) = deriv(x + h * (v + 0.5 * h * a2), v + h * a3, e + h * p3, tb + h, boosting);
-        let v_new = (v + h / 6.0 * (a1 + 2.0 * a2 + 2.0 * a3 + a4)).max(0.0);
-        x += h / 6.0 * (v + 2.0 * (v + 0.5 * h * a1) + 2.0 * (v + 0.5 * h * a2) + (v + h * a3));
-        e += h / 6.0 * (p1 + 2.0 * p2 + 2.0 * p3 + p4);
+        // The step's clock is the time in boost, which drives the derating.
+        let (x_new, v_new, e_new) = motion::rk4_step(tb, tb + h, (x, v, e), |tb, x, v, e| deriv(tb, x, v, e, boosting));
+        let v_new = v_new.max(0.0);
+        (x, e) = (x_new, e_new);
         if boosting && e < e_avail {
             tb += h;
         }
@@ -328,6 +329,7 @@ pub fn monte_carlo(
 mod tests {
     use super::*;
     use crate::config::{self};
+    use crate::engine::physics::roadload;
 
     fn demo() -> (Plan, ConfigSet) {
         config::load_plan(None, &[]).unwrap()

@@ -1,10 +1,13 @@
 //! The derived quantities a snapshot carries, and their computation at each
 //! snapshot tick from the channel store and the estimators.
 
-use super::estimators::{DeratingFit, Estimated, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior};
+use super::estimators::{
+    DeratingFit, Estimated, PackEstimate, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior,
+};
 use super::physics::{air, battery as bat, braking, roadload};
 use super::projection::{BoostModel, ProjectionInputs, project};
-use crate::config::ConfigSet;
+use crate::config::vehicle::Battery;
+use crate::config::{ConfigSet, Track, Vehicle};
 
 /// Where the air density came from.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -203,7 +206,35 @@ pub struct TickInputs {
     pub brake: Option<f64>,
 }
 
+/// The air and the road-load coefficients the road load, the boost need
+/// and the projection are computed with.
+#[derive(Clone, Copy, Debug, PartialEq, Default)]
+pub struct RoadModel {
+    /// Air density, kg/m³.
+    pub rho: f64,
+    /// Mean wind along the run, m/s, headwind positive.
+    pub wind_mps: f64,
+    pub cda_m2: f64,
+    pub crr: f64,
+    /// Whether the road-load estimate has converged.
+    pub converged: bool,
+}
+
+/// The derating curve the boost model follows: its time constant, its floor
+/// relative to a fresh pack, and whether it is the fit (else the vehicle
+/// file's).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct DeratingCurve {
+    pub tau_s: f64,
+    pub floor: f64,
+    pub fitted: bool,
+}
+
 /// Computes the derived block. Pure: the same inputs give the same output.
+///
+/// A short sequence of named steps, each a pure function below with its
+/// own tests: air, coefficients, battery, the boost model, road load, boost
+/// need and boost left, braking or projection, tyre.
 pub fn compute(
     cfg: &ConfigSet,
     inp: &TickInputs,
@@ -219,20 +250,12 @@ pub fn compute(
     let mut d = Derived { distance_m: inp.distance_m, ..Derived::default() };
     let mut stale: Vec<&'static str> = Vec::new();
 
-    // Air density: measured weather (CIPM-2007) or the standard atmosphere.
-    match inp.weather {
-        Some((t_c, p_pa, rh, age_s)) => {
-            d.air_density = air::moist_air_density_cipm2007(t_c, p_pa, rh.unwrap_or(0.5));
-            d.air_origin = Some(AirOrigin::Measured { age_s, humidity_assumed: rh.is_none() });
-        }
-        None => {
-            d.air_density = air::isa_troposphere(air::geopotential_m(track.elevation_m)).2;
-            d.air_origin = Some(AirOrigin::Standard);
-            stale.push("weather");
-        }
+    let (rho, origin) = air_step(inp.weather, track.elevation_m);
+    d.air_density = rho;
+    d.air_origin = Some(origin);
+    if origin == AirOrigin::Standard {
+        stale.push("weather");
     }
-    let rho = d.air_density;
-    let wind = inp.wind_mps.unwrap_or(0.0);
     if let Some((v, src, _)) = inp.speed {
         d.speed_mps = Some(v);
         d.speed_source = src;
@@ -243,12 +266,87 @@ pub fn compute(
         d.accel_mps2 = Some(a);
         d.accel_source = src;
     }
-    // The estimator's current values (its prior, the vehicle file's, blended
-    // with the data so far) once the data has told it something: each
-    // coefficient's standard deviation under half its prior's. Before that
-    // the first seconds of data can mislead more than the file does.
-    // Whether the estimate has converged is carried along and shown.
-    let informative = |e: super::estimators::Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
+    let (cda_m2, crr) = coefficients_step(veh, estimate);
+    let model = RoadModel { rho, wind_mps: inp.wind_mps.unwrap_or(0.0), cda_m2, crr, converged: estimate.converged };
+
+    let bv = battery_step(b, inp, pack, time_in_boost_s, fit, heating);
+    if bv.deliverable_w.is_none() {
+        stale.push("battery");
+    }
+    let curve = derating_curve(b, fit);
+    let boost = BoostModel {
+        soc_fade_per_s: soc_fade_per_s(b, pack, curve.fitted, bv.deliverable_w),
+        available: bv.energy_above_reserve_j.unwrap_or(0.0) > 0.0 && bv.deliverable_w.is_some_and(|p| p > 0.0),
+        deliverable_w: bv.deliverable_w.unwrap_or(0.0),
+        tau_s: curve.tau_s,
+        floor: curve.floor,
+        time_in_boost_s: if inp.boosting { time_in_boost_s } else { 0.0 },
+        rated_w: b.rated_power_w,
+        energy_j: bv.energy_above_reserve_j.unwrap_or(0.0),
+    };
+
+    let grade = track.grade_at(inp.distance_m);
+    d.road_load = d.speed_mps.map(|v| road_load_step(veh, &model, grade, v, inp, &boost));
+
+    let need_w = boost_need_w(veh, &model, track.target_speed_mps);
+    let left = boost_left_step(b, &bv, inp.current_a, &boost, need_w, curve.fitted);
+
+    if let Some(v) = d.speed_mps {
+        let stopping = stopping_distance_m(track, &model, veh.mass_kg, v);
+        let braking_now = inp.brake.is_some_and(|b| b > 0.1);
+        if let Some((view, note)) = braking_step(track, inp.distance_m, stopping, braking_now) {
+            d.projection_note = Some(note);
+            d.braking = Some(view);
+        } else {
+            let base = ProjectionInputs {
+                vehicle: veh,
+                track,
+                x0_m: inp.distance_m,
+                v0_mps: v,
+                rho,
+                wind_mps: model.wind_mps,
+                cda_m2,
+                crr0: crr,
+                boost,
+            };
+            let (projection, braking) =
+                projection_step(&base, estimate.cda_m2.sd, model.converged, curve.fitted, stopping);
+            d.projection = Some(projection);
+            d.braking = Some(braking);
+        }
+        d.tyre = Some(tyre_step(veh.tyre_rated_mps, v, d.projection.as_ref().map(|p| p.peak_mps)));
+    } else {
+        d.projection_note = Some("no speed");
+    }
+    d.stale_inputs = stale;
+    d.estimate = *estimate;
+    d.battery = bv;
+    d.boost_left = left;
+    d
+}
+
+/// Air density, kg/m³, and where it came from: CIPM-2007 moist air
+/// (Picard et al., Metrologia 45, 2008) from the weather channels
+/// (temperature °C, pressure Pa, relative humidity 0–1 assumed 0.5 when
+/// not measured, age s), else the ISO 2533 standard atmosphere at the
+/// track's elevation.
+pub fn air_step(weather: Option<(f64, f64, Option<f64>, f64)>, elevation_m: f64) -> (f64, AirOrigin) {
+    match weather {
+        Some((t_c, p_pa, rh, age_s)) => (
+            air::moist_air_density_cipm2007(t_c, p_pa, rh.unwrap_or(0.5)),
+            AirOrigin::Measured { age_s, humidity_assumed: rh.is_none() },
+        ),
+        None => (air::isa_troposphere(air::geopotential_m(elevation_m)).2, AirOrigin::Standard),
+    }
+}
+
+/// The CdA (m²) and Crr the road load uses: the estimator's current values
+/// (its prior, the vehicle file's, blended with the data so far) once the
+/// data has told it something, each coefficient's standard deviation under
+/// half its prior's; before that the vehicle file's, since the first seconds
+/// of data can mislead more than the file does.
+pub fn coefficients_step(veh: &Vehicle, estimate: &RoadLoadEstimate) -> (f64, f64) {
+    let informative = |e: Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
     let cda = if informative(estimate.cda_m2, RoadLoadEstimatorPrior::cda_sd(veh)) {
         estimate.cda_m2.value
     } else {
@@ -256,9 +354,22 @@ pub fn compute(
     };
     let crr =
         if informative(estimate.crr, RoadLoadEstimatorPrior::crr_sd(veh)) { estimate.crr.value } else { veh.crr0 };
-    let from_estimate = estimate.converged;
+    (cda, crr)
+}
 
-    // Battery.
+/// The battery now: terminal power P = V·I, the discharge rate, energy
+/// above the reserve E = (soc − reserve)·E_pack, and what it can deliver:
+/// the battery system's reported limit, else the HPPC maximum from the
+/// fitted OCV and R (the vehicle file's R until the fit converges), capped
+/// at 1.5 times the rating (a guard against a wild fit or report).
+pub fn battery_step(
+    b: &Battery,
+    inp: &TickInputs,
+    pack: Option<PackEstimate>,
+    time_in_boost_s: f64,
+    fit: Option<DeratingFit>,
+    heating: Option<f64>,
+) -> BatteryView {
     let rated_w = b.rated_power_w;
     let mut bv = BatteryView {
         rated_w,
@@ -283,26 +394,33 @@ pub fn compute(
     bv.reported_limit_w = inp.power_limit_w;
     bv.deliverable_w = inp.power_limit_w.or(bv.hppc_max_w).map(|p| p.min(rated_w * 1.5));
     bv.derating_ratio = bv.deliverable_w.map(|p| p / rated_w);
-    if bv.deliverable_w.is_none() {
-        stale.push("battery");
-    }
+    bv
+}
 
-    // The derating curve: the fit once converged, else the vehicle file's.
-    let (tau, floor, curve_fitted) = match fit {
+/// The derating curve: the fit once converged, else the vehicle file's.
+/// The fit's floor is a ratio of rated; the projection's curve is relative
+/// to a fresh pack, so it is normalised by the fitted start (floor +
+/// amplitude).
+pub fn derating_curve(b: &Battery, fit: Option<DeratingFit>) -> DeratingCurve {
+    match fit {
         Some(f) if f.converged => {
-            // The fit's floor is a ratio of rated; the projection's curve is
-            // relative to a fresh pack: normalise by the fitted start.
             let r0 = (f.floor + f.amplitude).max(1e-6);
-            (f.tau_s, (f.floor / r0).clamp(0.0, 1.0), true)
+            DeratingCurve { tau_s: f.tau_s, floor: (f.floor / r0).clamp(0.0, 1.0), fitted: true }
         }
-        _ => (b.derate_tau_s, b.derate_floor, false),
-    };
-    let energy_j = bv.energy_above_reserve_j.unwrap_or(0.0);
-    // With the vehicle file's curve (a ratio), add the fall of the
-    // current-limited power with the open-circuit voltage as charge is
-    // drawn: d(ln P)/dt = (dP/dOCV)·(dOCV/dsoc)·(dsoc/dt)/P. A fitted curve
-    // has it in already.
-    let soc_fade_per_s = match (curve_fitted, pack, bv.deliverable_w) {
+        _ => DeratingCurve { tau_s: b.derate_tau_s, floor: b.derate_floor, fitted: false },
+    }
+}
+
+/// How fast the deliverable power falls as charge is drawn, fraction per
+/// second: with the vehicle file's curve (a ratio), the fall of the HPPC
+/// power with the open-circuit voltage, d(ln P)/dt =
+/// (dP/dOCV)·(dOCV/dsoc)·(dsoc/dt)/P, with dP/dOCV = I_max when the
+/// current limit binds and V_min/R when the voltage limit does, and
+/// dsoc/dt = P_deliverable/E_pack. A fitted curve has it in already: 0.
+/// The OCV slope is the fitted one when it is tight (sd under 30 %), else
+/// 0.8 V per cell from full to empty (common practice for lithium-ion).
+pub fn soc_fade_per_s(b: &Battery, pack: Option<PackEstimate>, curve_fitted: bool, deliverable_w: Option<f64>) -> f64 {
+    match (curve_fitted, pack, deliverable_w) {
         (false, Some(p), Some(deliv)) if deliv > 0.0 => {
             let slope = if p.ocv_slope_v.value > 0.0 && p.ocv_slope_v.sd < 0.3 * p.ocv_slope_v.value {
                 p.ocv_slope_v.value
@@ -318,192 +436,499 @@ pub fn compute(
             if hppc > 0.0 { (dp_docv * slope * deliv / (b.energy_j * hppc)).clamp(0.0, 0.05) } else { 0.0 }
         }
         _ => 0.0,
-    };
-    let boost = BoostModel {
-        soc_fade_per_s,
-        available: energy_j > 0.0 && bv.deliverable_w.is_some_and(|p| p > 0.0),
-        deliverable_w: bv.deliverable_w.unwrap_or(0.0),
-        tau_s: tau,
-        floor,
-        time_in_boost_s: if inp.boosting { time_in_boost_s } else { 0.0 },
-        rated_w,
-        energy_j,
-    };
-
-    // Road load at the present speed.
-    let grade = track.grade_at(inp.distance_m);
-    let comb_env = |v: f64| veh.full_load_power_w(v);
-    if let Some(v) = d.speed_mps {
-        let rl = roadload::road_load(&roadload::RoadLoadInputs {
-            v_mps: v,
-            wind_mps: wind,
-            rho,
-            cda_m2: cda,
-            crr0: crr,
-            crr2_s2_m2: veh.crr2_s2_m2,
-            mass_kg: veh.mass_kg,
-            grade,
-        });
-        let inertial = d.accel_mps2.map_or(0.0, |a| roadload::inertial_power_w(veh.effective_mass_kg(), a, v));
-        let wheel_w = match (inp.engine_w, inp.motor_w) {
-            (None, None) => None,
-            (e, m) => Some(roadload::wheel_power_w(e.unwrap_or(0.0), m.unwrap_or(0.0), veh.driveline_efficiency)),
-        };
-        let motor_avail = if boost.available {
-            (boost.deliverable_w * veh.motor_efficiency).min(veh.motor_rated_power_w)
-        } else {
-            0.0
-        };
-        let available = veh.driveline_efficiency * (comb_env(v) + motor_avail);
-        d.road_load = Some(RoadLoadView {
-            aero_w: rl.aero_w,
-            rolling_w: rl.rolling_w,
-            grade_w: rl.grade_w,
-            total_w: rl.total_w,
-            inertial_w: inertial,
-            demand_w: rl.total_w + inertial,
-            wheel_w,
-            available_w: available,
-            margin_w: available - rl.total_w,
-            cda_m2: cda,
-            crr,
-            estimate_converged: from_estimate,
-        });
     }
+}
 
-    // Battery power needed to reach and hold the target: road load at the
-    // target speed beyond what the combustion engine gives there.
-    let vt = track.target_speed_mps;
+/// Road load at the present speed `v_mps` (aero ½ρCdA·v_air²·v, rolling,
+/// grade: [`roadload::road_load`]), inertial power m_eff·a·v, the measured
+/// wheel power η·(engine + motor), and what the powertrain could deliver at
+/// the wheels at full demand: η·(full-load envelope + motor), the motor fed
+/// by the battery's deliverable power only while boost is available.
+pub fn road_load_step(
+    veh: &Vehicle,
+    model: &RoadModel,
+    grade: f64,
+    v_mps: f64,
+    inp: &TickInputs,
+    boost: &BoostModel,
+) -> RoadLoadView {
+    let v = v_mps;
+    let rl = roadload::road_load(&roadload::RoadLoadInputs {
+        v_mps: v,
+        wind_mps: model.wind_mps,
+        rho: model.rho,
+        cda_m2: model.cda_m2,
+        crr0: model.crr,
+        crr2_s2_m2: veh.crr2_s2_m2,
+        mass_kg: veh.mass_kg,
+        grade,
+    });
+    let inertial = inp.accel.map_or(0.0, |(a, _)| roadload::inertial_power_w(veh.effective_mass_kg(), a, v));
+    let wheel_w = match (inp.engine_w, inp.motor_w) {
+        (None, None) => None,
+        (e, m) => Some(roadload::wheel_power_w(e.unwrap_or(0.0), m.unwrap_or(0.0), veh.driveline_efficiency)),
+    };
+    let motor_avail =
+        if boost.available { (boost.deliverable_w * veh.motor_efficiency).min(veh.motor_rated_power_w) } else { 0.0 };
+    let available = veh.driveline_efficiency * (veh.full_load_power_w(v) + motor_avail);
+    RoadLoadView {
+        aero_w: rl.aero_w,
+        rolling_w: rl.rolling_w,
+        grade_w: rl.grade_w,
+        total_w: rl.total_w,
+        inertial_w: inertial,
+        demand_w: rl.total_w + inertial,
+        wheel_w,
+        available_w: available,
+        margin_w: available - rl.total_w,
+        cda_m2: model.cda_m2,
+        crr: model.crr,
+        estimate_converged: model.converged,
+    }
+}
+
+/// Battery terminal power needed to reach and hold the target speed `vt`,
+/// W: the level road load there beyond what the combustion engine gives,
+/// through the driveline and the motor, (RL(vt)/η_drive − P_engine(vt))/η_motor,
+/// floored at 0.
+pub fn boost_need_w(veh: &Vehicle, model: &RoadModel, vt: f64) -> f64 {
     let rl_target = roadload::road_load(&roadload::RoadLoadInputs {
         v_mps: vt,
-        wind_mps: wind,
-        rho,
-        cda_m2: cda,
-        crr0: crr,
+        wind_mps: model.wind_mps,
+        rho: model.rho,
+        cda_m2: model.cda_m2,
+        crr0: model.crr,
         crr2_s2_m2: veh.crr2_s2_m2,
         mass_kg: veh.mass_kg,
         grade: 0.0,
     })
     .total_w;
-    let need_w = ((rl_target / veh.driveline_efficiency - comb_env(vt)) / veh.motor_efficiency).max(0.0);
+    ((rl_target / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency).max(0.0)
+}
 
-    // Boost time left, three ways.
+/// Seconds of boost left, three ways, and the limit that binds first:
+/// energy (E/(OCV·I), [`bat::energy_limited_time_s`]), power (until the
+/// derating curve from what is delivered now falls below `need_w`) and
+/// thermal ((T_limit − T)/rate, the measured heating rate after 5 s of
+/// boost, else I²R/C). The current is the measured one while boosting
+/// above 10 A, else the current at the deliverable power
+/// ([`bat::current_at_power_a`]). Empty without a deliverable power and a
+/// pack model.
+pub fn boost_left_step(
+    b: &Battery,
+    bv: &BatteryView,
+    current_a: Option<f64>,
+    boost: &BoostModel,
+    need_w: f64,
+    curve_fitted: bool,
+) -> BoostLeft {
     let mut left = BoostLeft { need_w: Some(need_w), curve_fitted, ..BoostLeft::default() };
-    if let (Some(p), Some(ocv)) = (bv.deliverable_w, bv.ocv_v) {
-        let r = bv.resistance_ohm.filter(|_| bv.model_converged).map_or(b.resistance_ohm, |e| e.value);
-        // At the present current while boosting; else at the deliverable power.
-        let i_boost = if inp.boosting && inp.current_a.is_some_and(|i| i > 10.0) {
-            inp.current_a.unwrap_or(0.0)
-        } else {
-            let disc = (ocv.value * ocv.value - 4.0 * r * p).max(0.0);
-            (ocv.value - disc.sqrt()) / (2.0 * r)
-        };
-        if bv.energy_above_reserve_j.is_some() {
-            left.energy_s = Some(bat::energy_limited_time_s(energy_j, ocv.value, r, i_boost));
+    let (Some(p), Some(ocv)) = (bv.deliverable_w, bv.ocv_v) else { return left };
+    let (tau, floor) = (boost.tau_s, boost.floor);
+    let r = bv.resistance_ohm.filter(|_| bv.model_converged).map_or(b.resistance_ohm, |e| e.value);
+    let i_boost = if bv.boosting && current_a.is_some_and(|i| i > 10.0) {
+        current_a.unwrap_or(0.0)
+    } else {
+        bat::current_at_power_a(ocv.value, r, p)
+    };
+    if bv.energy_above_reserve_j.is_some() {
+        left.energy_s = Some(bat::energy_limited_time_s(boost.energy_j, ocv.value, r, i_boost));
+    }
+    let now = bat::derating_ratio(boost.time_in_boost_s, tau, floor);
+    left.power_s = Some(if p < need_w {
+        0.0
+    } else if now > 0.0 {
+        let ratio_needed = need_w / p * now;
+        (bat::time_until_ratio_s(ratio_needed, tau, floor) - boost.time_in_boost_s).max(0.0)
+    } else {
+        0.0
+    });
+    let rate = match bv.heating_c_per_s {
+        Some(h) if bv.boosting && bv.time_in_boost_s >= 5.0 => h,
+        _ => i_boost * i_boost * r / b.heat_capacity_j_per_k,
+    };
+    if let Some(t) = bv.temp_c {
+        left.thermal_s = Some(bat::thermal_limited_time_s(t, b.temp_limit_c, rate));
+    }
+    let mut best: Option<(BoostLimit, f64)> = None;
+    for (lim, s) in
+        [(BoostLimit::Energy, left.energy_s), (BoostLimit::Power, left.power_s), (BoostLimit::Thermal, left.thermal_s)]
+    {
+        if let Some(s) = s
+            && s.is_finite()
+            && best.is_none_or(|(_, b)| s < b)
+        {
+            best = Some((lim, s));
         }
-        // Power: when the curve from what is delivered now falls below the need.
-        let now = bat::derating_ratio(boost.time_in_boost_s, tau, floor);
-        left.power_s = Some(if p < need_w {
-            0.0
-        } else if now > 0.0 {
-            let ratio_needed = need_w / p * now;
-            (bat::time_until_ratio_s(ratio_needed, tau, floor) - boost.time_in_boost_s).max(0.0)
-        } else {
-            0.0
-        });
-        // Thermal: the measured heating rate while boosting, else I²R/C.
-        let rate = match heating {
-            Some(h) if inp.boosting && time_in_boost_s >= 5.0 => h,
-            _ => i_boost * i_boost * r / b.heat_capacity_j_per_k,
-        };
-        if let Some(t) = inp.temp_c {
-            left.thermal_s = Some(bat::thermal_limited_time_s(t, b.temp_limit_c, rate));
-        }
-        let mut best: Option<(BoostLimit, f64)> = None;
-        for (lim, s) in [
-            (BoostLimit::Energy, left.energy_s),
-            (BoostLimit::Power, left.power_s),
-            (BoostLimit::Thermal, left.thermal_s),
-        ] {
-            if let Some(s) = s
-                && s.is_finite()
-                && best.is_none_or(|(_, b)| s < b)
-            {
-                best = Some((lim, s));
-            }
-        }
-        left.binding = best.map(|b| b.0);
-        left.seconds = best.map(|b| b.1);
+    }
+    left.binding = best.map(|b| b.0);
+    left.seconds = best.map(|b| b.1);
+    left
+}
+
+/// Distance to slow from `v_mps` to the track's exit speed at its braking
+/// deceleration with aerodynamic drag (κ = ½ρCdA/m), m:
+/// [`braking::braking_distance_m`].
+pub fn stopping_distance_m(track: &Track, model: &RoadModel, mass_kg: f64, v_mps: f64) -> f64 {
+    let kappa = 0.5 * model.rho * model.cda_m2 / mass_kg;
+    braking::braking_distance_m(v_mps, track.exit_speed_mps.min(v_mps), track.braking_decel_mps2, kappa)
+}
+
+/// The braking point when there is nothing to project: the driver is
+/// braking, or the stop-by point is closer than the stopping distance (the
+/// braking point is behind the car). `None` when the projection should run.
+pub fn braking_step(
+    track: &Track,
+    distance_m: f64,
+    stopping_m: f64,
+    braking_now: bool,
+) -> Option<(BrakingView, &'static str)> {
+    let to_stop_by = track.stop_by_m() - distance_m;
+    if !(braking_now || to_stop_by < stopping_m) {
+        return None;
+    }
+    let view = BrakingView {
+        point_m: track.stop_by_m() - stopping_m,
+        distance_m: to_stop_by - stopping_m,
+        in_s: 0.0,
+        stopping_m,
+        passed: to_stop_by < stopping_m,
+    };
+    Some((view, if braking_now { "braking" } else { "past the braking point" }))
+}
+
+/// The projection at full demand from the present state, its band with CdA
+/// at ±1 standard deviation of the estimate (±10 % before it converges),
+/// about 60 trajectory points for drawing, and the braking point where the
+/// projection ends.
+pub fn projection_step(
+    base: &ProjectionInputs<'_>,
+    cda_sd: f64,
+    estimate_converged: bool,
+    curve_fitted: bool,
+    stopping_m: f64,
+) -> (ProjectionView, BrakingView) {
+    let cda = base.cda_m2;
+    let p = project(base);
+    let sd = cda_sd.max(0.0);
+    let band = |dc: f64| project(&ProjectionInputs { cda_m2: (cda + dc).max(0.05), ..*base }).peak_mps;
+    let (lo, hi) = if estimate_converged { (band(sd), band(-sd)) } else { (band(0.1 * cda), band(-0.1 * cda)) };
+    let step = (p.points.len() / 60).max(1);
+    let trajectory: Vec<(f64, f64)> =
+        p.points.iter().step_by(step).chain(p.points.last()).map(|&(_, x, v)| (x, v)).collect();
+    let braking = BrakingView {
+        point_m: p.brake_at_m,
+        distance_m: p.brake_at_m - base.x0_m,
+        in_s: p.brake_in_s,
+        stopping_m,
+        passed: false,
+    };
+    let view = ProjectionView {
+        peak_mps: p.peak_mps,
+        peak_low_mps: lo.min(p.peak_mps),
+        peak_high_mps: hi.max(p.peak_mps),
+        peak_at_m: p.peak_at_m,
+        peak_in_s: p.peak_in_s,
+        terminal_mps: p.terminal_mps,
+        terminal_no_boost_mps: p.terminal_no_boost_mps,
+        target_mps: base.track.target_speed_mps,
+        target_reachable: p.target.is_some(),
+        target_in_s: p.target.map(|t| t.0),
+        target_at_m: p.target.map(|t| t.1),
+        trajectory,
+        converged: estimate_converged && curve_fitted,
+    };
+    (view, braking)
+}
+
+/// Tyre speed margin: rated minus present speed, and rated minus the
+/// projected peak when there is one, m/s.
+pub fn tyre_step(rated_mps: f64, v_mps: f64, peak_mps: Option<f64>) -> TyreView {
+    TyreView {
+        rated_mps,
+        margin_mps: braking::tyre_speed_margin_mps(v_mps, rated_mps),
+        peak_margin_mps: peak_mps.map(|p| rated_mps - p),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn close(a: f64, b: f64, tol: f64) -> bool {
+        (a - b).abs() <= tol
     }
 
-    // Projection and braking point.
-    let braking_now = inp.brake.is_some_and(|b| b > 0.1);
-    if let Some(v) = d.speed_mps {
-        let base = ProjectionInputs {
-            vehicle: veh,
-            track,
-            x0_m: inp.distance_m,
-            v0_mps: v,
-            rho,
-            wind_mps: wind,
-            cda_m2: cda,
-            crr0: crr,
-            boost,
-        };
-        let kappa = 0.5 * rho * cda / veh.mass_kg;
-        let stopping = braking::braking_distance_m(v, track.exit_speed_mps.min(v), track.braking_decel_mps2, kappa);
-        let to_stop_by = track.stop_by_m() - inp.distance_m;
-        if braking_now || to_stop_by < stopping {
-            d.projection_note = Some(if braking_now { "braking" } else { "past the braking point" });
-            d.braking = Some(BrakingView {
-                point_m: track.stop_by_m() - stopping,
-                distance_m: to_stop_by - stopping,
-                in_s: 0.0,
-                stopping_m: stopping,
-                passed: to_stop_by < stopping,
-            });
-        } else {
-            let p = project(&base);
-            let sd = estimate.cda_m2.sd.max(0.0);
-            let band = |dc: f64| project(&ProjectionInputs { cda_m2: (cda + dc).max(0.05), ..base }).peak_mps;
-            let (lo, hi) = if from_estimate { (band(sd), band(-sd)) } else { (band(0.1 * cda), band(-0.1 * cda)) };
-            let step = (p.points.len() / 60).max(1);
-            let trajectory: Vec<(f64, f64)> =
-                p.points.iter().step_by(step).chain(p.points.last()).map(|&(_, x, v)| (x, v)).collect();
-            d.braking = Some(BrakingView {
-                point_m: p.brake_at_m,
-                distance_m: p.brake_at_m - inp.distance_m,
-                in_s: p.brake_in_s,
-                stopping_m: stopping,
-                passed: false,
-            });
-            d.projection = Some(ProjectionView {
-                peak_mps: p.peak_mps,
-                peak_low_mps: lo.min(p.peak_mps),
-                peak_high_mps: hi.max(p.peak_mps),
-                peak_at_m: p.peak_at_m,
-                peak_in_s: p.peak_in_s,
-                terminal_mps: p.terminal_mps,
-                terminal_no_boost_mps: p.terminal_no_boost_mps,
-                target_mps: vt,
-                target_reachable: p.target.is_some(),
-                target_in_s: p.target.map(|t| t.0),
-                target_at_m: p.target.map(|t| t.1),
-                trajectory,
-                converged: from_estimate && curve_fitted,
-            });
-        }
-        d.tyre = Some(TyreView {
-            rated_mps: veh.tyre_rated_mps,
-            margin_mps: braking::tyre_speed_margin_mps(v, veh.tyre_rated_mps),
-            peak_margin_mps: d.projection.as_ref().map(|p| veh.tyre_rated_mps - p.peak_mps),
-        });
-    } else {
-        d.projection_note = Some("no speed");
+    /// A vehicle and track with round numbers (the embedded demo with its
+    /// battery and track edited): 5 kWh above nothing, 150 kW rated, 80
+    /// cells of 3.75 V minimum (300 V), 0.1 Ω, 500 A.
+    fn cfg() -> ConfigSet {
+        let mut cfg = ConfigSet::embedded();
+        let b = &mut cfg.vehicle.battery;
+        b.energy_j = 5.0 * 3.6e6;
+        b.rated_power_w = 150e3;
+        b.soc_reserve = 0.2;
+        b.cells_in_series = 80;
+        b.cell_min_v = 3.75;
+        b.resistance_ohm = 0.1;
+        b.max_current_a = 500.0;
+        b.heat_capacity_j_per_k = 10_000.0;
+        b.temp_limit_c = 60.0;
+        cfg.track.zone_length_m = 10_000.0;
+        cfg.track.safety_margin_m = 500.0;
+        cfg.track.exit_speed_mps = 0.0;
+        cfg.track.braking_decel_mps2 = 5.0;
+        cfg
     }
-    d.stale_inputs = stale;
-    d.estimate = *estimate;
-    d.battery = bv;
-    d.boost_left = left;
-    d
+
+    fn pack(ocv_v: f64, r_ohm: f64) -> PackEstimate {
+        PackEstimate {
+            ocv_v: Estimated { value: ocv_v, sd: 0.1 },
+            resistance_ohm: Estimated { value: r_ohm, sd: 0.001 },
+            ocv_slope_v: Estimated { value: 0.0, sd: 1.0 },
+            converged: true,
+        }
+    }
+
+    #[test]
+    fn air_falls_back_to_the_standard_atmosphere_without_weather() {
+        // ISO 2533 sea level: 1.225 kg/m³.
+        let (rho, origin) = air_step(None, 0.0);
+        assert!(close(rho, 1.225, 1e-3), "{rho}");
+        assert_eq!(origin, AirOrigin::Standard);
+        // Higher is thinner (ISO 2533 at 1000 m: 1.112 kg/m³).
+        assert!(close(air_step(None, 1000.0).0, 1.112, 2e-3));
+    }
+
+    #[test]
+    fn air_is_measured_when_weather_is_present() {
+        // Dry air at 20 °C and 101 325 Pa: 1.204 kg/m³ (common practice).
+        let (rho, origin) = air_step(Some((20.0, 101_325.0, Some(0.0), 3.0)), 0.0);
+        assert!(close(rho, 1.204, 1e-3), "{rho}");
+        assert_eq!(origin, AirOrigin::Measured { age_s: 3.0, humidity_assumed: false });
+        // Without humidity, 50 % is assumed and said: moist air is lighter.
+        let (moist, origin) = air_step(Some((20.0, 101_325.0, None, 3.0)), 0.0);
+        assert!(moist < rho && moist > rho - 0.01, "{moist}");
+        assert_eq!(origin, AirOrigin::Measured { age_s: 3.0, humidity_assumed: true });
+    }
+
+    #[test]
+    fn coefficients_come_from_the_estimate_once_it_is_informative() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let prior = RoadLoadEstimate::default();
+        assert_eq!(coefficients_step(veh, &prior), (veh.cda_m2, veh.crr0), "sd 0 but value 0: not informative");
+        let tight = RoadLoadEstimate {
+            cda_m2: Estimated { value: 0.91, sd: 0.01 },
+            crr: Estimated { value: 0.013, sd: 0.5 },
+            ..RoadLoadEstimate::default()
+        };
+        // CdA tight, Crr's sd far over half its prior's: CdA from the data, Crr from the file.
+        assert_eq!(coefficients_step(veh, &tight), (0.91, veh.crr0));
+    }
+
+    #[test]
+    fn road_load_aero_term_is_half_rho_cda_vair_squared_v() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let model = RoadModel { rho: 1.2, wind_mps: 5.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let inp = TickInputs { accel: Some((0.5, "channel")), ..TickInputs::default() };
+        let boost = BoostModel {
+            available: false,
+            deliverable_w: 0.0,
+            tau_s: 20.0,
+            floor: 0.6,
+            time_in_boost_s: 0.0,
+            rated_w: 150e3,
+            energy_j: 0.0,
+            soc_fade_per_s: 0.0,
+        };
+        let rl = road_load_step(veh, &model, 0.0, 50.0, &inp, &boost);
+        // By hand: ½·1.2·0.8·55²·50 = 0.48·3025·50 = 72 600 W.
+        assert!(close(rl.aero_w, 72_600.0, 1e-6), "{}", rl.aero_w);
+        assert_eq!(rl.grade_w, 0.0);
+        assert!(close(rl.total_w, rl.aero_w + rl.rolling_w, 1e-9));
+        // Inertial m_eff·a·v, and no measured wheel power without engine or motor channels.
+        assert!(close(rl.inertial_w, veh.effective_mass_kg() * 0.5 * 50.0, 1e-6));
+        assert_eq!(rl.wheel_w, None);
+        // Boost unavailable: available is the engine alone through the driveline.
+        assert!(close(rl.available_w, veh.driveline_efficiency * veh.full_load_power_w(50.0), 1e-6));
+        assert!(close(rl.margin_w, rl.available_w - rl.total_w, 1e-9));
+        // With boost, the motor adds η_motor·deliverable up to its rating.
+        let boosted = BoostModel { available: true, deliverable_w: 10e3, ..boost };
+        let with = road_load_step(veh, &model, 0.0, 50.0, &inp, &boosted);
+        let motor = (10e3 * veh.motor_efficiency).min(veh.motor_rated_power_w);
+        assert!(close(with.available_w - rl.available_w, veh.driveline_efficiency * motor, 1e-6));
+    }
+
+    #[test]
+    fn battery_discharge_rate_and_hppc_maximum_by_hand() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        let inp =
+            TickInputs { voltage_v: Some(400.0), current_a: Some(250.0), soc: Some(0.7), ..TickInputs::default() };
+        let bv = battery_step(b, &inp, Some(pack(400.0, 0.1)), 0.0, None, None);
+        // P = 400·250 = 100 kW over 5 kWh: 20 kW per kWh.
+        assert_eq!(bv.power_w, Some(100e3));
+        assert!(close(bv.discharge_rate_kw_per_kwh.unwrap(), 20.0, 1e-12));
+        // (0.7 − 0.2)·18 MJ = 9 MJ above the reserve.
+        assert!(close(bv.energy_above_reserve_j.unwrap(), 9e6, 1e-6));
+        // HPPC: voltage-limited 300·(400 − 300)/0.1 = 300 kW; current-limited
+        // 500·(400 − 50) = 175 kW: the current limit binds.
+        assert!(close(bv.hppc_max_w.unwrap(), 175e3, 1e-6));
+        assert!(close(bv.deliverable_w.unwrap(), 175e3, 1e-6));
+        assert!(close(bv.derating_ratio.unwrap(), 175.0 / 150.0, 1e-12));
+        // The battery system's own limit wins over the model; a wild one is
+        // capped at 1.5 times the rating.
+        let reported = TickInputs { power_limit_w: Some(120e3), ..inp };
+        assert_eq!(battery_step(b, &reported, Some(pack(400.0, 0.1)), 0.0, None, None).deliverable_w, Some(120e3));
+        let wild = TickInputs { power_limit_w: Some(1e9), ..inp };
+        assert_eq!(battery_step(b, &wild, None, 0.0, None, None).deliverable_w, Some(225e3));
+        assert_eq!(battery_step(b, &TickInputs::default(), None, 0.0, None, None).deliverable_w, None);
+    }
+
+    #[test]
+    fn a_converged_derating_fit_is_normalised_to_a_fresh_pack() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        let fit = DeratingFit { tau_s: 12.0, floor: 0.4, amplitude: 0.4, converged: true, ..DeratingFit::default() };
+        // Floor 0.4 of rated from a start of 0.8: half of a fresh pack.
+        assert_eq!(derating_curve(b, Some(fit)), DeratingCurve { tau_s: 12.0, floor: 0.5, fitted: true });
+        let unconverged = DeratingFit { converged: false, ..fit };
+        assert_eq!(
+            derating_curve(b, Some(unconverged)),
+            DeratingCurve { tau_s: b.derate_tau_s, floor: b.derate_floor, fitted: false }
+        );
+        assert_eq!(soc_fade_per_s(b, Some(pack(400.0, 0.1)), true, Some(100e3)), 0.0, "a fit has the fade in it");
+        // Current limit binds (175 kW < 300 kW): dP/dOCV = I_max = 500 A; slope
+        // 0.8 V per cell ·80 = 64 V; 500·64·100 kW/(18 MJ·175 kW) = 1.0159e-3 /s.
+        let fade = soc_fade_per_s(b, Some(pack(400.0, 0.1)), false, Some(100e3));
+        assert!(close(fade, 500.0 * 64.0 * 100e3 / (18e6 * 175e3), 1e-12), "{fade}");
+    }
+
+    fn boost(energy_j: f64) -> BoostModel {
+        BoostModel {
+            available: true,
+            deliverable_w: 100e3,
+            tau_s: 20.0,
+            floor: 0.5,
+            time_in_boost_s: 0.0,
+            rated_w: 150e3,
+            energy_j,
+            soc_fade_per_s: 0.0,
+        }
+    }
+
+    fn battery_view(boosting: bool, temp_c: Option<f64>) -> BatteryView {
+        BatteryView {
+            deliverable_w: Some(100e3),
+            ocv_v: Some(Estimated { value: 400.0, sd: 0.1 }),
+            resistance_ohm: Some(Estimated { value: 0.1, sd: 0.001 }),
+            model_converged: true,
+            energy_above_reserve_j: Some(3.6e6),
+            boosting,
+            temp_c,
+            ..BatteryView::default()
+        }
+    }
+
+    #[test]
+    fn boost_left_energy_limited_is_energy_over_draw() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        // Boosting at a measured 250 A: 3.6 MJ/(400 V·250 A) = 36 s. The
+        // power limit never binds (no need), no temperature: energy binds.
+        let left = boost_left_step(b, &battery_view(true, None), Some(250.0), &boost(3.6e6), 0.0, false);
+        assert!(close(left.energy_s.unwrap(), 36.0, 1e-9));
+        assert_eq!(left.power_s, Some(f64::INFINITY));
+        assert_eq!((left.binding, left.seconds), (Some(BoostLimit::Energy), Some(36.0)));
+        assert_eq!(left.need_w, Some(0.0));
+    }
+
+    #[test]
+    fn boost_left_thermal_and_power_limits_by_hand() {
+        let cfg = cfg();
+        let b = &cfg.vehicle.battery;
+        // Not boosting: the current at the deliverable 100 kW, I = (400 −
+        // √(160 000 − 40 000))/0.2 = 267.949 A; heating I²R/C =
+        // 71 797.7·0.1/10 000 = 0.717968 °C/s; 1 °C below the limit: 1.3928 s.
+        let i = (400.0 - 120_000f64.sqrt()) / 0.2;
+        let rate = i * i * 0.1 / 10_000.0;
+        let left = boost_left_step(b, &battery_view(false, Some(59.0)), None, &boost(3.6e6), 0.0, false);
+        assert!(close(left.thermal_s.unwrap(), 1.0 / rate, 1e-9), "{left:?}");
+        assert!(close(left.thermal_s.unwrap(), 1.3928, 1e-4));
+        assert!(close(left.energy_s.unwrap(), 3.6e6 / (400.0 * i), 1e-9));
+        assert_eq!(left.binding, Some(BoostLimit::Thermal));
+        // Needing more than is deliverable: no power-limited time at all.
+        let left = boost_left_step(b, &battery_view(false, Some(59.0)), None, &boost(3.6e6), 120e3, false);
+        assert_eq!((left.binding, left.seconds), (Some(BoostLimit::Power), Some(0.0)));
+        // Needing 75 kW of 100 kW: the curve (floor 0.5, τ 20 s) falls to
+        // 0.75 at t = −20·ln((0.75 − 0.5)/0.5) = 20·ln 2 = 13.863 s.
+        let left = boost_left_step(b, &battery_view(false, None), None, &boost(3.6e6), 75e3, false);
+        assert!(close(left.power_s.unwrap(), 20.0 * 2f64.ln(), 1e-9), "{left:?}");
+        // Without a pack model there is nothing to say.
+        let none = BatteryView { ocv_v: None, ..battery_view(true, Some(30.0)) };
+        assert_eq!(boost_left_step(b, &none, None, &boost(1.0), 0.0, false).seconds, None);
+    }
+
+    #[test]
+    fn boost_need_is_the_road_load_the_engine_cannot_cover() {
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let model = RoadModel { rho: 1.2, wind_mps: 0.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let vt = 100.0;
+        let rl = roadload::road_load(&roadload::RoadLoadInputs {
+            v_mps: vt,
+            wind_mps: 0.0,
+            rho: 1.2,
+            cda_m2: 0.8,
+            crr0: 0.012,
+            crr2_s2_m2: veh.crr2_s2_m2,
+            mass_kg: veh.mass_kg,
+            grade: 0.0,
+        });
+        let by_hand = (rl.total_w / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency;
+        assert!(close(boost_need_w(veh, &model, vt), by_hand.max(0.0), 1e-6));
+        // A slow target the engine holds alone needs nothing.
+        assert_eq!(boost_need_w(veh, &model, 20.0), 0.0);
+    }
+
+    #[test]
+    fn braking_closed_form_without_drag() {
+        let cfg = cfg();
+        let track = &cfg.track;
+        let no_air = RoadModel { rho: 0.0, ..RoadModel::default() };
+        // Closed form at κ = 0: v²/(2a) = 80²/10 = 640 m to a stop.
+        let stopping = stopping_distance_m(track, &no_air, 1500.0, 80.0);
+        assert!(close(stopping, 640.0, 1e-9), "{stopping}");
+        // Stop-by point at 9500 m: from 8000 m there is room, project.
+        assert_eq!(braking_step(track, 8000.0, stopping, false), None);
+        // From 9000 m the braking point (8860 m) is 140 m behind.
+        let (view, note) = braking_step(track, 9000.0, stopping, false).unwrap();
+        assert_eq!(note, "past the braking point");
+        assert!(view.passed && close(view.point_m, 8860.0, 1e-9) && close(view.distance_m, -140.0, 1e-9));
+        // On the brake: no projection, whatever the distance.
+        let (view, note) = braking_step(track, 1000.0, stopping, true).unwrap();
+        assert_eq!(note, "braking");
+        assert!(!view.passed && view.in_s == 0.0);
+    }
+
+    #[test]
+    fn tyre_margin_now_and_at_the_peak() {
+        // 300 km/h rated (83.333 m/s), at 80 m/s and a projected 85 m/s.
+        let t = tyre_step(300.0 / 3.6, 80.0, Some(85.0));
+        assert!(close(t.margin_mps, 300.0 / 3.6 - 80.0, 1e-12));
+        assert!(close(t.peak_margin_mps.unwrap(), 300.0 / 3.6 - 85.0, 1e-12));
+        assert_eq!(tyre_step(83.0, 80.0, None).peak_margin_mps, None);
+    }
+
+    #[test]
+    fn compute_without_speed_says_so_and_lists_stale_inputs() {
+        let cfg = cfg();
+        let d = compute(&cfg, &TickInputs::default(), &RoadLoadEstimate::default(), None, 0.0, None, None);
+        assert_eq!(d.projection_note, Some("no speed"));
+        assert_eq!(d.stale_inputs, vec!["weather", "speed", "battery"]);
+        assert!(d.road_load.is_none() && d.braking.is_none() && d.tyre.is_none());
+        assert_eq!(d.air_origin, Some(AirOrigin::Standard));
+    }
 }

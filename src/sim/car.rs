@@ -277,12 +277,7 @@ impl Car {
         let want_terminal = if s.boosting && reserve_ok { s.throttle * p.motor_rated_w / p.motor_eff } else { 0.0 };
         let p_term = want_terminal.min(s.power_limit_w);
         let ocv = s.pack_ocv_v;
-        let i_motor = if p_term > 0.0 {
-            let disc = (ocv * ocv - 4.0 * p.r_pack * p_term).max(0.0);
-            (ocv - disc.sqrt()) / (2.0 * p.r_pack)
-        } else {
-            0.0
-        };
+        let i_motor = if p_term > 0.0 { bat::current_at_power_a(ocv, p.r_pack, p_term) } else { 0.0 };
         s.pack_a = i_motor + AUX_CURRENT_A;
         s.pack_v = ocv - s.pack_a * p.r_pack;
         s.motor_power_w = p_term * p.motor_eff;

@@ -56,6 +56,26 @@ pub fn max_discharge_power_w(ocv_v: f64, r_ohm: f64, v_min: f64, i_max: f64) -> 
     i * terminal_voltage_v(ocv_v, r_ohm, i)
 }
 
+/// Discharge current, A, at which the cells deliver terminal power `p_w`,
+/// internal-resistance (ohmic) model: P = I·(OCV − I·R), so
+/// R·I² − OCV·I + P = 0 and
+///
+/// I = (OCV − √(OCV² − 4·R·P))/(2R),
+///
+/// the smaller root (the larger one is the same power on the far side of the
+/// matched load OCV/(2R), at a lower terminal voltage and more heat; a pack
+/// never runs there). Same HPPC sources as [`max_discharge_power_w`].
+///
+/// When `p_w` exceeds the most the cells can deliver, OCV²/(4R) at the
+/// matched load, the discriminant is negative; it is floored at 0, so the
+/// result is the matched-load current OCV/(2R) (the most power there is),
+/// not NaN. Domain: `r_ohm` > 0, `p_w` ≥ 0.
+pub fn current_at_power_a(ocv_v: f64, r_ohm: f64, p_w: f64) -> f64 {
+    debug_assert!(r_ohm > 0.0, "internal resistance must be positive: {r_ohm}");
+    let disc = (ocv_v * ocv_v - 4.0 * r_ohm * p_w).max(0.0);
+    (ocv_v - disc.sqrt()) / (2.0 * r_ohm)
+}
+
 /// Largest constant discharge current, A, that keeps the terminal voltage at
 /// or above V_min for a pulse of `dt_s`, first-order equivalent circuit
 /// (Plett, BMS vol. II; IEEE TVT 2004):
@@ -195,6 +215,23 @@ mod tests {
         assert!(close(max_discharge_power_w(3.7, 0.025, 2.5, 40.0), 108.0, 1e-9));
         // I_max = 60 A > I_V: the voltage limit binds.
         assert!(close(max_discharge_power_w(3.7, 0.025, 2.5, 60.0), 120.0, 1e-9));
+    }
+
+    #[test]
+    fn current_at_power_inverts_the_ohmic_model() {
+        // REFERENCES.md, HPPC example: OCV 3.7 V, R 25 mΩ, at 40 A the
+        // terminal voltage is 2.70 V and the power 108 W; so 108 W needs 40 A.
+        assert!(close(current_at_power_a(3.7, 0.025, 108.0), 40.0, 1e-9));
+        // By hand: OCV 400 V, R 0.1 Ω, 100 kW: disc = 160 000 − 40 000 =
+        // 120 000, √ = 346.4102, I = (400 − 346.4102)/0.2 = 267.949 A; and
+        // back, 267.949·(400 − 26.7949) = 100 000 W.
+        let i = current_at_power_a(400.0, 0.1, 100e3);
+        assert!(close(i, 267.949_192, 1e-5), "{i}");
+        assert!(close(i * terminal_voltage_v(400.0, 0.1, i), 100e3, 1e-6));
+        assert_eq!(current_at_power_a(400.0, 0.1, 0.0), 0.0);
+        // Beyond the matched-load maximum OCV²/(4R) = 400 kW: the current
+        // stops at the matched load OCV/(2R) = 2000 A instead of NaN.
+        assert_eq!(current_at_power_a(400.0, 0.1, 500e3), 2000.0);
     }
 
     #[test]

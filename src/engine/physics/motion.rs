@@ -232,6 +232,37 @@ impl Trajectory {
     }
 }
 
+/// One step of the classical fourth-order Runge–Kutta method (Butcher
+/// tableau 0, ½, ½, 1; weights 1/6, 1/3, 1/3, 1/6) from `t` to `t_next` on
+/// the state (x m, v m/s, e) with dx/dt = v, dv/dt = a and de/dt = r, where
+/// `deriv(t, x, v, e)` returns (a, r). `e` is any quantity the motion
+/// drives (the planner's energy drawn from the battery, J); [`integrate`]
+/// carries 0 with r = 0. This is the one stepping of termvel's models: the
+/// projection and the planner both step with it.
+///
+/// `deriv` is called four times, at t, t + h/2 (twice) and `t_next`, where
+/// h = `t_next` − `t`; it must be a pure function of its arguments.
+pub fn rk4_step(
+    t: f64,
+    t_next: f64,
+    (x, v, e): (f64, f64, f64),
+    mut deriv: impl FnMut(f64, f64, f64, f64) -> (f64, f64),
+) -> (f64, f64, f64) {
+    let h = t_next - t;
+    let (a1, r1) = deriv(t, x, v, e);
+    let (x2, v2, e2) = (x + 0.5 * h * v, v + 0.5 * h * a1, e + 0.5 * h * r1);
+    let (a2, r2) = deriv(t + 0.5 * h, x2, v2, e2);
+    let (x3, v3, e3) = (x + 0.5 * h * v2, v + 0.5 * h * a2, e + 0.5 * h * r2);
+    let (a3, r3) = deriv(t + 0.5 * h, x3, v3, e3);
+    let (x4, v4, e4) = (x + h * v3, v + h * a3, e + h * r3);
+    let (a4, r4) = deriv(t_next, x4, v4, e4);
+    (
+        x + h / 6.0 * (v + 2.0 * v2 + 2.0 * v3 + v4),
+        v + h / 6.0 * (a1 + 2.0 * a2 + 2.0 * a3 + a4),
+        e + h / 6.0 * (r1 + 2.0 * r2 + 2.0 * r3 + r4),
+    )
+}
+
 /// Integrate m_eff·dv/dt = P(t, x, v)/v − F_resist(v), dx/dt = v with the
 /// classical fourth-order Runge–Kutta method at a fixed step `dt_s`
 /// (the last step is shortened to land on `max_t_s`), from (0, `x0`, `v0`).
@@ -269,20 +300,11 @@ pub fn integrate<Fp: FnMut(f64, f64, f64) -> f64>(
     if stop(t, x, v) {
         return Trajectory { points, stop: StopReason::Predicate };
     }
-    let mut accel = |t: f64, x: f64, v: f64| acceleration_mps2(p, power_w(t, x, v), v);
+    let mut deriv = |t: f64, x: f64, v: f64, _e: f64| (acceleration_mps2(p, power_w(t, x, v), v), 0.0);
     for n in 1..=steps {
         // Time from the step count, so rounding does not accumulate.
         let t_next = (n as f64 * dt_s).min(max_t_s);
-        let h = t_next - t;
-        let a1 = accel(t, x, v);
-        let (x2, v2) = (x + 0.5 * h * v, v + 0.5 * h * a1);
-        let a2 = accel(t + 0.5 * h, x2, v2);
-        let (x3, v3) = (x + 0.5 * h * v2, v + 0.5 * h * a2);
-        let a3 = accel(t + 0.5 * h, x3, v3);
-        let (x4, v4) = (x + h * v3, v + h * a3);
-        let a4 = accel(t_next, x4, v4);
-        x += h / 6.0 * (v + 2.0 * v2 + 2.0 * v3 + v4);
-        v += h / 6.0 * (a1 + 2.0 * a2 + 2.0 * a3 + a4);
+        (x, v, _) = rk4_step(t, t_next, (x, v, 0.0), &mut deriv);
         t = t_next;
         if !(x.is_finite() && v.is_finite()) {
             return Trajectory { points, stop: StopReason::NonFinite };
@@ -476,6 +498,18 @@ mod tests {
         assert_eq!((traj.stop, traj.points.len()), (StopReason::Predicate, 1));
         let traj = integrate(&p, 0.0, 10.0, 0.25, 60.0, |_, _, _| f64::NAN, |_, _, _| false);
         assert_eq!(traj.stop, StopReason::NonFinite);
+    }
+
+    #[test]
+    fn rk4_step_integrates_the_carried_quantity_exactly_for_a_cubic() {
+        // Closed form: constant acceleration 2 m/s² from v = 1 m/s over 1 s,
+        // and e' = v², ∫(1 + 2t)² dt over [0, 1] = 13/3. With a constant
+        // acceleration the stage speeds are exact, and the carried quantity's
+        // weights reduce to Simpson's rule, exact for this quadratic.
+        let (x, v, e) = rk4_step(0.0, 1.0, (0.0, 1.0, 0.0), |_, _, v, _| (2.0, v * v));
+        assert!((x - 2.0).abs() < 1e-12, "x = v0·t + ½at² = 2: {x}");
+        assert!((v - 3.0).abs() < 1e-12);
+        assert!((e - 13.0 / 3.0).abs() < 1e-12, "{e}");
     }
 
     #[test]

@@ -1,11 +1,10 @@
-//! Alerts: conditions the engineer must not miss. Each has a key, a
-//! severity, a message and the stream time it was first raised; it stays on
-//! the list (latched) until acknowledged, even after its condition clears.
-//! Every raise, clear and acknowledgement is also written as an annotation
-//! line in the recording.
+//! The alert book: every alert of a run, its latching and acknowledgement,
+//! the annotations and the timeline. The families (health, staleness,
+//! limits, rules) decide whether a condition holds; the book alone decides
+//! what that does to the list.
 
+use super::rules::RuleState;
 use crate::config::Severity;
-use crate::config::alerts::{AlertRule, Comparison};
 use crate::event::TimeNs;
 
 /// One alert as shown.
@@ -32,17 +31,12 @@ pub struct Transition {
     pub message: String,
 }
 
-#[derive(Clone, Debug, Default)]
-struct RuleState {
-    since: Option<TimeNs>,
-    active: bool,
-}
-
 /// All alerts of a run.
 #[derive(Clone, Debug, Default)]
 pub struct AlertBook {
     alerts: Vec<Alert>,
-    rules: Vec<RuleState>,
+    /// Per configured rule, its duration and hysteresis state (rules.rs).
+    pub(super) rules: Vec<RuleState>,
     notes: Vec<(TimeNs, String)>,
     pub timeline: Vec<Transition>,
 }
@@ -132,35 +126,6 @@ impl AlertBook {
         }
     }
 
-    /// Evaluates the configured rules; `value` gives a channel's or derived
-    /// quantity's current value (None when unknown or stale, which holds a
-    /// rule where it is).
-    pub fn evaluate_rules(&mut self, t_ns: TimeNs, rules: &[AlertRule], value: impl Fn(&str) -> Option<f64>) {
-        self.rules.resize(rules.len(), RuleState::default());
-        for (i, r) in rules.iter().enumerate() {
-            let Some(v) = value(&r.channel) else { continue };
-            let st = &mut self.rules[i];
-            let (beyond, back) = match r.comparison {
-                Comparison::Above(th) => (v > th, v < th - r.hysteresis),
-                Comparison::Below(th) => (v < th, v > th + r.hysteresis),
-            };
-            if beyond {
-                let since = *st.since.get_or_insert(t_ns);
-                if !st.active && (t_ns - since) as f64 * 1e-9 >= r.for_s {
-                    st.active = true;
-                }
-            } else {
-                st.since = None;
-                if back {
-                    st.active = false;
-                }
-            }
-            let on = st.active;
-            let key = format!("rule:{}", r.name);
-            self.set(t_ns, &key, r.severity, on, || r.message.clone());
-        }
-    }
-
     /// The alerts to show: active or not yet acknowledged, newest first.
     pub fn visible(&self) -> Vec<Alert> {
         let mut v: Vec<Alert> = self.alerts.clone();
@@ -185,18 +150,6 @@ mod tests {
 
     const S: TimeNs = 1_000_000_000;
 
-    fn rule(cmp: Comparison, for_s: f64, hyst: f64) -> AlertRule {
-        AlertRule {
-            name: "hot".into(),
-            channel: "x".into(),
-            comparison: cmp,
-            for_s,
-            hysteresis: hyst,
-            severity: Severity::Caution,
-            message: "x hot".into(),
-        }
-    }
-
     #[test]
     fn latched_until_acknowledged() {
         let mut b = AlertBook::default();
@@ -220,32 +173,5 @@ mod tests {
         assert!(b.visible().is_empty());
         b.set(4 * S, "k", Severity::Caution, true, || "m".into());
         assert!(!b.visible()[0].acked, "a new raise needs a new acknowledgement");
-    }
-
-    #[test]
-    fn rule_duration_and_hysteresis() {
-        let rules = [rule(Comparison::Above(100.0), 2.0, 5.0)];
-        let mut b = AlertBook::default();
-        let at = |b: &mut AlertBook, t: TimeNs, v: f64| b.evaluate_rules(t, &rules, |_| Some(v));
-        at(&mut b, 0, 101.0);
-        at(&mut b, S, 101.0);
-        assert!(!b.is_active("rule:hot"), "not yet held for 2 s");
-        at(&mut b, 2 * S, 101.0);
-        assert!(b.is_active("rule:hot"));
-        at(&mut b, 3 * S, 97.0);
-        assert!(b.is_active("rule:hot"), "97 is inside the 5-unit hysteresis");
-        at(&mut b, 4 * S, 94.9);
-        assert!(!b.is_active("rule:hot"));
-        // Below, and an interruption restarts the duration.
-        let rules = [rule(Comparison::Below(3.0), 1.0, 0.1)];
-        let mut b = AlertBook::default();
-        let at = |b: &mut AlertBook, t: TimeNs, v: f64| b.evaluate_rules(t, &rules, |_| Some(v));
-        at(&mut b, 0, 2.9);
-        at(&mut b, S / 2, 3.05);
-        at(&mut b, S, 2.9);
-        at(&mut b, 3 * S / 2, 2.9);
-        assert!(!b.is_active("rule:hot"));
-        at(&mut b, 2 * S, 2.9);
-        assert!(b.is_active("rule:hot"));
     }
 }
