@@ -101,6 +101,7 @@ pub fn document(e: &Envelope, vehicle: &str, track: &str, plan: Option<&str>) ->
             "available_j": p.available_j,
             "ocv_v": p.ocv_v,
             "deliverable_w": p.deliverable_w,
+            "floor_w": p.floor_w,
             "needed_w": p.needed_w,
             "time_to_short_s": finite(p.time_to_short_s),
             "engine_only_at_brake_mps": p.engine_only_at_brake_mps,

@@ -666,6 +666,8 @@ pub struct PackFigures {
     pub ocv_v: f64,
     /// Terminal power the fresh pack delivers (rated, or HPPC when lower), W.
     pub deliverable_w: f64,
+    /// Terminal power at the derating floor, W.
+    pub floor_w: f64,
     /// Battery terminal power needed (with the engine at full load) to hold the target, W (≤ 0: the engine alone holds it).
     pub needed_w: f64,
     /// Time in boost until derating takes the pack below `needed_w`, s:
@@ -822,6 +824,7 @@ pub fn compute(veh: &Vehicle, track: &Track, inputs: &Inputs) -> Result<Envelope
         available_j,
         ocv_v: model.ocv_v,
         deliverable_w: model.pack_w,
+        floor_w: model.pack_terminal_w(model.derate_floor),
         needed_w,
         time_to_short_s,
         engine_only_at_brake_mps: v_e,

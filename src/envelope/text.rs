@@ -24,12 +24,8 @@ fn terminal(t: Terminal) -> String {
 fn span(d: Option<(f64, f64)>) -> String {
     match d {
         Some((t, x)) => format!("{t:8.2} s {x:9.1} m"),
-        None => format!("{:>20}", "not reached"),
+        None => format!("{:>22}", "not reached"),
     }
-}
-
-fn duration(t_s: f64) -> String {
-    if t_s.is_infinite() { "never".into() } else { format!("{t_s:.1} s") }
 }
 
 /// Renders the envelope. `plan` names the plan the air and charge came
@@ -108,7 +104,7 @@ pub fn render(e: &Envelope, veh: &Vehicle, track: &Track, plan: Option<&str>) ->
         writeln!(s, "acceleration (grip-limited, rotating mass included), and time and distance from the row above:");
     let _ = writeln!(
         s,
-        "{:>6} │ {:^30} │ {:^30} │ {:^30}",
+        "{:>6} │ {:^33} │ {:^33} │ {:^33}",
         "km/h",
         Case::Engine.label(),
         Case::Rated.label(),
@@ -171,13 +167,15 @@ pub fn render(e: &Envelope, veh: &Vehicle, track: &Track, plan: Option<&str>) ->
     } else {
         let _ = writeln!(
             s,
-            "  to hold {:.0} km/h the pack must give {:.1} kW at its terminals with the engine at full load; derating takes it below that after {}",
+            "  to hold {:.0} km/h the pack must give {:.1} kW at its terminals with the engine at full load: {}",
             kmh(i.target_mps),
             kw(p.needed_w),
             if p.time_to_short_s == 0.0 {
-                "0 s: it cannot even fresh".to_string()
+                "more than it gives even fresh".to_string()
+            } else if p.time_to_short_s.is_infinite() {
+                format!("derating never takes it below that (the floor gives {:.1} kW)", kw(p.floor_w))
             } else {
-                duration(p.time_to_short_s)
+                format!("derating takes it below that after {:.1} s in boost", p.time_to_short_s)
             }
         );
     }
@@ -244,5 +242,6 @@ pub fn render(e: &Envelope, veh: &Vehicle, track: &Track, plan: Option<&str>) ->
     }
     let _ = writeln!(s);
     let _ = writeln!(s, "{}", crate::CAUTION);
-    s
+    // Centred headers leave trailing blanks; a copied table should not carry them.
+    s.lines().map(|l| l.trim_end()).collect::<Vec<_>>().join("\n") + "\n"
 }
