@@ -3,7 +3,7 @@
 # nothing when it is already there: Debian packages (tmux for the terminal
 # tests; qemu-system-x86 and busybox-static for the SocketCAN VM test, whose
 # script fetches Debian's kernel package itself), and a Python venv in .venv with the independent reference
-# libraries the cross-checks use (python-can, pyarrow). Safe to run again.
+# libraries the cross-checks use (python-can, pyarrow, scipy). Safe to run again.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 
@@ -19,7 +19,7 @@ if ((${#need_apt[@]})); then
   DEBIAN_FRONTEND=noninteractive $sudo apt-get install -y -qq --no-install-recommends "${need_apt[@]}"
 fi
 
-if [ ! -x .venv/bin/python ] || ! .venv/bin/python -c 'import can, pyarrow' 2>/dev/null; then
+if [ ! -x .venv/bin/python ] || ! .venv/bin/python -c 'import can, pyarrow, scipy' 2>/dev/null; then
   echo "setup: creating .venv with tests/requirements.txt"
   python3 -m venv .venv
   .venv/bin/pip install -q --disable-pip-version-check -r tests/requirements.txt

@@ -34,6 +34,8 @@ pub enum Command {
     Export(ExportArgs),
     /// Plan a run: predicted peak, best boost start, probabilities.
     Plan(PlanArgs),
+    /// Before the run: what it takes to reach a speed (power, time, battery, sensitivities).
+    Envelope(EnvelopeArgs),
     /// Validate config files and print what they define, without running anything.
     Check(CheckArgs),
 }
@@ -189,6 +191,57 @@ pub struct PlanArgs {
     /// Config files or directories instead of those the plan names.
     #[arg(long = "config", short = 'c', value_name = "PATH")]
     pub config: Vec<PathBuf>,
+}
+
+#[derive(Args, Debug)]
+pub struct EnvelopeArgs {
+    /// A run plan (.toml, kind = "plan") for the car, course and weather; default: the built-in demo plan, or no plan when --config is given.
+    pub plan: Option<PathBuf>,
+    /// Config files or directories (vehicle, track, signals); without a plan the air is the standard atmosphere unless given.
+    #[arg(long = "config", short = 'c', value_name = "PATH")]
+    pub config: Vec<PathBuf>,
+    /// Step of the speed table, km/h.
+    #[arg(long, value_name = "KMH", default_value_t = 20.0)]
+    pub step: f64,
+    /// Time and distance from this speed, km/h (default 0 when --to is given).
+    #[arg(long, value_name = "KMH")]
+    pub from: Option<f64>,
+    /// Time and distance to this speed, km/h (default the target when --from is given).
+    #[arg(long, value_name = "KMH")]
+    pub to: Option<f64>,
+    /// The speed to reach, km/h (default: the track's target).
+    #[arg(long, value_name = "KMH")]
+    pub target_kmh: Option<f64>,
+    /// Margin above the target to give the power to hold for, km/h.
+    #[arg(long, value_name = "KMH", default_value_t = 10.0)]
+    pub margin_kmh: f64,
+    /// Air temperature, °C (the rest of the air from the plan, or the standard atmosphere).
+    #[arg(long, value_name = "C", allow_hyphen_values = true)]
+    pub air_temp_c: Option<f64>,
+    /// Air pressure, hPa.
+    #[arg(long, value_name = "HPA")]
+    pub air_pressure_hpa: Option<f64>,
+    /// Relative humidity, %.
+    #[arg(long, value_name = "PCT")]
+    pub humidity_pct: Option<f64>,
+    /// Air density, kg/m³, instead of temperature, pressure and humidity.
+    #[arg(long, value_name = "KG_M3", conflicts_with_all = ["air_temp_c", "air_pressure_hpa", "humidity_pct", "standard_air"])]
+    pub air_density: Option<f64>,
+    /// Use the standard atmosphere at the track's elevation even when the plan has weather.
+    #[arg(long)]
+    pub standard_air: bool,
+    /// Headwind along the run, m/s (negative: tailwind; default the plan's, or 0).
+    #[arg(long, value_name = "MPS", allow_hyphen_values = true)]
+    pub wind_mps: Option<f64>,
+    /// Take the road as level instead of the track's mean grade.
+    #[arg(long)]
+    pub level: bool,
+    /// One JSON document instead of text.
+    #[arg(long)]
+    pub json: bool,
+    /// Write the plots (SVG) into this directory.
+    #[arg(long, value_name = "DIR")]
+    pub plots: Option<PathBuf>,
 }
 
 #[derive(Args, Debug)]

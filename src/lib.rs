@@ -39,6 +39,7 @@ pub mod cmd;
 pub mod config;
 pub mod decode;
 pub mod engine;
+pub mod envelope;
 pub mod event;
 pub mod headless;
 pub mod planner;

@@ -8,6 +8,8 @@
 //!   candump logs, an NMEA stream): a message with a location, no panic.
 //! - `cli`: the commands as a user runs them: exit codes and messages.
 //! - `crosscheck`: termvel against reference libraries (python-can).
+//! - `envelope`: `termvel envelope` against closed forms (Cardano, partial
+//!   fractions), scipy, and a hand computation of the battery figures.
 //! - `config_errors`: the malformed-config corpus (tests/configs/bad), each
 //!   file naming the location and message it must produce; `termvel check`.
 //! - `ground_truth`: the engine's estimates and predictions against the
@@ -46,6 +48,8 @@ mod config_errors;
 mod crosscheck;
 #[path = "suite/determinism.rs"]
 mod determinism;
+#[path = "suite/envelope.rs"]
+mod envelope;
 #[path = "suite/ground_truth.rs"]
 mod ground_truth;
 #[path = "suite/kill.rs"]

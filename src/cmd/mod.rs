@@ -3,6 +3,7 @@
 //! unusable input).
 
 pub mod check;
+pub mod envelope;
 pub mod export;
 pub mod live;
 pub mod plan;
@@ -34,6 +35,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Report(a)) => report::run(a),
         Some(Command::Export(a)) => export::run(a),
         Some(Command::Plan(a)) => plan::run(a),
+        Some(Command::Envelope(a)) => envelope::run(a),
     };
     match result {
         Ok(code) => code,
