@@ -13,7 +13,9 @@ pub mod alerts;
 pub mod derived;
 pub mod estimators;
 pub mod physics;
+pub mod power_curve;
 pub mod projection;
+pub mod quantities;
 pub mod rls;
 pub mod snapshot;
 pub mod store;
@@ -721,8 +723,8 @@ impl Engine {
         let store = &self.store;
         let channels = &self.decoder.channels;
         book.evaluate_rules(t, &cfg.alerts.rules, |name| {
-            if name.starts_with("derived.") {
-                d.value(name)
+            if let Some(q) = quantities::find(name) {
+                quantities::value(q, d)
             } else {
                 channels.find(name).and_then(|id| store.fresh(id, t))
             }
