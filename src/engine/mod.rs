@@ -329,6 +329,27 @@ impl Engine {
         }
     }
 
+    /// Feeds one event as [`Engine::feed`] does, then passes each sample the
+    /// engine decoded from it to `tap`: a reader of the decoded stream (the
+    /// long export) uses the engine's own decoding instead of a second one.
+    pub fn feed_tapped(
+        &mut self,
+        ev: &Event,
+        sources: &SourceTable,
+        sink: &mut impl FnMut(Snapshot),
+        tap: &mut impl FnMut(&Sample, &crate::channel::ChannelInfo),
+    ) {
+        // `feed` leaves the samples of the last input event in place; an
+        // event that is not an input decodes to nothing.
+        if !ev.is_input() {
+            return;
+        }
+        self.feed(ev, sources, sink);
+        for s in &self.samples {
+            tap(s, self.decoder.channels.get(s.channel));
+        }
+    }
+
     /// The per-sample work: odometer, acceleration from speed and the
     /// estimators, each only for the channels it needs.
     #[inline]
