@@ -274,7 +274,7 @@ mod tests {
         assert!(r.errors.is_empty(), "{:?}", r.errors);
         assert_eq!(r.warnings.len(), 1);
         let w = r.warnings[0].to_string();
-        assert!(w.starts_with("alerts.toml:6:11: rule[0].channel: "), "{w}");
+        assert!(w.starts_with("alerts.toml:5:11: rule[0].channel: "), "{w}");
         assert!(w.contains("\"derived.boost_left_s\" is deprecated; use \"derived.boost_left.seconds\""), "{w}");
         let Some(Parsed::Alerts(a)) = r.parsed else { panic!("valid") };
         assert_eq!(a.rules[0].channel, "derived.boost_left.seconds");

@@ -102,4 +102,33 @@ mod tests {
         // ½·ρ·CdA·v³ = 540 kW: the total must be above it.
         assert!(c[CURVE_STEPS].road_w > 540_000.0);
     }
+
+    /// The chart and the meter: the engine's available power at the present
+    /// speed is the curve's at that speed, above the reserve (motor counted)
+    /// and below it (engine alone; the chart used to add the motor anyway).
+    #[test]
+    fn the_curve_and_the_meter_agree_above_and_below_the_reserve() {
+        use crate::engine::derived::{TickInputs, compute};
+        use crate::engine::estimators::RoadLoadEstimator;
+        let cfg = ConfigSet::embedded();
+        let veh = &cfg.vehicle;
+        let i = CURVE_STEPS / 2;
+        let v = vmax_mps(veh, cfg.track.target_speed_mps) * i as f64 / CURVE_STEPS as f64;
+        let estimate = RoadLoadEstimator::new(veh).estimate();
+        let reserve = veh.battery.soc_reserve;
+        for (soc, motor_counted) in [(reserve + 0.2, true), (reserve - 0.01, false)] {
+            let inp = TickInputs {
+                speed: Some((v, "vehicle.speed", 0.0)),
+                soc: Some(soc),
+                power_limit_w: Some(150_000.0),
+                ..TickInputs::default()
+            };
+            let d = compute(&cfg, &inp, &estimate, None, 0.0, None, None);
+            let meter = d.road_load.expect("a road load at a known speed").available_w;
+            let chart = d.power_curve[i];
+            assert_eq!(chart.v_mps, v);
+            assert_eq!(chart.available_w, meter, "soc {soc}");
+            assert_eq!(meter > chart.engine_only_w, motor_counted, "soc {soc}: {meter} vs {}", chart.engine_only_w);
+        }
+    }
 }

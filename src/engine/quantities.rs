@@ -105,7 +105,7 @@ use Reading::{Count, Flag, Num, Text};
 
 /// Every derived quantity, in the order of the README, the export and the
 /// channels screen.
-pub const QUANTITIES: &[Quantity] = &[
+pub static QUANTITIES: &[Quantity] = &[
     q("derived.speed_mps", "m/s", "speed: vehicle.speed, else gnss.speed", |d| Num(d.speed_mps)),
     q("derived.speed_source", "", "the channel the speed comes from", |d| Text(d.speed_mps.map(|_| d.speed_source))),
     q("derived.distance_m", "m", "distance from the start of the stream (integrated speed)", |d| {
