@@ -346,9 +346,42 @@ pub fn value(quantity: &Quantity, d: &Derived) -> Option<f64> {
     if in_absent_group(quantity, d) { None } else { (quantity.read)(d).as_f64() }
 }
 
+/// The README's list of derived quantities and old rule names, as Markdown
+/// (the README holds this text between markers; a test keeps them equal).
+pub fn readme_table() -> String {
+    let mut out = String::from("| name | unit | meaning |\n|---|---|---|\n");
+    for q in QUANTITIES {
+        let unit = match q.kind() {
+            Reading::Flag(_) => "true/false".to_string(),
+            Reading::Text(_) => "word".to_string(),
+            Reading::Count(_) => "count".to_string(),
+            Reading::Num(_) => q.unit.to_string(),
+        };
+        out.push_str(&format!("| `{}` | {} | {} |\n", q.name, unit, q.meaning));
+    }
+    out.push_str("\nOld alert-rule names, still accepted with a deprecation warning:\n\n| old name | present name |\n|---|---|\n");
+    for (old, new) in ALIASES {
+        out.push_str(&format!("| `{old}` | `{new}` |\n"));
+    }
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_readme_lists_the_table() {
+        let readme = include_str!("../../README.md");
+        let (start, end) = ("<!-- derived-quantities: start -->\n", "<!-- derived-quantities: end -->");
+        let from = readme.find(start).expect("the README marks the list's start") + start.len();
+        let to = readme[from..].find(end).expect("the README marks the list's end") + from;
+        let expected = readme_table();
+        assert!(
+            readme[from..to] == expected,
+            "README.md's list of derived quantities differs from the table; put this between the markers:\n{expected}"
+        );
+    }
 
     #[test]
     fn names_are_unique_and_follow_the_scheme() {
