@@ -1,13 +1,14 @@
 //! Headless output: one JSON object per snapshot, then a summary object.
 //!
 //! The format is an interface (scripts, tests, a second screen) and is
-//! documented in the README. Keys are sorted (serde_json's default map), so
+//! documented in the README; the `derived` block follows the table of
+//! derived quantities (`crate::engine::quantities`). Keys are sorted (serde_json's default map), so
 //! the same snapshot always prints the same bytes.
 
 use serde_json::{Map, Value, json};
 
-use crate::engine::derived::{AirOrigin, Derived};
-use crate::engine::estimators::Estimated;
+use crate::engine::derived::Derived;
+use crate::engine::quantities::{self, GROUPS, QUANTITIES, Reading};
 use crate::engine::{Counters, Snapshot};
 
 fn num(v: f64) -> Value {
@@ -60,140 +61,48 @@ pub fn snapshot_json(s: &Snapshot) -> Value {
     Value::Object(obj)
 }
 
-fn opt(v: Option<f64>) -> Value {
-    v.map_or(Value::Null, num)
+/// A reading as JSON: unknown and non-finite numbers as `null`.
+pub fn reading_json(r: Reading) -> Value {
+    match r {
+        Reading::Num(v) => v.map_or(Value::Null, num),
+        Reading::Count(n) => Value::from(n),
+        Reading::Flag(b) => Value::Bool(b),
+        Reading::Text(t) => t.map_or(Value::Null, Value::from),
+    }
 }
 
-fn est(e: Option<Estimated>) -> (Value, Value) {
-    e.map_or((Value::Null, Value::Null), |e| (num(e.value), num(e.sd)))
+/// Sets `value` at `path` below `obj`, making the objects on the way.
+fn insert_at<'a>(obj: &mut Map<String, Value>, path: impl Iterator<Item = &'a str>, value: Value) {
+    let keys: Vec<&str> = path.collect();
+    let Some((last, parents)) = keys.split_last() else { return };
+    let mut at = obj;
+    for k in parents {
+        let child = at.entry(k.to_string()).or_insert_with(|| Value::Object(Map::new()));
+        let Value::Object(m) = child else { return };
+        at = m;
+    }
+    at.insert(last.to_string(), value);
 }
 
-/// The derived block of a snapshot (units in the key names; null when
-/// unknown, or for times, when nothing limits them).
+/// The derived block of a snapshot, built from the table of derived
+/// quantities ([`QUANTITIES`]): each quantity at its path (units in the key
+/// names; null when unknown, or for times, when nothing limits them), an
+/// absent group ([`GROUPS`]) as null.
 pub fn derived_json(d: &Derived) -> Value {
-    let (air_origin, air_age, humidity_assumed) = match d.air_origin {
-        Some(AirOrigin::Measured { age_s, humidity_assumed }) => ("measured", num(age_s), humidity_assumed),
-        Some(AirOrigin::Standard) | None => ("standard atmosphere", Value::Null, false),
-    };
-    let road_load = d.road_load.map_or(Value::Null, |r| {
-        json!({
-            "aero_w": num(r.aero_w),
-            "rolling_w": num(r.rolling_w),
-            "grade_w": num(r.grade_w),
-            "total_w": num(r.total_w),
-            "inertial_w": num(r.inertial_w),
-            "demand_w": num(r.demand_w),
-            "wheel_w": opt(r.wheel_w),
-            "available_w": num(r.available_w),
-            "margin_w": num(r.margin_w),
-            "cda_m2": num(r.cda_m2),
-            "crr": num(r.crr),
-            "estimate_converged": r.estimate_converged,
-        })
-    });
-    let e = &d.estimate;
-    let coast = e.coast.map_or(
-        Value::Null,
-        |(c, r)| json!({ "cda_m2": num(c.value), "cda_sd_m2": num(c.sd), "crr": num(r.value), "crr_sd": num(r.sd) }),
-    );
-    let b = &d.battery;
-    let (ocv, ocv_sd) = est(b.ocv_v);
-    let (res, res_sd) = est(b.resistance_ohm);
-    let fit = b.fit.map_or(Value::Null, |f| {
-        json!({
-            "tau_s": num(f.tau_s),
-            "floor": num(f.floor),
-            "amplitude": num(f.amplitude),
-            "rms": num(f.rms),
-            "r2": num(f.r2),
-            "points": f.points,
-            "span_s": num(f.span_s),
-            "converged": f.converged,
-        })
-    });
-    let l = &d.boost_left;
-    let projection = d.projection.as_ref().map_or(Value::Null, |p| {
-        json!({
-            "peak_mps": num(p.peak_mps),
-            "peak_low_mps": num(p.peak_low_mps),
-            "peak_high_mps": num(p.peak_high_mps),
-            "peak_at_m": num(p.peak_at_m),
-            "peak_in_s": num(p.peak_in_s),
-            "terminal_mps": num(p.terminal_mps),
-            "terminal_no_boost_mps": num(p.terminal_no_boost_mps),
-            "target_mps": num(p.target_mps),
-            "target_reachable": p.target_reachable,
-            "target_in_s": opt(p.target_in_s),
-            "target_at_m": opt(p.target_at_m),
-            "converged": p.converged,
-        })
-    });
-    let braking = d.braking.map_or(Value::Null, |br| {
-        json!({
-            "point_m": num(br.point_m),
-            "distance_m": num(br.distance_m),
-            "in_s": num(br.in_s),
-            "stopping_m": num(br.stopping_m),
-            "passed": br.passed,
-        })
-    });
-    let tyre = d.tyre.map_or(Value::Null, |t| {
-        json!({ "rated_mps": num(t.rated_mps), "margin_mps": num(t.margin_mps), "peak_margin_mps": opt(t.peak_margin_mps) })
-    });
-    json!({
-        "speed_mps": opt(d.speed_mps),
-        "speed_source": if d.speed_mps.is_some() { Value::from(d.speed_source) } else { Value::Null },
-        "distance_m": num(d.distance_m),
-        "accel_mps2": opt(d.accel_mps2),
-        "accel_source": if d.accel_mps2.is_some() { Value::from(d.accel_source) } else { Value::Null },
-        "air": { "density_kg_m3": num(d.air_density), "origin": air_origin, "age_s": air_age, "humidity_assumed": humidity_assumed },
-        "road_load": road_load,
-        "estimate": {
-            "cda_m2": num(e.cda_m2.value),
-            "cda_sd_m2": num(e.cda_m2.sd),
-            "crr": num(e.crr.value),
-            "crr_sd": num(e.crr.sd),
-            "converged": e.converged,
-            "samples": e.samples,
-            "coast_samples": e.coast_samples,
-            "coast": coast,
-        },
-        "battery": {
-            "power_w": opt(b.power_w),
-            "discharge_rate_kw_per_kwh": opt(b.discharge_rate_kw_per_kwh),
-            "soc": opt(b.soc),
-            "energy_above_reserve_j": opt(b.energy_above_reserve_j),
-            "temp_c": opt(b.temp_c),
-            "ocv_v": ocv,
-            "ocv_sd_v": ocv_sd,
-            "resistance_ohm": res,
-            "resistance_sd_ohm": res_sd,
-            "model_converged": b.model_converged,
-            "hppc_max_w": opt(b.hppc_max_w),
-            "reported_limit_w": opt(b.reported_limit_w),
-            "deliverable_w": opt(b.deliverable_w),
-            "rated_w": num(b.rated_w),
-            "derating_ratio": opt(b.derating_ratio),
-            "boosting": b.boosting,
-            "time_in_boost_s": num(b.time_in_boost_s),
-            "heating_c_per_s": opt(b.heating_c_per_s),
-            "derating_fit": fit,
-        },
-        "boost_left": {
-            "energy_s": opt(l.energy_s),
-            "power_s": opt(l.power_s),
-            "thermal_s": opt(l.thermal_s),
-            "binding": l.binding.map(|b| b.as_str()),
-            "seconds": opt(l.seconds),
-            "need_w": opt(l.need_w),
-            "curve_fitted": l.curve_fitted,
-        },
-        "projection": projection,
-        "projection_note": d.projection_note,
-        "braking": braking,
-        "tyre": tyre,
-        "stale_inputs": d.stale_inputs,
-    })
+    let mut obj = Map::new();
+    for (path, present) in GROUPS {
+        if !present(d) {
+            insert_at(&mut obj, path.split('.'), Value::Null);
+        }
+    }
+    for q in QUANTITIES {
+        if !quantities::in_absent_group(q, d) {
+            insert_at(&mut obj, q.path(), reading_json((q.read)(d)));
+        }
+    }
+    // A list, not a quantity: which inputs are missing or stale.
+    obj.insert("stale_inputs".into(), json!(d.stale_inputs));
+    Value::Object(obj)
 }
 
 /// The closing summary of a headless run.
@@ -230,5 +139,61 @@ impl Summary {
 
     pub fn json(&self) -> Value {
         json!({ "summary": self })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::engine::derived::{BrakingView, RoadLoadView};
+
+    #[test]
+    fn non_finite_numbers_and_unknowns_are_null() {
+        let d = Derived {
+            speed_mps: Some(f64::NAN),
+            speed_source: "vehicle.speed",
+            air_density: f64::INFINITY,
+            road_load: Some(RoadLoadView { total_w: f64::NAN, aero_w: 1.5, ..RoadLoadView::default() }),
+            ..Derived::default()
+        };
+        let j = derived_json(&d);
+        assert_eq!(j["speed_mps"], Value::Null);
+        assert_eq!(j["speed_source"], "vehicle.speed", "the source is known even when the value is not finite");
+        assert_eq!(j["air"]["density_kg_m3"], Value::Null);
+        assert_eq!(j["road_load"]["total_w"], Value::Null);
+        assert_eq!(j["road_load"]["aero_w"], 1.5);
+        assert_eq!(j["road_load"]["wheel_w"], Value::Null);
+        assert_eq!(j["accel_mps2"], Value::Null);
+        assert_eq!(j["accel_source"], Value::Null, "no acceleration, no source");
+        // Absent groups are null as a whole, not objects of nulls.
+        assert_eq!(j["projection"], Value::Null);
+        assert_eq!(j["braking"], Value::Null);
+        assert_eq!(j["estimate"]["coast"], Value::Null);
+        assert_eq!(j["battery"]["derating_fit"], Value::Null);
+        assert_eq!(j["air"]["origin"], "standard atmosphere");
+        assert_eq!(j["stale_inputs"], json!([]));
+    }
+
+    #[test]
+    fn every_quantity_sits_at_its_path_with_its_value() {
+        let d = Derived {
+            braking: Some(BrakingView { point_m: 5750.0, in_s: 2.5, passed: true, ..BrakingView::default() }),
+            ..Derived::default()
+        };
+        let j = derived_json(&d);
+        let b = &j["braking"];
+        assert_eq!(
+            (b["point_m"].as_f64(), b["in_s"].as_f64(), b["passed"].as_bool()),
+            (Some(5750.0), Some(2.5), Some(true))
+        );
+        for q in QUANTITIES {
+            let pointer: String = q.path().map(|p| format!("/{p}")).collect();
+            let got = j.pointer(&pointer);
+            if quantities::in_absent_group(q, &d) {
+                assert!(got.is_none(), "{} under an absent group", q.name);
+            } else {
+                assert_eq!(got, Some(&reading_json((q.read)(&d))), "{}", q.name);
+            }
+        }
     }
 }

@@ -6,7 +6,6 @@ use std::process::ExitCode;
 
 use crate::channel::canonical_dimension;
 use crate::cli::CheckArgs;
-use crate::config::alerts::DERIVED_NAMES;
 use crate::config::{self, ConfigError, ConfigKind, FileReport, Parsed};
 use crate::decode::busload::bus_load;
 
@@ -228,7 +227,7 @@ fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool)
                     for (i, rule) in a.rules.iter().enumerate() {
                         let known = fed.contains(&rule.channel)
                             || canonical_dimension(&rule.channel).is_some()
-                            || DERIVED_NAMES.contains(&rule.channel.as_str());
+                            || crate::engine::quantities::find(&rule.channel).is_some();
                         if !known {
                             let _ = writeln!(
                                 out,

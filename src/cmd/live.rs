@@ -36,6 +36,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             Err(e) => return super::unusable(e),
         }
     };
+    config.alerts.deprecated.iter().for_each(|w| crate::say!("termvel: {w}"));
     let config = Arc::new(config);
     // The session's sources, named once, in the order given.
     let mut sources = SourceTable::default();

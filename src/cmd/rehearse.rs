@@ -18,6 +18,7 @@ pub fn run(args: RehearseArgs) -> anyhow::Result<ExitCode> {
     };
     let name = args.plan.as_ref().map_or_else(|| "the built-in demo plan".to_string(), |p| p.display().to_string());
     crate::say!("termvel: rehearsing {name}: {}", plan.name);
+    cfg.alerts.deprecated.iter().for_each(|w| crate::say!("termvel: {w}"));
     let cfg = Arc::new(cfg);
     let sim = Simulator::new(cfg.clone(), Arc::new(plan));
     let speed = if args.as_fast_as_possible { Some(f64::INFINITY) } else { args.speed };

@@ -19,6 +19,7 @@ pub fn run(args: ReplayArgs) -> anyhow::Result<ExitCode> {
         Err(e) => return super::unusable(e),
     };
     crate::say!("termvel: replaying {} with config {origin}", args.file.display());
+    config.alerts.deprecated.iter().for_each(|w| crate::say!("termvel: {w}"));
     let speed = if args.as_fast_as_possible { Some(f64::INFINITY) } else { args.speed };
     let spec = PlaySpec {
         mode: Mode::Replay { file: args.file.display().to_string() },

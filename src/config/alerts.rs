@@ -6,6 +6,9 @@ use toml::Spanned;
 
 use super::Ctx;
 use crate::channel::valid_channel_name;
+// The names of derived quantities are defined once, beside how the engine
+// reads them; the config layer only checks rule names against that table.
+use crate::engine::quantities;
 
 type F = Spanned<f64>;
 
@@ -84,7 +87,8 @@ pub enum Comparison {
 #[derive(Clone, Debug, PartialEq)]
 pub struct AlertRule {
     pub name: String,
-    /// A channel name or a derived quantity's name (`derived.boost_left_s`).
+    /// A channel name or a derived quantity's name
+    /// (`derived.boost_left.seconds`; an old name is replaced by its new one).
     pub channel: String,
     pub comparison: Comparison,
     /// The condition must hold this long before the alert is raised, s.
@@ -130,21 +134,17 @@ impl Default for Limits {
 pub struct Alerts {
     pub limits: Limits,
     pub rules: Vec<AlertRule>,
+    /// Deprecation warnings about old rule names (`warning: file:line:col:
+    /// rule[i].channel: …`), kept for the command that loads the file to
+    /// show: a config set keeps no warnings otherwise.
+    pub deprecated: Vec<String>,
 }
 
-/// Names of the derived quantities a rule may watch, besides channels.
-pub const DERIVED_NAMES: &[&str] = &[
-    "derived.air_density",
-    "derived.power_margin_w",
-    "derived.road_load_w",
-    "derived.boost_left_s",
-    "derived.derating_ratio",
-    "derived.peak_speed_mps",
-    "derived.braking_in_s",
-    "derived.braking_in_m",
-    "derived.tyre_margin_mps",
-    "derived.discharge_rate_kw_per_kwh",
-];
+/// The derived quantities a rule may watch, besides channels: the numeric
+/// ones of the table (flags as 0/1).
+pub fn rule_names() -> Vec<&'static str> {
+    quantities::QUANTITIES.iter().filter(|q| q.kind().is_numeric()).map(|q| q.name).collect()
+}
 
 pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Alerts> {
     let raw: Raw = ctx.parse()?;
@@ -173,6 +173,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Alerts> {
         }
     }
     let mut rules = Vec::new();
+    let mut deprecated = Vec::new();
     for (i, r) in raw.rule.iter().enumerate() {
         let k = |s: &str| format!("rule[{i}].{s}");
         let name = r.name.get_ref().trim().to_string();
@@ -181,19 +182,35 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Alerts> {
         } else if rules.iter().any(|o: &AlertRule| o.name == name) {
             ctx.err(r.name.span(), &k("name"), format!("expected a unique rule name; \"{name}\" is used twice"));
         }
-        let channel = r.channel.get_ref().trim().to_string();
+        let mut channel = r.channel.get_ref().trim().to_string();
         if !valid_channel_name(&channel) {
             ctx.err(
                 r.channel.span(),
                 &k("channel"),
                 format!("expected a channel or derived name, found \"{channel}\""),
             );
-        } else if channel.starts_with("derived.") && !DERIVED_NAMES.contains(&channel.as_str()) {
-            ctx.err(
-                r.channel.span(),
-                &k("channel"),
-                format!("expected one of {}, found \"{channel}\"", DERIVED_NAMES.join(", ")),
-            );
+        } else if channel.starts_with("derived.") {
+            // Old names keep an engineer's alerts file working; the rule
+            // watches the quantity under its present name from here on.
+            if let Some(new) = quantities::alias(&channel) {
+                let message = format!("\"{channel}\" is deprecated; use \"{new}\" (the same quantity)");
+                ctx.warn(r.channel.span(), &k("channel"), message);
+                deprecated.extend(ctx.warnings.last().map(|w| format!("warning: {w}")));
+                channel = new.to_string();
+            }
+            match quantities::find(&channel) {
+                Some(q) if q.kind().is_numeric() => {}
+                Some(_) => ctx.err(
+                    r.channel.span(),
+                    &k("channel"),
+                    format!("expected a numeric derived quantity, found \"{channel}\", which is a word"),
+                ),
+                None => ctx.err(
+                    r.channel.span(),
+                    &k("channel"),
+                    format!("expected one of {}, found \"{channel}\"", rule_names().join(", ")),
+                ),
+            }
         }
         let comparison = match (&r.above, &r.below) {
             (Some(a), None) => Comparison::Above(finite(ctx, a, &k("above"))),
@@ -230,7 +247,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Alerts> {
         }
         rules.push(AlertRule { name, channel, comparison, for_s, hysteresis, severity, message });
     }
-    Some(Alerts { limits, rules })
+    Some(Alerts { limits, rules, deprecated })
 }
 
 fn finite(ctx: &mut Ctx<'_>, v: &F, key: &str) -> f64 {
@@ -239,4 +256,40 @@ fn finite(ctx: &mut Ctx<'_>, v: &F, key: &str) -> f64 {
         ctx.err(v.span(), key, format!("expected a finite threshold, found {x}"));
     }
     x
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::config::{Parsed, validate_text};
+
+    fn rule(channel: &str) -> String {
+        format!(
+            "kind = \"alerts\"\n\n[[rule]]\nname = \"r\"\nchannel = \"{channel}\"\nbelow = 5.0\nseverity = \"alarm\"\nmessage = \"m\"\n"
+        )
+    }
+
+    #[test]
+    fn an_old_derived_name_works_with_a_warning_naming_the_new_one() {
+        let r = validate_text("alerts.toml", &rule("derived.boost_left_s"));
+        assert!(r.errors.is_empty(), "{:?}", r.errors);
+        assert_eq!(r.warnings.len(), 1);
+        let w = r.warnings[0].to_string();
+        assert!(w.starts_with("alerts.toml:5:11: rule[0].channel: "), "{w}");
+        assert!(w.contains("\"derived.boost_left_s\" is deprecated; use \"derived.boost_left.seconds\""), "{w}");
+        let Some(Parsed::Alerts(a)) = r.parsed else { panic!("valid") };
+        assert_eq!(a.rules[0].channel, "derived.boost_left.seconds");
+        assert_eq!(a.deprecated, vec![format!("warning: {w}")]);
+    }
+
+    #[test]
+    fn a_new_name_is_accepted_silently_and_unknown_or_word_names_are_errors() {
+        let r = validate_text("alerts.toml", &rule("derived.road_load.margin_w"));
+        assert!(r.errors.is_empty() && r.warnings.is_empty(), "{:?} {:?}", r.errors, r.warnings);
+        let r = validate_text("alerts.toml", &rule("derived.road_load.margin"));
+        assert_eq!(r.errors.len(), 1);
+        assert!(r.errors[0].message.contains("derived.road_load.margin_w"), "the list names the real ones");
+        let r = validate_text("alerts.toml", &rule("derived.boost_left.binding"));
+        assert_eq!(r.errors.len(), 1);
+        assert!(r.errors[0].message.contains("a word"), "{}", r.errors[0].message);
+    }
 }

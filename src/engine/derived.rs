@@ -5,6 +5,7 @@ use super::estimators::{
     DeratingFit, Estimated, PackEstimate, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior,
 };
 use super::physics::{air, battery as bat, braking, roadload};
+use super::power_curve::{self, PowerPoint};
 use super::projection::{BoostModel, ProjectionInputs, project};
 use crate::config::vehicle::Battery;
 use crate::config::{ConfigSet, Track, Vehicle};
@@ -165,25 +166,9 @@ pub struct Derived {
     pub tyre: Option<TyreView>,
     /// Inputs that are missing or stale, so predictions say so.
     pub stale_inputs: Vec<&'static str>,
-}
-
-impl Derived {
-    /// A derived quantity by the name alert rules use.
-    pub fn value(&self, name: &str) -> Option<f64> {
-        match name {
-            "derived.air_density" => Some(self.air_density),
-            "derived.power_margin_w" => self.road_load.map(|r| r.margin_w),
-            "derived.road_load_w" => self.road_load.map(|r| r.total_w),
-            "derived.boost_left_s" => self.boost_left.seconds,
-            "derived.derating_ratio" => self.battery.derating_ratio,
-            "derived.peak_speed_mps" => self.projection.as_ref().map(|p| p.peak_mps),
-            "derived.braking_in_s" => self.braking.map(|b| b.in_s),
-            "derived.braking_in_m" => self.braking.map(|b| b.distance_m),
-            "derived.tyre_margin_mps" => self.tyre.map(|t| t.margin_mps),
-            "derived.discharge_rate_kw_per_kwh" => self.battery.discharge_rate_kw_per_kwh,
-            _ => None,
-        }
-    }
+    /// Power at the wheels against speed (road load, available, engine
+    /// only) at the present estimates, for the power screen's chart.
+    pub power_curve: Vec<PowerPoint>,
 }
 
 /// The engine's inputs to a tick, read from the channel store.
@@ -285,6 +270,11 @@ pub fn compute(
         energy_j: bv.energy_above_reserve_j.unwrap_or(0.0),
     };
 
+    // Road load at the present speed and the power-against-speed curve; the
+    // motor counts only while boost is available, in both alike.
+    let boost_w = boost.available.then_some(boost.deliverable_w);
+    d.power_curve =
+        power_curve::curve(veh, power_curve::vmax_mps(veh, track.target_speed_mps), rho, cda_m2, crr, boost_w);
     let grade = track.grade_at(inp.distance_m);
     d.road_load = d.speed_mps.map(|v| road_load_step(veh, &model, grade, v, inp, &boost));
 
@@ -468,9 +458,7 @@ pub fn road_load_step(
         (None, None) => None,
         (e, m) => Some(roadload::wheel_power_w(e.unwrap_or(0.0), m.unwrap_or(0.0), veh.driveline_efficiency)),
     };
-    let motor_avail =
-        if boost.available { (boost.deliverable_w * veh.motor_efficiency).min(veh.motor_rated_power_w) } else { 0.0 };
-    let available = veh.driveline_efficiency * (veh.full_load_power_w(v) + motor_avail);
+    let available = power_curve::available_w(veh, v, boost.available.then_some(boost.deliverable_w));
     RoadLoadView {
         aero_w: rl.aero_w,
         rolling_w: rl.rolling_w,

@@ -13,7 +13,9 @@ pub mod alerts;
 pub mod derived;
 pub mod estimators;
 pub mod physics;
+pub mod power_curve;
 pub mod projection;
+pub mod quantities;
 pub mod rls;
 pub mod snapshot;
 pub mod store;
@@ -324,6 +326,27 @@ impl Engine {
         }
     }
 
+    /// Feeds one event as [`Engine::feed`] does, then passes each sample the
+    /// engine decoded from it to `tap`: a reader of the decoded stream (the
+    /// long export) uses the engine's own decoding instead of a second one.
+    pub fn feed_tapped(
+        &mut self,
+        ev: &Event,
+        sources: &SourceTable,
+        sink: &mut impl FnMut(Snapshot),
+        tap: &mut impl FnMut(&Sample, &crate::channel::ChannelInfo),
+    ) {
+        // `feed` leaves the samples of the last input event in place; an
+        // event that is not an input decodes to nothing.
+        if !ev.is_input() {
+            return;
+        }
+        self.feed(ev, sources, sink);
+        for s in &self.samples {
+            tap(s, self.decoder.channels.get(s.channel));
+        }
+    }
+
     /// The per-sample work: odometer, acceleration from speed and the
     /// estimators, each only for the channels it needs.
     #[inline]
@@ -521,7 +544,14 @@ impl Engine {
         let braking_now = inp.brake.is_some_and(|x| x > 0.1);
         let d = &self.derived;
         alerts::limits::evaluate(book, t, &cfg, d, braking_now, &mut self.limits);
-        alerts::rules::evaluate(book, t, &cfg.alerts.rules, |name| d.value(name), channels, store);
+        alerts::rules::evaluate(
+            book,
+            t,
+            &cfg.alerts.rules,
+            |name| quantities::find(name).and_then(|q| quantities::value(q, d)),
+            channels,
+            store,
+        );
     }
 
     /// The state at stream time `t_ns` (at or after the last event).

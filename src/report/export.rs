@@ -22,11 +22,12 @@ use std::sync::Arc;
 use serde_json::Value;
 
 use crate::config::ConfigSet;
-use crate::decode::Decoder;
+use crate::decode::{Decoder, Sample};
+use crate::engine::derived::Derived;
+use crate::engine::quantities::{self, QUANTITIES, Quantity, Reading};
 use crate::engine::{Engine, EngineOptions, Snapshot};
 use crate::event::{NS_PER_S, Payload, SourceKind, TimeNs};
-use crate::headless::derived_json;
-use crate::record::RecordingReader;
+use crate::record::{RecordingError, RecordingReader};
 
 /// Output format.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -59,76 +60,77 @@ pub enum Cell {
     Empty,
 }
 
-/// The derived quantities exported: column, unit, and where the value sits
-/// in the headless derived block (a JSON pointer). Booleans become 0/1.
-pub const DERIVED: &[(&str, &str, &str)] = &[
-    ("derived.speed", "m/s", "/speed_mps"),
-    ("derived.speed_source", "", "/speed_source"),
-    ("derived.distance", "m", "/distance_m"),
-    ("derived.accel", "m/s²", "/accel_mps2"),
-    ("derived.air_density", "kg/m³", "/air/density_kg_m3"),
-    ("derived.road_load.aero", "W", "/road_load/aero_w"),
-    ("derived.road_load.rolling", "W", "/road_load/rolling_w"),
-    ("derived.road_load.grade", "W", "/road_load/grade_w"),
-    ("derived.road_load.total", "W", "/road_load/total_w"),
-    ("derived.road_load.inertial", "W", "/road_load/inertial_w"),
-    ("derived.road_load.demand", "W", "/road_load/demand_w"),
-    ("derived.road_load.wheel", "W", "/road_load/wheel_w"),
-    ("derived.road_load.available", "W", "/road_load/available_w"),
-    ("derived.road_load.margin", "W", "/road_load/margin_w"),
-    ("derived.estimate.cda", "m²", "/estimate/cda_m2"),
-    ("derived.estimate.cda_sd", "m²", "/estimate/cda_sd_m2"),
-    ("derived.estimate.crr", "1", "/estimate/crr"),
-    ("derived.estimate.crr_sd", "1", "/estimate/crr_sd"),
-    ("derived.estimate.converged", "0/1", "/estimate/converged"),
-    ("derived.battery.power", "W", "/battery/power_w"),
-    ("derived.battery.discharge_rate", "kW/kWh", "/battery/discharge_rate_kw_per_kwh"),
-    ("derived.battery.soc", "1", "/battery/soc"),
-    ("derived.battery.energy_above_reserve", "J", "/battery/energy_above_reserve_j"),
-    ("derived.battery.temp", "°C", "/battery/temp_c"),
-    ("derived.battery.ocv", "V", "/battery/ocv_v"),
-    ("derived.battery.resistance", "Ω", "/battery/resistance_ohm"),
-    ("derived.battery.hppc_max", "W", "/battery/hppc_max_w"),
-    ("derived.battery.reported_limit", "W", "/battery/reported_limit_w"),
-    ("derived.battery.deliverable", "W", "/battery/deliverable_w"),
-    ("derived.battery.rated", "W", "/battery/rated_w"),
-    ("derived.battery.derating_ratio", "1", "/battery/derating_ratio"),
-    ("derived.battery.boosting", "0/1", "/battery/boosting"),
-    ("derived.battery.time_in_boost", "s", "/battery/time_in_boost_s"),
-    ("derived.battery.heating_rate", "°C/s", "/battery/heating_c_per_s"),
-    ("derived.battery.derating_fit.tau", "s", "/battery/derating_fit/tau_s"),
-    ("derived.battery.derating_fit.floor", "1", "/battery/derating_fit/floor"),
-    ("derived.boost_left.energy", "s", "/boost_left/energy_s"),
-    ("derived.boost_left.power", "s", "/boost_left/power_s"),
-    ("derived.boost_left.thermal", "s", "/boost_left/thermal_s"),
-    ("derived.boost_left", "s", "/boost_left/seconds"),
-    ("derived.boost_left.binding", "", "/boost_left/binding"),
-    ("derived.boost_left.need", "W", "/boost_left/need_w"),
-    ("derived.projection.peak", "m/s", "/projection/peak_mps"),
-    ("derived.projection.peak_low", "m/s", "/projection/peak_low_mps"),
-    ("derived.projection.peak_high", "m/s", "/projection/peak_high_mps"),
-    ("derived.projection.peak_at", "m", "/projection/peak_at_m"),
-    ("derived.projection.peak_in", "s", "/projection/peak_in_s"),
-    ("derived.projection.terminal", "m/s", "/projection/terminal_mps"),
-    ("derived.projection.target_reachable", "0/1", "/projection/target_reachable"),
-    ("derived.braking.point", "m", "/braking/point_m"),
-    ("derived.braking.distance", "m", "/braking/distance_m"),
-    ("derived.braking.in", "s", "/braking/in_s"),
-    ("derived.braking.stopping", "m", "/braking/stopping_m"),
-    ("derived.tyre.margin", "m/s", "/tyre/margin_mps"),
-];
-
-fn derived_cell(d: &Value, pointer: &str) -> Cell {
-    match d.pointer(pointer) {
-        Some(Value::Number(n)) => n.as_f64().map_or(Cell::Empty, Cell::Num),
-        Some(Value::Bool(b)) => Cell::Num(if *b { 1.0 } else { 0.0 }),
-        Some(Value::String(s)) => Cell::Text(s.clone()),
-        _ => Cell::Empty,
-    }
+/// Why an export failed.
+#[derive(Debug, thiserror::Error)]
+pub enum ExportError {
+    /// The recording could not be opened or read.
+    #[error(transparent)]
+    Recording(#[from] RecordingError),
+    /// The config to derive with could not be resolved (the text says why).
+    #[error(transparent)]
+    Config(#[from] crate::record::ConfigChoiceError),
+    /// The output file could not be created or written.
+    #[error("{path}: {source}")]
+    Io {
+        path: String,
+        #[source]
+        source: std::io::Error,
+    },
+    /// The Parquet writer refused a schema, a row group or the file.
+    #[cfg(feature = "parquet")]
+    #[error("{path}: {source}")]
+    Parquet {
+        path: String,
+        #[source]
+        source: parquet::errors::ParquetError,
+    },
+    /// Parquet was asked of a build without it.
+    #[error("this termvel was built without Parquet (the `parquet` cargo feature); use --to csv")]
+    NoParquet,
+    /// The recording holds no events.
+    #[error("{path}: no events to export")]
+    NoEvents { path: String },
 }
 
-fn derived_kind(pointer: &str) -> ColKind {
-    if pointer.ends_with("source") || pointer.ends_with("binding") { ColKind::Text } else { ColKind::Num }
+/// A rate that is not one.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum RateError {
+    /// Not a number of Hz.
+    #[error("expected a rate such as 50Hz, found \"{0}\"")]
+    NotARate(String),
+    /// A number of Hz outside what an export can use.
+    #[error("expected a rate from 0.01Hz to 1000Hz, found \"{0}\"")]
+    OutOfRange(String),
+}
+
+/// The derived quantities exported, one column each: every quantity of the
+/// table (`crate::engine::quantities`), named as there.
+pub fn derived_quantities() -> &'static [Quantity] {
+    QUANTITIES
+}
+
+/// The unit a derived column carries: flags are exported as 0/1.
+fn derived_unit(q: &Quantity) -> &'static str {
+    if matches!(q.kind(), Reading::Flag(_)) { "0/1" } else { q.unit }
+}
+
+fn derived_kind(q: &Quantity) -> ColKind {
+    if matches!(q.kind(), Reading::Text(_)) { ColKind::Text } else { ColKind::Num }
+}
+
+/// A derived quantity's cell: empty when unknown, not finite or in an
+/// absent group; flags as 0/1.
+fn derived_cell(q: &Quantity, d: &Derived) -> Cell {
+    if quantities::in_absent_group(q, d) {
+        return Cell::Empty;
+    }
+    match (q.read)(d) {
+        Reading::Num(Some(v)) if v.is_finite() => Cell::Num(v),
+        Reading::Num(_) | Reading::Text(None) => Cell::Empty,
+        Reading::Count(n) => Cell::Num(n as f64),
+        Reading::Flag(b) => Cell::Num(if b { 1.0 } else { 0.0 }),
+        Reading::Text(Some(t)) => Cell::Text(t.into()),
+    }
 }
 
 fn col(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Column {
@@ -139,8 +141,8 @@ fn col(name: impl Into<String>, unit: &'static str, kind: ColKind) -> Column {
 
 /// Writes rows to a file.
 pub trait Sink {
-    fn row(&mut self, cells: &[Cell]) -> Result<(), String>;
-    fn finish(self: Box<Self>) -> Result<(), String>;
+    fn row(&mut self, cells: &[Cell]) -> Result<(), ExportError>;
+    fn finish(self: Box<Self>) -> Result<(), ExportError>;
 }
 
 struct CsvSink {
@@ -149,16 +151,20 @@ struct CsvSink {
     line: String,
 }
 
+fn io(path: &Path) -> impl Fn(std::io::Error) -> ExportError + '_ {
+    move |source| ExportError::Io { path: path.display().to_string(), source }
+}
+
 impl CsvSink {
-    fn new(path: &Path, cols: &[Column]) -> Result<CsvSink, String> {
-        let f = std::fs::File::create(path).map_err(|e| format!("{}: {e}", path.display()))?;
+    fn new(path: &Path, cols: &[Column]) -> Result<CsvSink, ExportError> {
+        let f = std::fs::File::create(path).map_err(io(path))?;
         let mut s = CsvSink {
             out: std::io::BufWriter::with_capacity(1 << 20, f),
             path: path.to_path_buf(),
             line: String::new(),
         };
         let header: Vec<String> = cols.iter().map(|c| csv_text(&c.name)).collect();
-        writeln!(s.out, "{}", header.join(",")).map_err(|e| format!("{}: {e}", s.path.display()))?;
+        writeln!(s.out, "{}", header.join(",")).map_err(io(path))?;
         Ok(s)
     }
 }
@@ -168,7 +174,7 @@ fn csv_text(s: &str) -> String {
 }
 
 impl Sink for CsvSink {
-    fn row(&mut self, cells: &[Cell]) -> Result<(), String> {
+    fn row(&mut self, cells: &[Cell]) -> Result<(), ExportError> {
         use std::fmt::Write as _;
         self.line.clear();
         for (i, c) in cells.iter().enumerate() {
@@ -188,11 +194,11 @@ impl Sink for CsvSink {
             }
         }
         self.line.push('\n');
-        self.out.write_all(self.line.as_bytes()).map_err(|e| format!("{}: {e}", self.path.display()))
+        self.out.write_all(self.line.as_bytes()).map_err(io(&self.path))
     }
 
-    fn finish(mut self: Box<Self>) -> Result<(), String> {
-        self.out.flush().map_err(|e| format!("{}: {e}", self.path.display()))
+    fn finish(mut self: Box<Self>) -> Result<(), ExportError> {
+        self.out.flush().map_err(io(&self.path))
     }
 }
 
@@ -207,7 +213,7 @@ mod pq {
     use parquet::file::writer::SerializedFileWriter;
     use parquet::schema::types::Type;
 
-    use super::{Cell, ColKind, Column, Sink};
+    use super::{Cell, ColKind, Column, ExportError, Sink};
 
     /// Rows per row group.
     const GROUP: usize = 64 * 1024;
@@ -225,8 +231,8 @@ mod pq {
         path: String,
     }
 
-    fn e(path: &str) -> impl Fn(parquet::errors::ParquetError) -> String + '_ {
-        move |err| format!("{path}: {err}")
+    fn e(path: &str) -> impl Fn(parquet::errors::ParquetError) -> ExportError + '_ {
+        move |source| ExportError::Parquet { path: path.to_string(), source }
     }
 
     impl ParquetSink {
@@ -234,7 +240,7 @@ mod pq {
             path: &std::path::Path,
             cols: &[Column],
             meta: Vec<(String, String)>,
-        ) -> Result<ParquetSink, String> {
+        ) -> Result<ParquetSink, ExportError> {
             let p = path.display().to_string();
             let mut fields = Vec::new();
             for c in cols {
@@ -257,7 +263,7 @@ mod pq {
                 .set_created_by(format!("termvel {}", env!("CARGO_PKG_VERSION")))
                 .set_key_value_metadata(Some(meta.into_iter().map(|(k, v)| KeyValue::new(k, v)).collect()))
                 .build();
-            let f = std::fs::File::create(path).map_err(|err| format!("{p}: {err}"))?;
+            let f = std::fs::File::create(path).map_err(super::io(path))?;
             let w = SerializedFileWriter::new(f, schema, Arc::new(props)).map_err(e(&p))?;
             let bufs = cols
                 .iter()
@@ -270,7 +276,7 @@ mod pq {
             Ok(ParquetSink { w, bufs, rows: 0, path: p })
         }
 
-        fn flush(&mut self) -> Result<(), String> {
+        fn flush(&mut self) -> Result<(), ExportError> {
             if self.rows == 0 {
                 return Ok(());
             }
@@ -304,7 +310,7 @@ mod pq {
     }
 
     impl Sink for ParquetSink {
-        fn row(&mut self, cells: &[Cell]) -> Result<(), String> {
+        fn row(&mut self, cells: &[Cell]) -> Result<(), ExportError> {
             for (b, c) in self.bufs.iter_mut().zip(cells) {
                 match (b, c) {
                     (Buf::Int(v), Cell::Int(x)) => v.push(*x),
@@ -325,7 +331,7 @@ mod pq {
             if self.rows >= GROUP { self.flush() } else { Ok(()) }
         }
 
-        fn finish(mut self: Box<Self>) -> Result<(), String> {
+        fn finish(mut self: Box<Self>) -> Result<(), ExportError> {
             self.flush()?;
             let p = self.path.clone();
             self.w.close().map_err(e(&p))?;
@@ -334,7 +340,7 @@ mod pq {
     }
 }
 
-fn open_sink(format: Format, path: &Path, cols: &[Column], source: &str) -> Result<Box<dyn Sink>, String> {
+fn open_sink(format: Format, path: &Path, cols: &[Column], source: &str) -> Result<Box<dyn Sink>, ExportError> {
     match format {
         Format::Csv => Ok(Box::new(CsvSink::new(path, cols)?)),
         #[cfg(feature = "parquet")]
@@ -350,7 +356,7 @@ fn open_sink(format: Format, path: &Path, cols: &[Column], source: &str) -> Resu
         #[cfg(not(feature = "parquet"))]
         Format::Parquet => {
             let _ = source;
-            Err("this termvel was built without Parquet (the `parquet` cargo feature); use --to csv".into())
+            Err(ExportError::NoParquet)
         }
     }
 }
@@ -364,19 +370,22 @@ pub struct ExportOutcome {
 }
 
 /// Opens a recording and its config (as a report does).
-fn open(file: &Path, config: &[PathBuf]) -> Result<(RecordingReader<std::fs::File>, Arc<ConfigSet>, String), String> {
-    let r = RecordingReader::open(file).map_err(|e| e.to_string())?;
-    let (cfg, origin) = r.header.config_set(config, file).map_err(|e| e.to_string())?;
+fn open(
+    file: &Path,
+    config: &[PathBuf],
+) -> Result<(RecordingReader<std::fs::File>, Arc<ConfigSet>, String), ExportError> {
+    let r = RecordingReader::open(file)?;
+    let (cfg, origin) = r.header.config_set(config, file)?;
     Ok((r, Arc::new(cfg), origin))
 }
 
 /// Channels a recording will produce: those of the signal map and the GNSS
 /// receiver, and (when line telemetry is present) every key its lines
 /// carry, found by a first pass.
-fn channel_table(file: &Path, cfg: &ConfigSet, has_lines: bool) -> Result<crate::channel::ChannelTable, String> {
+fn channel_table(file: &Path, cfg: &ConfigSet, has_lines: bool) -> Result<crate::channel::ChannelTable, ExportError> {
     let mut dec = Decoder::new(&cfg.signals);
     if has_lines {
-        let mut r = RecordingReader::open(file).map_err(|e| e.to_string())?;
+        let mut r = RecordingReader::open(file)?;
         let mut samples = Vec::new();
         while let Some(ev) = r.next_event() {
             if let Some(s) = r.header.sources.get(ev.source)
@@ -397,7 +406,7 @@ pub fn resampled(
     format: Format,
     out: &Path,
     every_ns: TimeNs,
-) -> Result<ExportOutcome, String> {
+) -> Result<ExportOutcome, ExportError> {
     let (mut r, cfg, origin) = open(file, config)?;
     let has_lines = r.header.sources.iter().any(|(_, s)| s.kind == SourceKind::Lines);
     let table = channel_table(file, &cfg, has_lines)?;
@@ -406,16 +415,16 @@ pub fn resampled(
     for (id, name) in &chans {
         cols.push(col(name.clone(), table.get(*id).dimension.si_unit(), ColKind::Num));
     }
-    for (name, unit, ptr) in DERIVED {
-        cols.push(col(*name, unit, derived_kind(ptr)));
+    for q in derived_quantities() {
+        cols.push(col(q.name, derived_unit(q), derived_kind(q)));
     }
     let mut sink = open_sink(format, out, &cols, &file.display().to_string())?;
     let mut engine = Engine::new(cfg, EngineOptions { snapshot_every_ns: every_ns });
     let mut start: Option<TimeNs> = None;
     let mut rows = 0u64;
-    let mut err: Option<String> = None;
+    let mut err: Option<ExportError> = None;
     let mut cells = Vec::with_capacity(cols.len());
-    let mut emit = |s: Snapshot, start: TimeNs, rows: &mut u64, err: &mut Option<String>| {
+    let mut emit = |s: Snapshot, start: TimeNs, rows: &mut u64, err: &mut Option<ExportError>| {
         if err.is_some() {
             return;
         }
@@ -428,9 +437,8 @@ pub fn resampled(
                 _ => Cell::Empty,
             });
         }
-        let d = derived_json(&s.derived);
-        for (_, _, ptr) in DERIVED {
-            cells.push(derived_cell(&d, ptr));
+        for q in derived_quantities() {
+            cells.push(derived_cell(q, &s.derived));
         }
         match sink.row(&cells) {
             Ok(()) => *rows += 1,
@@ -444,7 +452,7 @@ pub fn resampled(
         let t0 = *start.get_or_insert(ev.t_ns);
         engine.feed(&ev, &r.header.sources, &mut |s| emit(s, t0, &mut rows, &mut err));
     }
-    let t0 = start.ok_or_else(|| format!("{}: no events to export", file.display()))?;
+    let t0 = start.ok_or_else(|| ExportError::NoEvents { path: file.display().to_string() })?;
     let sources = r.header.sources.clone();
     engine.finish(&sources, &mut |s| emit(s, t0, &mut rows, &mut err));
     if let Some(e) = err {
@@ -462,7 +470,7 @@ pub fn long(
     format: Format,
     out: &Path,
     every_ns: TimeNs,
-) -> Result<ExportOutcome, String> {
+) -> Result<ExportOutcome, ExportError> {
     let (mut r, cfg, origin) = open(file, config)?;
     let cols = vec![
         col("t_ns", "", ColKind::Int),
@@ -474,56 +482,56 @@ pub fn long(
         col("flag", "", ColKind::Text),
     ];
     let mut sink = open_sink(format, out, &cols, &file.display().to_string())?;
-    let mut dec = Decoder::new(&cfg.signals);
     let mut engine = Engine::new(cfg, EngineOptions { snapshot_every_ns: every_ns });
-    let mut samples = Vec::new();
+    // The samples the engine decoded from the latest event (its own
+    // decoding, through its tap), with their channel's name and unit.
+    let mut samples: Vec<(Sample, String, &'static str)> = Vec::new();
     let mut rows = 0u64;
     let mut start: Option<TimeNs> = None;
     let mut snaps = Vec::new();
     let mut cells = Vec::with_capacity(cols.len());
-    let derived_rows = |s: &Snapshot, t0: TimeNs, sink: &mut Box<dyn Sink>, rows: &mut u64| -> Result<(), String> {
-        let d = derived_json(&s.derived);
-        for (name, unit, ptr) in DERIVED {
-            let (value, flag) = match derived_cell(&d, ptr) {
-                Cell::Num(v) => (Cell::Num(v), String::new()),
-                Cell::Text(t) => (Cell::Empty, t),
-                _ => continue,
-            };
-            sink.row(&[
-                Cell::Int(s.t_ns),
-                Cell::Num((s.t_ns - t0) as f64 * 1e-9),
-                Cell::Text((*name).into()),
-                value,
-                Cell::Text((*unit).into()),
-                Cell::Text("derived".into()),
-                if flag.is_empty() { Cell::Empty } else { Cell::Text(flag) },
-            ])?;
-            *rows += 1;
-        }
-        Ok(())
-    };
+    let derived_rows =
+        |s: &Snapshot, t0: TimeNs, sink: &mut Box<dyn Sink>, rows: &mut u64| -> Result<(), ExportError> {
+            for q in derived_quantities() {
+                let (value, flag) = match derived_cell(q, &s.derived) {
+                    Cell::Num(v) => (Cell::Num(v), String::new()),
+                    Cell::Text(t) => (Cell::Empty, t),
+                    _ => continue,
+                };
+                sink.row(&[
+                    Cell::Int(s.t_ns),
+                    Cell::Num((s.t_ns - t0) as f64 * 1e-9),
+                    Cell::Text(q.name.into()),
+                    value,
+                    Cell::Text(derived_unit(q).into()),
+                    Cell::Text("derived".into()),
+                    if flag.is_empty() { Cell::Empty } else { Cell::Text(flag) },
+                ])?;
+                *rows += 1;
+            }
+            Ok(())
+        };
     while let Some(ev) = r.next_event() {
         if matches!(ev.payload, Payload::Note(_)) {
             continue;
         }
         let t0 = *start.get_or_insert(ev.t_ns);
-        engine.feed(&ev, &r.header.sources, &mut |s| snaps.push(s));
+        samples.clear();
+        engine.feed_tapped(&ev, &r.header.sources, &mut |s| snaps.push(s), &mut |s, info| {
+            samples.push((*s, info.name.clone(), info.dimension.si_unit()))
+        });
         for s in snaps.drain(..) {
             derived_rows(&s, t0, &mut sink, &mut rows)?;
         }
-        let kind = r.header.sources.get(ev.source).map_or(SourceKind::Can, |s| s.kind);
-        samples.clear();
-        dec.decode(&ev, kind, &mut samples);
         let source = r.header.sources.name(ev.source).to_string();
-        for s in &samples {
-            let info = dec.channels.get(s.channel);
+        for (s, name, unit) in samples.drain(..) {
             cells.clear();
             cells.extend([
                 Cell::Int(ev.t_ns),
                 Cell::Num((ev.t_ns - t0) as f64 * 1e-9),
-                Cell::Text(info.name.clone()),
+                Cell::Text(name),
                 Cell::Num(s.value),
-                Cell::Text(info.dimension.si_unit().into()),
+                Cell::Text(unit.into()),
                 Cell::Text(source.clone()),
                 if s.valid { Cell::Empty } else { Cell::Text("out_of_range".into()) },
             ]);
@@ -531,7 +539,7 @@ pub fn long(
             rows += 1;
         }
     }
-    let t0 = start.ok_or_else(|| format!("{}: no events to export", file.display()))?;
+    let t0 = start.ok_or_else(|| ExportError::NoEvents { path: file.display().to_string() })?;
     let sources = r.header.sources.clone();
     engine.finish(&sources, &mut |s| snaps.push(s));
     for s in snaps.drain(..) {
@@ -542,12 +550,12 @@ pub fn long(
 }
 
 /// Parses a rate such as `50Hz`, `10hz` or `0.5Hz` into a period in ns.
-pub fn parse_rate(s: &str) -> Result<TimeNs, String> {
+pub fn parse_rate(s: &str) -> Result<TimeNs, RateError> {
     let t = s.trim();
     let num = t.strip_suffix("Hz").or_else(|| t.strip_suffix("hz")).or_else(|| t.strip_suffix("HZ")).unwrap_or(t);
-    let hz: f64 = num.trim().parse().map_err(|_| format!("expected a rate such as 50Hz, found \"{s}\""))?;
+    let hz: f64 = num.trim().parse().map_err(|_| RateError::NotARate(s.to_string()))?;
     if !(0.01..=1000.0).contains(&hz) {
-        return Err(format!("expected a rate from 0.01Hz to 1000Hz, found \"{s}\""));
+        return Err(RateError::OutOfRange(s.to_string()));
     }
     Ok((NS_PER_S as f64 / hz).round() as TimeNs)
 }
@@ -561,8 +569,8 @@ mod tests {
         assert_eq!(parse_rate("50Hz"), Ok(20_000_000));
         assert_eq!(parse_rate("10hz"), Ok(100_000_000));
         assert_eq!(parse_rate("0.5Hz"), Ok(2_000_000_000));
-        assert!(parse_rate("fast").unwrap_err().contains("50Hz"));
-        assert!(parse_rate("0Hz").is_err());
+        assert!(parse_rate("fast").unwrap_err().to_string().contains("50Hz"));
+        assert_eq!(parse_rate("0Hz"), Err(RateError::OutOfRange("0Hz".into())));
         assert!(parse_rate("5000Hz").is_err());
     }
 
@@ -574,28 +582,32 @@ mod tests {
     }
 
     #[test]
-    fn every_derived_pointer_exists_in_the_headless_block() {
-        // A derived block with every optional part present (the demo run at
-        // its 60 s mark), so a renamed field cannot silently export nothing.
-        let rec = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("replays/demo.tvrec");
-        let mut r = RecordingReader::open(&rec).unwrap();
-        let cfg = Arc::new(ConfigSet::embedded());
-        let mut engine = Engine::new(cfg, EngineOptions::default());
-        let mut best: Option<Value> = None;
-        while let Some(ev) = r.next_event() {
-            engine.feed(&ev, &r.header.sources, &mut |s| {
-                let d = derived_json(&s.derived);
-                let present = DERIVED.iter().filter(|(_, _, p)| !d.pointer(p).is_none_or(Value::is_null)).count();
-                if best.as_ref().is_none_or(|b| {
-                    DERIVED.iter().filter(|(_, _, p)| !b.pointer(p).is_none_or(Value::is_null)).count() < present
-                }) {
-                    best = Some(d);
-                }
-            });
-        }
-        let d = best.unwrap();
-        let missing: Vec<&str> =
-            DERIVED.iter().filter(|(_, _, p)| d.pointer(p).is_none()).map(|(n, _, _)| *n).collect();
-        assert!(missing.is_empty(), "pointers that name nothing: {missing:?}");
+    fn the_derived_columns_are_the_tables_names() {
+        let names: Vec<&str> = derived_quantities().iter().map(|q| q.name).collect();
+        let table: Vec<&str> = QUANTITIES.iter().map(|q| q.name).collect();
+        assert_eq!(names, table);
+        // As written in a header: the name, then the unit in brackets.
+        let total = quantities::find("derived.road_load.total_w").unwrap();
+        assert_eq!(col(total.name, derived_unit(total), derived_kind(total)).name, "derived.road_load.total_w [W]");
+        let boosting = quantities::find("derived.battery.boosting").unwrap();
+        assert_eq!(
+            col(boosting.name, derived_unit(boosting), derived_kind(boosting)).name,
+            "derived.battery.boosting [0/1]"
+        );
+        let binding = quantities::find("derived.boost_left.binding").unwrap();
+        assert_eq!(derived_kind(binding), ColKind::Text);
+        assert_eq!(col(binding.name, derived_unit(binding), derived_kind(binding)).name, "derived.boost_left.binding");
+    }
+
+    #[test]
+    fn derived_cells_are_empty_when_unknown_or_not_finite() {
+        let d = Derived { speed_mps: Some(f64::NAN), air_density: 1.2, ..Derived::default() };
+        let cell = |name: &str| derived_cell(quantities::find(name).unwrap(), &d);
+        assert_eq!(cell("derived.speed_mps"), Cell::Empty);
+        assert_eq!(cell("derived.air.density_kg_m3"), Cell::Num(1.2));
+        assert_eq!(cell("derived.battery.boosting"), Cell::Num(0.0));
+        assert_eq!(cell("derived.air.origin"), Cell::Text("standard atmosphere".into()));
+        // In an absent group even a flag is empty, not 0.
+        assert_eq!(cell("derived.braking.passed"), Cell::Empty);
     }
 }

@@ -161,7 +161,6 @@ pub enum ReportError {
     },
 }
 
-
 /// A reader that counts the bytes read through it (for the progress bar).
 struct Counting<R> {
     inner: R,

@@ -123,11 +123,14 @@ pub struct App {
     pub latency: LatencyView,
     /// Snapshots seen and drawn frames, for the feed screen.
     pub snapshots_seen: u64,
+    /// The CAN bus load of the signal map (config alone), for the feed screen.
+    pub bus_load: crate::decode::busload::BusLoad,
 }
 
 impl App {
     pub fn new(info: SessionInfo, theme: Theme) -> App {
         App {
+            bus_load: crate::decode::busload::bus_load(&info.config.signals),
             info,
             theme,
             frame: None,

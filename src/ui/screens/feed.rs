@@ -7,7 +7,6 @@ use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Table};
 
-use crate::decode::busload::bus_load;
 use crate::event::{LinkState, SourceKind};
 use crate::ui::app::App;
 
@@ -80,7 +79,8 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     f.render_widget(table, sources);
 
     let c = &s.counters;
-    let load = bus_load(&app.info.config.signals);
+    // From the config alone: computed once, when the app starts.
+    let load = &app.bus_load;
     let lines = vec![
         Line::styled(format!(" events       {}", c.events), t.value()),
         Line::styled(format!(" CAN frames   {}", c.can_frames), t.value()),

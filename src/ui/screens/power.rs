@@ -2,7 +2,8 @@
 //! inertial) as numbers and meters; the drag and rolling-resistance
 //! estimates with their uncertainty and whether they have converged; the
 //! air density and where it came from; and power against speed: road load at
-//! the present estimates, power available, and where the car is now.
+//! the present estimates, power available, and where the car is now. It
+//! only draws: every number comes from the snapshot.
 
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -12,7 +13,7 @@ use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, LegendPo
 
 use crate::engine::Snapshot;
 use crate::engine::derived::AirOrigin;
-use crate::engine::physics::roadload::{RoadLoadInputs, road_load};
+use crate::engine::power_curve::PowerPoint;
 use crate::ui::app::App;
 use crate::ui::format;
 use crate::ui::widgets::meter::Meter;
@@ -159,39 +160,17 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
 fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
     let u = app.units;
-    let cfg = &app.info.config;
-    let veh = &cfg.vehicle;
     let d = &s.derived;
-    let vmax = veh.tyre_rated_mps.max(cfg.track.target_speed_mps) * 1.05;
-    let (cda, crr) = d.road_load.map_or((veh.cda_m2, veh.crr0), |r| (r.cda_m2, r.crr));
-    let boost_now = d.battery.deliverable_w.unwrap_or(0.0);
-    let n = 80;
-    let mut road = Vec::with_capacity(n + 1);
-    let mut avail = Vec::with_capacity(n + 1);
-    let mut engine_only = Vec::with_capacity(n + 1);
-    let mut top = 0.0f64;
-    for i in 0..=n {
-        let v = vmax * i as f64 / n as f64;
-        let rl = road_load(&RoadLoadInputs {
-            v_mps: v,
-            wind_mps: 0.0,
-            rho: d.air_density,
-            cda_m2: cda,
-            crr0: crr,
-            crr2_s2_m2: veh.crr2_s2_m2,
-            mass_kg: veh.mass_kg,
-            grade: 0.0,
-        })
-        .total_w;
-        let comb = veh.full_load_power_w(v);
-        let motor = (boost_now * veh.motor_efficiency).min(veh.motor_rated_power_w);
-        let a = veh.driveline_efficiency * (comb + motor);
-        let e = veh.driveline_efficiency * comb;
-        top = top.max(a);
-        road.push((u.speed(v), u.power(rl)));
-        avail.push((u.speed(v), u.power(a)));
-        engine_only.push((u.speed(v), u.power(e)));
-    }
+    // The engine computes the curve (engine/power_curve.rs) with the same
+    // function as the meter's available power: this only converts units.
+    let vmax = d.power_curve.last().map_or(1.0, |p| p.v_mps).max(1.0);
+    let top = d.power_curve.iter().fold(0.0f64, |m, p| m.max(p.available_w));
+    let points = |f: fn(&PowerPoint) -> f64| -> Vec<(f64, f64)> {
+        d.power_curve.iter().map(|p| (u.speed(p.v_mps), u.power(f(p)))).collect()
+    };
+    let road = points(|p| p.road_w);
+    let avail = points(|p| p.available_w);
+    let engine_only = points(|p| p.engine_only_w);
     let pmax = u.power(top * 1.15);
     let road: Vec<(f64, f64)> = road.into_iter().filter(|p| p.1 <= pmax).collect();
     let now: Vec<(f64, f64)> = match (d.speed_mps, d.road_load.and_then(|r| r.wheel_w)) {
