@@ -22,7 +22,7 @@ use termvel::config::ConfigSet;
 use termvel::engine::{Engine, EngineOptions, Snapshot};
 use termvel::event::{SourceKind, SourceTable};
 use termvel::sources::link::{INPUT_CAPACITY, SessionClock};
-use termvel::sources::serial::{Proto, SerialSpec};
+use termvel::sources::serial_port::{Proto, SerialSpec};
 use termvel::stream::StreamStatus;
 use termvel::stream::realtime::{LiveOptions, run};
 use tokio::sync::{mpsc, watch};
@@ -84,7 +84,7 @@ fn case(rate: u64, secs: u64) -> Case {
         let (tx, rx) = mpsc::channel(INPUT_CAPACITY);
         let (stop_tx, stop_rx) = watch::channel(false);
         let spec = SerialSpec { path, baud: 115_200, proto: Proto::Slcan, can_bitrate: 1_000_000, name: None };
-        tokio::spawn(termvel::sources::serial::run(spec, src, clock, tx, stop_rx));
+        tokio::spawn(termvel::sources::serial_port::run(spec, src, clock, tx, stop_rx));
         let live = LiveOptions {
             engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: 100_000_000 }),
             sources: sources.clone(),

@@ -253,7 +253,7 @@ fn planner_monte_carlo(bencher: Bencher, trials: usize) {
         termvel::planner::monte_carlo(
             &cfg,
             &plan,
-            termvel::config::plan::BoostStart::AtDistance(3000.0),
+            termvel::config::run_plan::BoostStart::AtDistance(3000.0),
             Some(5750.0),
             trials,
             1,

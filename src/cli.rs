@@ -73,7 +73,7 @@ pub struct ExportArgs {
     #[arg(long, value_name = "PATH")]
     pub out: PathBuf,
     /// Common time base: one row per tick at this rate (e.g. 50Hz, 10Hz).
-    #[arg(long, value_name = "RATE", default_value = "50Hz", value_parser = crate::report::export::parse_rate)]
+    #[arg(long, value_name = "RATE", default_value = "50Hz", value_parser = crate::report::table_export::parse_rate)]
     pub rate: TimeNs,
     /// Raw samples, long form (time, channel, value, unit, source, flag), instead of resampled columns; derived quantities come at --rate.
     #[arg(long)]
@@ -150,7 +150,7 @@ pub struct LiveArgs {
     pub can: Vec<String>,
     /// A serial port (repeatable): PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME].
     #[arg(long = "serial", value_name = "SPEC")]
-    pub serial: Vec<crate::sources::serial::SerialSpec>,
+    pub serial: Vec<crate::sources::serial_port::SerialSpec>,
     /// Take every CAN id, not only the signal map's.
     #[arg(long)]
     pub all_ids: bool,

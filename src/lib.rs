@@ -4,7 +4,7 @@
 //! state of power and boost time left, projected peak speed and the braking
 //! point.
 //!
-//! The pipeline (DESIGN.md): [`sources`] produce [`event::Event`]s;
+//! The pipeline (docs/ARCHITECTURE.md in the repository): [`sources`] produce [`event::Event`]s;
 //! [`decode`] turns them into samples; the [`engine`] derives everything
 //! and publishes snapshots; the [`record`]er keeps every event; [`stream`]
 //! runs a stream through all of them (paced or live); screens, reports and
@@ -43,12 +43,12 @@ pub mod envelope;
 pub mod event;
 pub mod headless;
 pub mod planner;
+pub mod printable;
 pub mod record;
 pub mod report;
 pub mod sim;
 pub mod sources;
 pub mod stream;
-pub mod text;
 pub mod ui;
 pub mod units;
 

@@ -13,10 +13,10 @@
 //! of Monte Carlo trials over the plan's uncertainty ranges. Trials draw from
 //! independent seeded streams, so results do not depend on the thread count.
 
-use crate::config::plan::{BoostStart, Plan};
+use crate::config::run_plan::{BoostStart, Plan};
 use crate::config::{ConfigSet, Track, Vehicle};
 use crate::engine::physics::motion::{self, MotionParams, TRACTION_SPEED_FLOOR_MPS};
-use crate::engine::physics::{air, battery as bat, braking};
+use crate::engine::physics::{air, braking, pack as bat};
 use crate::sim::rng::Rng;
 use crate::units::G0;
 

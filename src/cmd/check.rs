@@ -187,8 +187,8 @@ fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool)
             }
             Parsed::Plan(p) => {
                 let boost = match p.driver.boost_start {
-                    config::plan::BoostStart::AtDistance(m) => format!("boost from {m:.0} m"),
-                    config::plan::BoostStart::AtSpeed(v) => format!("boost from {:.0} km/h", v * 3.6),
+                    config::run_plan::BoostStart::AtDistance(m) => format!("boost from {m:.0} m"),
+                    config::run_plan::BoostStart::AtSpeed(v) => format!("boost from {:.0} km/h", v * 3.6),
                 };
                 let _ = writeln!(
                     out,

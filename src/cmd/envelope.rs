@@ -6,7 +6,7 @@
 use std::process::ExitCode;
 
 use crate::cli::EnvelopeArgs;
-use crate::config::{self, ConfigSet, plan::Plan};
+use crate::config::{self, ConfigSet, run_plan::Plan};
 use crate::envelope::{self, Air, AirSource, BrakeAt, Inputs};
 
 /// The plan (if any) and the config set: a plan given, or a config set
@@ -89,16 +89,16 @@ pub fn run(args: EnvelopeArgs) -> anyhow::Result<ExitCode> {
     };
     let plan_name = plan.as_ref().map(|p| p.name.as_str());
     if let Some(dir) = &args.plots {
-        let written = envelope::plots::write(dir, &e, veh)?;
+        let written = envelope::render_svg::write(dir, &e, veh)?;
         for p in written {
             crate::say!("wrote {}", p.display());
         }
     }
     if args.json {
-        let doc = envelope::json::document(&e, &veh.name, &track.name, plan_name);
+        let doc = envelope::render_json::document(&e, &veh.name, &track.name, plan_name);
         crate::out!("{}", serde_json::to_string_pretty(&doc)?);
     } else {
-        crate::out!("{}", envelope::text::render(&e, veh, track, plan_name).trim_end());
+        crate::out!("{}", envelope::render_text::render(&e, veh, track, plan_name).trim_end());
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -4,7 +4,7 @@
 use std::process::ExitCode;
 
 use crate::cli::{ExportArgs, ExportFormat};
-use crate::report::export::{self, Format};
+use crate::report::table_export::{self, Format};
 
 pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
     let format = match args.to {
@@ -12,9 +12,9 @@ pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
         ExportFormat::Parquet => Format::Parquet,
     };
     let r = if args.long {
-        export::long(&args.file, &args.config, format, &args.out, args.rate)
+        table_export::long(&args.file, &args.config, format, &args.out, args.rate)
     } else {
-        export::resampled(&args.file, &args.config, format, &args.out, args.rate)
+        table_export::resampled(&args.file, &args.config, format, &args.out, args.rate)
     };
     match r {
         Ok(o) => {

@@ -13,7 +13,7 @@ use crate::engine::{Engine, EngineOptions};
 use crate::event::{CanId, SourceKind, SourceTable};
 use crate::headless::Summary;
 use crate::sources::link::{INPUT_CAPACITY, SessionClock};
-use crate::sources::{serial, socketcan};
+use crate::sources::{serial_port, socketcan};
 use crate::stream::realtime::{self, LiveOptions, LiveOutcome};
 use crate::stream::{Control, JsonPrinter, latency_histogram};
 use crate::ui::app::{App, Mode, SessionInfo};
@@ -73,7 +73,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             tokio::spawn(socketcan::run(spec, *id, clock, tx.clone(), stop_rx.clone()));
         }
         for (spec, id) in &ser {
-            tokio::spawn(serial::run(spec.clone(), *id, clock, tx.clone(), stop_rx.clone()));
+            tokio::spawn(serial_port::run(spec.clone(), *id, clock, tx.clone(), stop_rx.clone()));
         }
         drop(tx);
         let latency = latency_histogram();

@@ -7,7 +7,7 @@ use std::process::ExitCode;
 use serde_json::json;
 
 use crate::cli::PlanArgs;
-use crate::config::{self, plan::BoostStart};
+use crate::config::{self, run_plan::BoostStart};
 use crate::planner::{self, Conditions, RunResult};
 
 fn kmh(v: f64) -> f64 {

@@ -8,7 +8,7 @@
 
 pub mod alerts;
 pub mod locate;
-pub mod plan;
+pub mod run_plan;
 pub mod signals;
 pub mod track;
 pub mod vehicle;
@@ -48,9 +48,9 @@ impl fmt::Display for ConfigError {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         // Keys and messages echo the file's own text: escape what a terminal
         // would act on, and cut what would flood it.
-        let file = crate::text::printable(&self.file);
-        let key = crate::text::clipped(&self.key, SHOWN_KEY_CHARS);
-        let message = crate::text::clipped(&self.message, SHOWN_MESSAGE_CHARS);
+        let file = crate::printable::printable(&self.file);
+        let key = crate::printable::clipped(&self.key, SHOWN_KEY_CHARS);
+        let message = crate::printable::clipped(&self.message, SHOWN_MESSAGE_CHARS);
         if self.line == 0 {
             write!(f, "{file}: {message}")
         } else if self.key.is_empty() {
@@ -219,7 +219,7 @@ fn humanise(msg: &str, key: &mut String, top_level: bool) -> String {
     if let Some(rest) = msg.strip_prefix("unknown field ") {
         let (field, allowed) = rest.split_once(", expected ").unwrap_or((rest, ""));
         // The key is named once in full (cut) in the location already.
-        let field = crate::text::clipped(field, 60);
+        let field = crate::printable::clipped(field, 60);
         let allowed = allowed.strip_prefix("one of ").unwrap_or(allowed);
         return if allowed.is_empty() {
             format!("unknown key {field}; this table takes no keys")
@@ -303,7 +303,7 @@ pub enum Parsed {
     Track(Track),
     Signals(Signals),
     Alerts(Alerts),
-    Plan(plan::Plan),
+    Plan(run_plan::Plan),
 }
 
 /// Result of validating one file: the value (if valid) and any warnings.
@@ -329,7 +329,7 @@ pub fn validate_text(origin: &str, text: &str) -> FileReport {
         ConfigKind::Track => track::validate(&mut ctx).map(Parsed::Track),
         ConfigKind::Signals => signals::validate(&mut ctx).map(Parsed::Signals),
         ConfigKind::Alerts => alerts::validate(&mut ctx).map(Parsed::Alerts),
-        ConfigKind::Plan => plan::validate(&mut ctx).map(Parsed::Plan),
+        ConfigKind::Plan => run_plan::validate(&mut ctx).map(Parsed::Plan),
     };
     let parsed = if ctx.errors.is_empty() { parsed } else { None };
     FileReport { origin: origin.into(), kind: Some(kind), parsed, errors: ctx.errors, warnings: ctx.warnings }
@@ -605,7 +605,7 @@ pub const EMBEDDED_PLAN: (&str, &str) = ("demo-plan.toml", include_str!("../../c
 /// A plan's file names are relative to its directory; `override_set`
 /// replaces them (the `--config` option). A problem with a named file is
 /// reported at the plan's own line and key (see [`plan_references`]).
-pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(plan::Plan, ConfigSet), ConfigErrors> {
+pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(run_plan::Plan, ConfigSet), ConfigErrors> {
     let (origin, text) = match path {
         None => (format!("<embedded>/{}", EMBEDDED_PLAN.0), EMBEDDED_PLAN.1.to_string()),
         Some(p) => match read_config_file(p) {
@@ -644,12 +644,12 @@ pub fn load_plan(path: Option<&Path>, override_set: &[PathBuf]) -> Result<(plan:
 /// must be a readable file other than the plan itself, of the kind its key
 /// says, and valid. Returns the texts read and the errors, each located at
 /// the plan's line and key (followed by the named file's own errors).
-pub fn plan_references(plan: &plan::Plan, plan_path: &Path) -> (Vec<(String, String)>, Vec<ConfigError>) {
+pub fn plan_references(plan: &run_plan::Plan, plan_path: &Path) -> (Vec<(String, String)>, Vec<ConfigError>) {
     let origin = plan_path.display().to_string();
     let dir = plan_path.parent().unwrap_or(Path::new("."));
     let mut files = Vec::new();
     let mut errors = Vec::new();
-    let at = |r: &plan::FileRef, message: String| ConfigError {
+    let at = |r: &run_plan::FileRef, message: String| ConfigError {
         file: origin.clone(),
         line: r.line,
         column: r.column,

@@ -11,7 +11,7 @@ pub mod candump;
 pub mod hex;
 pub mod lines;
 pub mod nmea;
-pub mod serial;
+pub mod serial_line;
 pub mod slcan;
 pub mod syntax;
 
@@ -96,10 +96,10 @@ impl Decoder {
             // A CAN source's line, read back from a recording: what a serial
             // CAN adapter sent that was not a frame (recorded as a line).
             // This is its one parse in a replay.
-            (Payload::Line(line), SourceKind::Can) => match serial::adapter_message(line) {
+            (Payload::Line(line), SourceKind::Can) => match serial_line::adapter_message(line) {
                 Ok(Some(frame)) => self.can.decode(ev.t_ns, &frame, out),
                 Ok(None) => {}
-                Err(e) => self.parse_error(ev.source, serial::adapter_error(&e)),
+                Err(e) => self.parse_error(ev.source, serial_line::adapter_error(&e)),
             },
             _ => {}
         }

@@ -4,7 +4,7 @@
 use super::estimators::{
     DeratingFit, Estimated, PackEstimate, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior,
 };
-use super::physics::{air, battery as bat, braking, roadload};
+use super::physics::{air, braking, pack as bat, roadload};
 use super::power_curve::{self, PowerPoint};
 use super::projection::{BoostModel, ProjectionInputs, project};
 use crate::config::vehicle::Battery;

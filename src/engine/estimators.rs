@@ -426,7 +426,7 @@ impl HeatingRate {
 mod tests {
     use super::*;
     use crate::config::{ConfigSet, Vehicle};
-    use crate::engine::physics::battery::derating_ratio;
+    use crate::engine::physics::pack::derating_ratio;
     use crate::engine::physics::roadload::G_MPS2;
     use crate::sim::rng::Rng;
 

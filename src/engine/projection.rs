@@ -11,9 +11,9 @@
 //! configured deceleration, aerodynamic drag included, reaches the stop-by
 //! point of the zone.
 
-use super::physics::battery::derating_ratio;
 use super::physics::braking::braking_distance_m;
 use super::physics::motion::{MotionParams, StopReason, integrate};
+use super::physics::pack::derating_ratio;
 use super::physics::roadload::{G_MPS2, RoadLoadInputs, road_load};
 use crate::config::{Track, Vehicle};
 

@@ -23,13 +23,13 @@
 //!
 //! Pure: no I/O. Rendering is in [`text`], [`json`] and [`plots`].
 
-pub mod json;
-pub mod plots;
-pub mod text;
+pub mod render_json;
+pub mod render_svg;
+pub mod render_text;
 
 use crate::config::{Track, Vehicle};
 use crate::engine::physics::motion::{self, MotionParams, TRACTION_SPEED_FLOOR_MPS};
-use crate::engine::physics::{air, battery as bat, braking, roadload};
+use crate::engine::physics::{air, braking, pack as bat, roadload};
 use crate::units::G0;
 
 /// Highest speed the root finders search, m/s (900 km/h). A terminal speed

@@ -7,8 +7,8 @@
 //! engineer asks for after a run. Nothing here reads a clock: a report of a
 //! file is the same every time.
 
-pub mod export;
 pub mod plots;
+pub mod table_export;
 
 use std::io::Read;
 use std::path::{Path, PathBuf};

@@ -10,8 +10,8 @@
 //! only the frames built from it.
 
 use crate::config::ConfigSet;
-use crate::config::plan::{BoostStart, Plan};
-use crate::engine::physics::{air, battery as bat};
+use crate::config::run_plan::{BoostStart, Plan};
+use crate::engine::physics::{air, pack as bat};
 use crate::units::G0;
 
 /// Lowest engine speed during a launch: the clutch slips above it.

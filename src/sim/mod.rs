@@ -12,7 +12,7 @@ pub mod rng;
 use std::collections::VecDeque;
 use std::sync::Arc;
 
-use crate::config::plan::{FaultKind, Plan, Trigger};
+use crate::config::run_plan::{FaultKind, Plan, Trigger};
 use crate::config::signals::Signal;
 use crate::config::{ConfigSet, Signals};
 use crate::decode::can::encode_signal;

@@ -10,7 +10,7 @@
 
 pub mod file;
 pub mod link;
-pub mod serial;
+pub mod serial_port;
 pub mod socketcan;
 
 pub use file::FileSource;

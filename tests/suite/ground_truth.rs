@@ -51,7 +51,7 @@ fn drag_area_within_2_percent_after_10_s_of_full_throttle() {
 /// The steady scenario: steady wind, no gusts, no faults, the battery
 /// derating exactly as the vehicle file says, boost from the launch; the
 /// car's drag 2 % above the vehicle file's.
-fn steady_plan() -> config::plan::Plan {
+fn steady_plan() -> config::run_plan::Plan {
     let text = config::EMBEDDED_PLAN
         .1
         .replace("gust_mps = 1.2", "gust_mps = 0.0")
@@ -62,7 +62,7 @@ fn steady_plan() -> config::plan::Plan {
         .replace("derate_time_constant_s = 17.0", "derate_time_constant_s = 24.0")
         .replace("derate_floor = 0.40", "derate_floor = 0.66");
     match config::validate_text("steady.toml", &text).parsed {
-        Some(Parsed::Plan(p)) => config::plan::Plan { faults: vec![], ..p },
+        Some(Parsed::Plan(p)) => config::run_plan::Plan { faults: vec![], ..p },
         _ => panic!("{:?}", config::validate_text("steady.toml", &text).errors),
     }
 }
@@ -139,7 +139,7 @@ fn boost_time_left_within_10_percent_once_the_fit_converges() {
     // file says, so the power limit binds once the fit has found that out.
     let text = config::EMBEDDED_PLAN.1.replace("gust_mps = 1.2", "gust_mps = 0.0");
     let plan = match config::validate_text("steady-wind.toml", &text).parsed {
-        Some(Parsed::Plan(p)) => config::plan::Plan { faults: vec![], ..p },
+        Some(Parsed::Plan(p)) => config::run_plan::Plan { faults: vec![], ..p },
         _ => panic!(),
     };
     let r = rehearse(plan);

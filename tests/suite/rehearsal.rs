@@ -4,7 +4,7 @@
 
 use std::sync::Arc;
 
-use termvel::config::plan::Plan;
+use termvel::config::run_plan::Plan;
 use termvel::config::{self, ConfigSet, Parsed};
 use termvel::engine::alerts::Transition;
 use termvel::engine::{Engine, EngineOptions, Snapshot};

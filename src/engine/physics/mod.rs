@@ -26,7 +26,7 @@
 //!   margin.
 
 pub mod air;
-pub mod battery;
 pub mod braking;
 pub mod motion;
+pub mod pack;
 pub mod roadload;

@@ -12,7 +12,7 @@ use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, LegendPo
 
 use crate::engine::Snapshot;
 use crate::engine::derived::BoostLimit;
-use crate::engine::physics::battery::derating_ratio;
+use crate::engine::physics::pack::derating_ratio;
 use crate::ui::app::App;
 use crate::ui::format;
 use crate::ui::widgets::meter::Meter;

@@ -3,7 +3,7 @@
 //! adapters (the one Linux's slcan driver implements), or termvel's own
 //! `key=value` line telemetry. The source reads, splits lines and stamps
 //! them on arrival; the decode layer says once what each line is
-//! ([`decode::serial::payload_of`]): an adapter frame becomes a CAN event, an
+//! ([`decode::serial_line::payload_of`]): an adapter frame becomes a CAN event, an
 //! adapter line that does not parse a bad line carrying its error (the
 //! decoder counts it, the recording keeps it as a line). A port that
 //! vanishes (end of file, an I/O error: a USB device unplugged) is reported
@@ -153,7 +153,7 @@ impl LineSplitter {
 /// a bad line with its error, a sentence) is the decode layer's call, made
 /// once here.
 pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Option<Event> {
-    decode::serial::payload_of(proto.source_kind(), line).map(|p| Event::new(t_ns, source, p))
+    decode::serial_line::payload_of(proto.source_kind(), line).map(|p| Event::new(t_ns, source, p))
 }
 
 /// Reads `spec.path` until shutdown.
