@@ -515,7 +515,8 @@ impl<'a> Model<'a> {
     pub fn cells_energy_j(&self, t_s: f64) -> f64 {
         let rate = |t: f64| {
             let p = self.pack_terminal_w(bat::derating_ratio(t, self.derate_tau_s, self.derate_floor));
-            current_at_power_a(self.ocv_v, self.veh.battery.resistance_ohm, p).map_or(p, |i| self.ocv_v * i)
+            bat::current_at_power_checked_a(self.ocv_v, self.veh.battery.resistance_ohm, p)
+                .map_or(p, |i| self.ocv_v * i)
         };
         let n = (t_s / 0.01).ceil().max(1.0) as usize;
         let h = t_s / n as f64;
@@ -623,19 +624,6 @@ pub struct BrakeRun {
     pub energy_j: f64,
 }
 
-/// Discharge current at terminal power P, A, in the internal-resistance
-/// model P = I·(OCV − I·R): the smaller root of R·I² − OCV·I + P = 0,
-/// I = (OCV − √(OCV² − 4·R·P))/(2R). None when P exceeds the pack's
-/// matched-load maximum OCV²/(4R).
-pub fn current_at_power_a(ocv_v: f64, r_ohm: f64, p_w: f64) -> Option<f64> {
-    let disc = ocv_v * ocv_v - 4.0 * r_ohm * p_w;
-    if disc < 0.0 {
-        return None;
-    }
-    // The cancellation-free form of the smaller root: 2P/(OCV + √disc).
-    Some(2.0 * p_w / (ocv_v + disc.sqrt()))
-}
-
 /// One row of the speed table.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Row {
@@ -736,7 +724,7 @@ fn check_speed(v: f64) -> Result<(), EnvelopeError> {
 
 fn electric(veh: &Vehicle, ocv_v: f64, p_w: f64) -> Option<Electric> {
     let b = &veh.battery;
-    let i = current_at_power_a(ocv_v, b.resistance_ohm, p_w)?;
+    let i = bat::current_at_power_checked_a(ocv_v, b.resistance_ohm, p_w)?;
     let pack_v = ocv_v - i * b.resistance_ohm;
     Some(Electric {
         power_w: p_w,
@@ -965,8 +953,8 @@ mod tests {
     fn current_at_power_solves_the_quadratic() {
         // REFERENCES.md battery example: OCV 3.7 V, R 25 mΩ; at 108 W the
         // current is 40 A (terminal 2.70 V).
-        let i = current_at_power_a(3.7, 0.025, 108.0).unwrap();
+        let i = bat::current_at_power_checked_a(3.7, 0.025, 108.0).unwrap();
         assert!((i - 40.0).abs() < 1e-9, "{i}");
-        assert_eq!(current_at_power_a(3.7, 0.025, 3.7 * 3.7 / 0.1 + 1.0), None);
+        assert_eq!(bat::current_at_power_checked_a(3.7, 0.025, 3.7 * 3.7 / 0.1 + 1.0), None);
     }
 }

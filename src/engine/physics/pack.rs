@@ -76,6 +76,13 @@ pub fn current_at_power_a(ocv_v: f64, r_ohm: f64, p_w: f64) -> f64 {
     (ocv_v - disc.sqrt()) / (2.0 * r_ohm)
 }
 
+/// As [`current_at_power_a`], but `None` when `p_w` is more than the cells
+/// can deliver (above OCV²/(4R), the matched load): for answers that must
+/// say "not possible" rather than give the most there is.
+pub fn current_at_power_checked_a(ocv_v: f64, r_ohm: f64, p_w: f64) -> Option<f64> {
+    (ocv_v * ocv_v - 4.0 * r_ohm * p_w >= 0.0).then(|| current_at_power_a(ocv_v, r_ohm, p_w))
+}
+
 /// Largest constant discharge current, A, that keeps the terminal voltage at
 /// or above V_min for a pulse of `dt_s`, first-order equivalent circuit
 /// (Plett, BMS vol. II; IEEE TVT 2004):
@@ -232,6 +239,10 @@ mod tests {
         // Beyond the matched-load maximum OCV²/(4R) = 400 kW: the current
         // stops at the matched load OCV/(2R) = 2000 A instead of NaN.
         assert_eq!(current_at_power_a(400.0, 0.1, 500e3), 2000.0);
+        // Above the matched-load maximum (400²/(4·0.1) = 400 kW) the checked
+        // form says so instead of giving the most there is.
+        assert_eq!(current_at_power_checked_a(400.0, 0.1, 500e3), None);
+        assert!(close(current_at_power_checked_a(3.7, 0.025, 108.0).unwrap(), 40.0, 1e-9));
     }
 
     #[test]
