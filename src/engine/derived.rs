@@ -205,6 +205,23 @@ pub struct RoadModel {
     pub converged: bool,
 }
 
+impl RoadModel {
+    /// The road load of `veh` at `v_mps` on `grade` with this air and these
+    /// coefficients (`physics::roadload::road_load`).
+    pub fn road_load(&self, veh: &Vehicle, v_mps: f64, grade: f64) -> roadload::RoadLoad {
+        roadload::road_load(&roadload::RoadLoadInputs {
+            v_mps,
+            wind_mps: self.wind_mps,
+            rho: self.rho,
+            cda_m2: self.cda_m2,
+            crr0: self.crr,
+            crr2_s2_m2: veh.crr2_s2_m2,
+            mass_kg: veh.mass_kg,
+            grade,
+        })
+    }
+}
+
 /// The derating curve the boost model follows: its time constant, its floor
 /// relative to a fresh pack, and whether it is the fit (else the vehicle
 /// file's).
@@ -443,16 +460,7 @@ pub fn road_load_step(
     boost: &BoostModel,
 ) -> RoadLoadView {
     let v = v_mps;
-    let rl = roadload::road_load(&roadload::RoadLoadInputs {
-        v_mps: v,
-        wind_mps: model.wind_mps,
-        rho: model.rho,
-        cda_m2: model.cda_m2,
-        crr0: model.crr,
-        crr2_s2_m2: veh.crr2_s2_m2,
-        mass_kg: veh.mass_kg,
-        grade,
-    });
+    let rl = model.road_load(veh, v, grade);
     let inertial = inp.accel.map_or(0.0, |(a, _)| roadload::inertial_power_w(veh.effective_mass_kg(), a, v));
     let wheel_w = match (inp.engine_w, inp.motor_w) {
         (None, None) => None,
@@ -480,17 +488,7 @@ pub fn road_load_step(
 /// through the driveline and the motor, (RL(vt)/η_drive − P_engine(vt))/η_motor,
 /// floored at 0.
 pub fn boost_need_w(veh: &Vehicle, model: &RoadModel, vt: f64) -> f64 {
-    let rl_target = roadload::road_load(&roadload::RoadLoadInputs {
-        v_mps: vt,
-        wind_mps: model.wind_mps,
-        rho: model.rho,
-        cda_m2: model.cda_m2,
-        crr0: model.crr,
-        crr2_s2_m2: veh.crr2_s2_m2,
-        mass_kg: veh.mass_kg,
-        grade: 0.0,
-    })
-    .total_w;
+    let rl_target = model.road_load(veh, vt, 0.0).total_w;
     ((rl_target / veh.driveline_efficiency - veh.full_load_power_w(vt)) / veh.motor_efficiency).max(0.0)
 }
 
