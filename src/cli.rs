@@ -38,6 +38,15 @@ pub enum Command {
     Envelope(EnvelopeArgs),
     /// Validate config files and print what they define, without running anything.
     Check(CheckArgs),
+    /// Write the man pages and the bash, zsh and fish completions into a directory.
+    ShellFiles(ShellFilesArgs),
+}
+
+#[derive(Args, Debug)]
+pub struct ShellFilesArgs {
+    /// Where to write them (created if missing): man/man1/ and completions/ below it.
+    #[arg(value_name = "DIR")]
+    pub dir: PathBuf,
 }
 
 #[derive(Args, Debug)]

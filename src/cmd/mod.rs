@@ -11,6 +11,7 @@ pub mod play;
 pub mod rehearse;
 pub mod replay;
 pub mod report;
+pub mod shell_files;
 
 use std::fs::File;
 use std::path::PathBuf;
@@ -29,6 +30,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
     let result = match cli.command {
         None => rehearse::run(crate::cli::RehearseArgs::default()),
         Some(Command::Check(a)) => check::run(&a),
+        Some(Command::ShellFiles(a)) => shell_files::run(&a),
         Some(Command::Replay(a)) => replay::run(a),
         Some(Command::Rehearse(a)) => rehearse::run(a),
         Some(Command::Live(a)) => live::run(a),

@@ -145,3 +145,54 @@ fn a_headless_rehearsal_runs_the_demo_plan() {
     let v: serde_json::Value = serde_json::from_str(&last).unwrap();
     assert!(v["summary"]["can_frames"].as_u64().unwrap() > 30_000);
 }
+
+// Issue 15, item 24: man pages and shell completions generated from the clap
+// definitions, and a documented command that installs them.
+#[test]
+fn shell_files_cover_every_command_and_install_for_a_user() {
+    let dir = tempfile::tempdir().expect("a temporary directory");
+    let out_dir = dir.path().join("out");
+    let o = termvel(&["shell-files", out_dir.to_str().expect("UTF-8 path")]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    // Every command `termvel --help` lists has its page and appears in the
+    // completions (the list is read from the help, so a new command counts).
+    let help = stdout(&termvel(&["--help"]));
+    let commands: Vec<String> = help
+        .lines()
+        .skip_while(|l| !l.starts_with("Commands:"))
+        .skip(1)
+        .take_while(|l| l.starts_with("  "))
+        .filter_map(|l| l.split_whitespace().next().map(str::to_string))
+        .filter(|c| c != "help")
+        .collect();
+    assert!(commands.len() >= 9 && commands.contains(&"replay".to_string()), "{help}");
+    let bash = std::fs::read_to_string(out_dir.join("completions/termvel.bash")).expect("bash completions");
+    for c in &commands {
+        let page = std::fs::read_to_string(out_dir.join(format!("man/man1/termvel-{c}.1")))
+            .unwrap_or_else(|e| panic!("no man page for {c}: {e}"));
+        assert!(page.contains(&format!(".TH termvel-{c} 1")), "{c}: {page}");
+        assert!(bash.contains(c.as_str()), "{c} missing from the bash completions");
+    }
+    let replay = std::fs::read_to_string(out_dir.join("man/man1/termvel-replay.1")).expect("replay page");
+    assert!(replay.contains("as\\-fast\\-as\\-possible"), "the replay page lacks its options");
+    let syntax = std::process::Command::new("bash")
+        .arg("-n")
+        .arg(out_dir.join("completions/termvel.bash"))
+        .status()
+        .expect("bash runs");
+    assert!(syntax.success(), "the bash completion script does not parse");
+    // The documented install command, into a throwaway home.
+    let home = dir.path().join("home");
+    std::fs::create_dir_all(&home).expect("home");
+    let o = std::process::Command::new(crate::util::root().join("scripts/install-shell-files.sh"))
+        .arg(env!("CARGO_BIN_EXE_termvel"))
+        .env("HOME", &home)
+        .env_remove("XDG_DATA_HOME")
+        .output()
+        .expect("the install script runs");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    assert!(home.join(".local/share/man/man1/termvel.1").is_file());
+    assert!(home.join(".local/share/bash-completion/completions/termvel").is_file());
+    assert!(home.join(".local/share/zsh/site-functions/_termvel").is_file());
+    assert!(home.join(".config/fish/completions/termvel.fish").is_file());
+}
