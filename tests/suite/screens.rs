@@ -120,3 +120,85 @@ fn print_screens() {
         println!("{}", render(&app, 160, 48));
     }
 }
+
+/// The lines of `text` that contain `needle`, for messages.
+fn lines_with<'a>(text: &'a str, needle: &str) -> Vec<&'a str> {
+    text.lines().filter(|l| l.contains(needle)).collect()
+}
+
+// Issue 15, item 6: text was cut at every size (`139 kW for the targe`,
+// `(CIPM-20`, `fi`, `curren`, `syste`): words shorten, figures and units stay.
+#[test]
+fn battery_and_power_text_fits_at_80_columns() {
+    let mut app = demo_app(60.0, false);
+    for (w, h) in [(80, 24), (120, 40), (200, 60)] {
+        app.screen = Screen::Battery;
+        let text = render(&app, w, h);
+        let needed = lines_with(&text, "needed");
+        assert!(needed.iter().any(|l| l.contains("kW for target")), "{w}×{h}: {needed:?}");
+        // Each note is whole, in its long or short form.
+        for (row, whole) in [
+            ("HPPC max", &["current-limited", "V- and I-limited"][..]),
+            ("reported", &["by the battery system", "by the pack"][..]),
+            ("model ", &["fitted ✓", " ✓", "not converged", " ?"][..]),
+        ] {
+            let l = lines_with(&text, row);
+            assert!(l.iter().any(|l| whole.iter().any(|w| l.contains(w))), "{w}×{h}: {row} cut: {l:?}");
+        }
+        app.screen = Screen::Power;
+        let text = render(&app, w, h);
+        assert!(lines_with(&text, " air ").iter().any(|l| l.contains("kg/m³")), "{w}×{h}:\n{text}");
+        assert!(text.contains(" old"), "{w}×{h}: the air's age is cut:\n{text}");
+    }
+}
+
+// Issue 15, item 8: the power chart's legend named series with no sample,
+// drew `engine only ···` as scattered dots and `now ■` as `█`, and covered
+// data. Now a legend line above the chart shows each series' own mark.
+#[test]
+fn the_power_chart_legend_shows_the_marks_it_uses() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Power;
+    let text = render(&app, 120, 40);
+    let legend = lines_with(&text, "road load  ");
+    assert_eq!(legend.len(), 1, "{text}");
+    for sample in ["⣀⣀ road load", "•• available", "▄▄ engine only"] {
+        assert!(legend[0].contains(sample), "{sample} missing: {legend:?}");
+    }
+    // The chart below uses those marks: dots for available, low bars for the
+    // engine alone, braille for the road load.
+    let chart: String = text.lines().skip_while(|l| !l.contains("road load  ")).skip(1).collect();
+    assert!(chart.contains('•') && chart.contains('▄') && chart.contains('⣀'), "{chart}");
+}
+
+// Issue 15, items 13 and 15: `power 0.0 s` read as "boost over" while the
+// pack still delivered; the `┃` on the meters was not labelled.
+#[test]
+fn boost_left_and_meter_markers_say_what_they_are() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Battery;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("┃ rated"), "{text}");
+    assert!(text.contains("boost left at the need ("), "{text}");
+    assert!(text.contains("charge") && text.contains("derating") && text.contains("heat"), "{text}");
+    app.screen = Screen::Power;
+    assert!(render(&app, 80, 24).contains("┃ available"));
+}
+
+// Issue 15, item 16: at 80×24 the help lost its last line and the caution
+// and could not scroll.
+#[test]
+fn help_keeps_the_caution_and_scrolls_at_80x24() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Help;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("not a safety system, not a braking cue of record"), "{text}");
+    assert!(text.contains("substitute for marshals"), "{text}");
+    assert!(text.contains("PgUp PgDn scroll"), "no sign of more: {text}");
+    assert!(!text.contains("0 s on the derating line"), "the end should be below the fold: {text}");
+    app.scroll = 100;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("0 s on the derating line"), "scrolled to the end: {text}");
+    assert!(text.contains("Meters: █ filled"), "{text}");
+    assert!(text.contains("substitute for marshals"), "{text}");
+}

@@ -36,7 +36,7 @@ fn an_engineer_walks_through_the_screens() {
     assert!(t.alternate_on(), "a full-screen program uses the alternate screen");
     for (key, expect) in [
         ("2", "road load now"),
-        ("3", "deliverable power and boost left"),
+        ("3", "deliverable power · ┃ rated"),
         ("4", "sources"),
         ("5", "channels"),
         ("?", "keys"),

@@ -37,7 +37,12 @@ fn draw_numbers(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let block = Block::new().borders(Borders::TOP).title(Span::styled(" pack ", t.heading()));
     let inner = block.inner(area);
     f.render_widget(block, area);
-    let kv = |k: &str, v: String, note: String| {
+    // The figure and its unit always show; the note after it gives way to a
+    // shorter one (or none) when the pane is narrow.
+    let room = inner.width as usize;
+    let kv = |k: &str, v: String, notes: &[String]| {
+        let used = 13 + v.chars().count();
+        let note = notes.iter().find(|n| used + n.chars().count() <= room).cloned().unwrap_or_default();
         Line::from(vec![
             Span::styled(format!(" {k:<12}"), t.label()),
             Span::styled(v, t.value()),
@@ -45,34 +50,54 @@ fn draw_numbers(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ])
     };
     let model = match (b.ocv_v, b.resistance_ohm) {
-        (Some(o), Some(r)) => format!("{:.1} V, {:.1} ± {:.1} mΩ", o.value, r.value * 1e3, r.sd * 1e3),
+        (Some(o), Some(r)) => format!("{:.1} V {:.1}±{:.1} mΩ", o.value, r.value * 1e3, r.sd * 1e3),
         _ => format::UNKNOWN.into(),
     };
     let heating = b.heating_c_per_s.map_or(format::UNKNOWN.to_string(), |h| format!("{:+.3} °C/s", h));
     let lines = vec![
-        kv("power", format::power(u, b.power_w), format!("  {} kW/kWh", format::num(b.discharge_rate_kw_per_kwh, 1))),
+        kv(
+            "power",
+            format::power(u, b.power_w),
+            &[format!("  {} kW/kWh", format::num(b.discharge_rate_kw_per_kwh, 1))],
+        ),
         kv(
             "charge",
             b.soc.map_or(format::UNKNOWN.into(), |s| format!("{:.1} %", s * 100.0)),
-            format!("  reserve {:.0} %", cfg.soc_reserve * 100.0),
+            &[format!("  reserve {:.0} %", cfg.soc_reserve * 100.0)],
         ),
         kv(
             "above res.",
             b.energy_above_reserve_j.map_or(format::UNKNOWN.into(), |e| format!("{:.2} kWh", e / 3.6e6)),
-            format!("  of {:.1} kWh", cfg.energy_j / 3.6e6),
+            &[format!("  of {:.1} kWh", cfg.energy_j / 3.6e6)],
         ),
-        kv("model", model, if b.model_converged { "  fitted ✓".into() } else { "  not converged".into() }),
-        kv("HPPC max", format::power(u, b.hppc_max_w), "  voltage- and current-limited".into()),
-        kv("reported", format::power(u, b.reported_limit_w), "  by the battery system".into()),
+        kv(
+            "model",
+            model,
+            &(if b.model_converged {
+                ["  fitted ✓".to_string(), " ✓".to_string()]
+            } else {
+                ["  not converged".to_string(), " ?".to_string()]
+            }),
+        ),
+        kv(
+            "HPPC max",
+            format::power(u, b.hppc_max_w),
+            &["  voltage- and current-limited".into(), "  V- and I-limited".into()],
+        ),
+        kv(
+            "reported",
+            format::power(u, b.reported_limit_w),
+            &["  by the battery system".into(), "  by the pack".into()],
+        ),
         kv(
             "temperature",
             b.temp_c.map_or(format::UNKNOWN.into(), |t| format!("{t:.1} °C")),
-            format!("  limit {:.0} °C, {heating}", cfg.temp_limit_c),
+            &[format!("  limit {:.0} °C, {heating}", cfg.temp_limit_c), format!("  limit {:.0} °C", cfg.temp_limit_c)],
         ),
         kv(
             "in boost",
             format!("{:.1} s", b.time_in_boost_s),
-            if b.boosting { "  boosting now".into() } else { "  not boosting".into() },
+            &[if b.boosting { "  boosting now".into() } else { "  not boosting".into() }],
         ),
     ];
     f.render_widget(Paragraph::new(lines), inner);
@@ -86,7 +111,7 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let l = &d.boost_left;
     let block = Block::new()
         .borders(Borders::TOP | Borders::LEFT)
-        .title(Span::styled(" deliverable power and boost left ", t.heading()));
+        .title(Span::styled(" deliverable power · ┃ rated ", t.heading()));
     let inner = block.inner(area);
     f.render_widget(block, area);
     let rows = Layout::vertical([Constraint::Length(1); 8]).split(inner);
@@ -121,21 +146,31 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             l.need_w,
             b.rated_w * 1.1,
             Some(b.rated_w),
-            format!("{} for the target", format::power(u, l.need_w)),
+            format!("{} for target", format::power(u, l.need_w)),
             t.behind(),
         ),
         rows[1],
     );
+    // The three limits on how long the pack can still give what the target
+    // needs; 0 s on the derating line means it already gives less, not that
+    // the pack has stopped.
+    let need = format::power(u, l.need_w);
+    f.render_widget(Paragraph::new(Line::styled(format!(" boost left at the need ({need}):"), t.label())), rows[2]);
     let lim = |k: BoostLimit, v: Option<f64>| {
         let bind = l.binding == Some(k);
-        let text = format!("{}{}", format::seconds(v), if bind { "  ◀ binding" } else { "" });
+        let below_now = k == BoostLimit::Power && v == Some(0.0);
+        let text = match (below_now, bind) {
+            (true, _) => "below need now ◀".to_string(),
+            (false, true) => format!("{} ◀ binding", format::seconds(v)),
+            (false, false) => format::seconds(v),
+        };
         let style = if bind { t.limit() } else { t.good() };
         (v.map(|x| x.min(120.0)), text, style)
     };
     for (i, (k, label, v)) in [
-        (BoostLimit::Energy, "energy", l.energy_s),
-        (BoostLimit::Power, "power", l.power_s),
-        (BoostLimit::Thermal, "thermal", l.thermal_s),
+        (BoostLimit::Energy, "charge", l.energy_s),
+        (BoostLimit::Power, "derating", l.power_s),
+        (BoostLimit::Thermal, "heat", l.thermal_s),
     ]
     .into_iter()
     .enumerate()

@@ -1,12 +1,30 @@
-//! The help screen: every key, how to read the screens, and the caution.
+//! The help screen: every key, how to read the screens (states, chart marks,
+//! meter markers), and the caution. The caution stays at the bottom; the
+//! rest scrolls with ↑ ↓ PgUp PgDn when the terminal is too short for it.
 
 use ratatui::Frame;
-use ratatui::layout::Rect;
+use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Paragraph, Wrap};
 
 use crate::CAUTION;
 use crate::ui::app::{App, KEYS};
+
+/// How to read the screens: states, chart marks and meter markers.
+const READING: &[&str] = &[
+    "States read as words and marks, not colour alone: !! ALARM, ! CAUTN, i INFO;",
+    "sources ▲ up, ◆ stale, ▼ down, ↻ retrying; channels STALE, OUT OF RANGE.",
+    "Unconverged estimates are marked (prior, unconverged): the vehicle file's",
+    "values are used. The peak shows a band from the drag estimate's spread.",
+    "Alerts stay listed until acknowledged (a), even after they clear.",
+    "Meters: █ filled to the value, ┃ a reference named in the pane's title",
+    "(run screen: demand ┃ available, charge ┃ reserve, battery ┃ rated;",
+    "power screen ┃ available; battery screen ┃ rated).",
+    "Charts: each series has its own mark, named with a sample in the line",
+    "above the chart or in its title, so they read without colour.",
+    "Boost left is the time the pack can still give what the target needs:",
+    "0 s on the derating line means it already gives less, not that it stopped.",
+];
 
 pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let t = &app.theme;
@@ -16,20 +34,27 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     }
     lines.push(Line::raw(""));
     lines.push(Line::styled(" reading the screens", t.heading()));
-    for l in [
-        "   States read as words and marks, not colour alone: !! ALARM, ! CAUTN, i INFO;",
-        "   sources ▲ up, ◆ stale, ▼ down, ↻ retrying; channels STALE, OUT OF RANGE.",
-        "   Unconverged estimates are marked (prior, unconverged): the vehicle file's",
-        "   values are used. The peak shows a band from the drag estimate's spread.",
-        "   Alerts stay listed until acknowledged (a), even after they clear.",
-    ] {
-        lines.push(Line::styled(l, t.label()));
+    for l in READING {
+        lines.push(Line::styled(format!("   {l}"), t.label()));
     }
-    lines.push(Line::raw(""));
-    lines.push(Line::styled(" caution", t.heading()));
-    lines.push(Line::styled(format!("   {CAUTION}"), t.caution_line()));
-    lines
-        .push(Line::styled("   termvel is not a safety system, not a braking cue of record, and no", t.caution_line()));
-    lines.push(Line::styled("   substitute for marshals, scrutineering or the run plan.", t.caution_line()));
-    f.render_widget(Paragraph::new(lines).wrap(Wrap { trim: false }), area);
+    let caution = vec![
+        Line::styled(format!("   {CAUTION}"), t.caution_line()),
+        Line::styled("   termvel is not a safety system, not a braking cue of record, and no", t.caution_line()),
+        Line::styled("   substitute for marshals, scrutineering or the run plan.", t.caution_line()),
+    ];
+    let [body, foot] = Layout::vertical([Constraint::Min(1), Constraint::Length(caution.len() as u16)]).areas(area);
+    // The scroll position is the screens' shared one (↑ ↓ PgUp PgDn), held so
+    // the last line stays at the bottom; a line says there is more.
+    let total = lines.len();
+    let shown = body.height as usize;
+    let max_scroll = total.saturating_sub(shown.saturating_sub(1).max(1));
+    let top = if total > shown { app.scroll.min(max_scroll) } else { 0 };
+    let mut visible: Vec<Line> = lines.into_iter().skip(top).collect();
+    if total > shown {
+        let last = (top + shown - 1).min(total);
+        visible.truncate(shown.saturating_sub(1));
+        visible.push(Line::styled(format!(" lines {}–{last} of {total} · ↑ ↓ PgUp PgDn scroll", top + 1), t.dim()));
+    }
+    f.render_widget(Paragraph::new(visible).wrap(Wrap { trim: false }), body);
+    f.render_widget(Paragraph::new(caution), foot);
 }

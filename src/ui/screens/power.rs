@@ -9,7 +9,7 @@ use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, LegendPosition, Paragraph};
+use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, Paragraph};
 
 use crate::engine::Snapshot;
 use crate::engine::derived::AirOrigin;
@@ -33,7 +33,8 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
 fn draw_breakdown(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
     let u = app.units;
-    let block = Block::new().borders(Borders::TOP).title(Span::styled(" road load now ", t.heading()));
+    // The `┃` on every meter here is the power available at full demand.
+    let block = Block::new().borders(Borders::TOP).title(Span::styled(" road load now · ┃ available ", t.heading()));
     let inner = block.inner(area);
     f.render_widget(block, area);
     let Some(r) = &s.derived.road_load else {
@@ -100,8 +101,12 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         .title(Span::styled(" drag and rolling estimate ", t.heading()));
     let inner = block.inner(area);
     f.render_widget(block, area);
+    // Below ~48 columns the words get shorter; the figures and units stay.
+    let narrow = inner.width < 48;
     let state = if e.converged {
         Span::styled("converged ✓", t.good())
+    } else if narrow {
+        Span::styled("not converged: file values used", t.doubtful())
     } else {
         Span::styled("not converged: the vehicle file's values are used", t.doubtful())
     };
@@ -119,36 +124,55 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ]),
         Line::from(vec![Span::raw(" "), state]),
         Line::styled(
-            format!(" {} samples over {:.0} m/s of speed; {} coasting", e.samples, e.speed_span_mps, e.coast_samples),
+            if narrow {
+                format!(" {} samples, {:.0} m/s span, {} coast", e.samples, e.speed_span_mps, e.coast_samples)
+            } else {
+                format!(
+                    " {} samples over {:.0} m/s of speed; {} coasting",
+                    e.samples, e.speed_span_mps, e.coast_samples
+                )
+            },
             t.label(),
         ),
     ];
     match e.coast {
+        Some((c, r)) if narrow => lines.push(Line::styled(
+            format!(" coast: CdA {:.3}±{:.3} Crr {:.4}±{:.4}", c.value, c.sd, r.value, r.sd),
+            t.label(),
+        )),
         Some((c, r)) => lines.push(Line::styled(
             format!(" coast-down alone: CdA {:.3} ± {:.3}, Crr {:.4} ± {:.4}", c.value, c.sd, r.value, r.sd),
             t.label(),
         )),
+        None if narrow => lines.push(Line::styled(" coast-down: too little coasting", t.dim())),
         None => lines.push(Line::styled(" coast-down alone: not enough coasting yet", t.dim())),
     }
-    let air = match d.air_origin {
-        Some(AirOrigin::Measured { age_s, humidity_assumed }) => Span::styled(
-            format!(
-                "measured (CIPM-2007), {} old{}",
-                format::age(age_s),
-                if humidity_assumed { ", humidity assumed 50 %" } else { "" }
-            ),
+    // The density and its origin on one line, how old and how it was
+    // computed on the next when the pane is narrow.
+    let (origin, detail, style) = match d.air_origin {
+        Some(AirOrigin::Measured { age_s, humidity_assumed }) => (
+            "measured".to_string(),
+            format!("{} old, CIPM-2007{}", format::age(age_s), if humidity_assumed { ", RH 50 % assumed" } else { "" }),
             if age_s > 5.0 { t.doubtful() } else { t.label() },
         ),
-        _ => Span::styled(
-            format!("standard atmosphere at {:.0} m: no weather data", app.info.config.track.elevation_m),
+        _ => (
+            format!("ISA at {:.0} m", app.info.config.track.elevation_m),
+            "no weather data: standard atmosphere".to_string(),
             t.doubtful(),
         ),
     };
-    lines.push(Line::from(vec![
+    let mut air = vec![
         Span::styled(" air ", t.label()),
         Span::styled(format!("{:.4} kg/m³ ", d.air_density), t.value()),
-        air,
-    ]));
+        Span::styled(origin, style),
+    ];
+    if narrow {
+        lines.push(Line::from(air));
+        lines.push(Line::styled(format!("     {detail}"), style));
+    } else {
+        air.push(Span::styled(format!(", {detail}"), style));
+        lines.push(Line::from(air));
+    }
     let accel = match d.accel_mps2 {
         Some(a) => format!("{a:.2} m/s² ({})", d.accel_source),
         None => format::UNKNOWN.into(),
@@ -177,39 +201,26 @@ fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         (Some(v), Some(w)) => vec![(u.speed(v), u.power(w))],
         _ => vec![],
     };
+    // Each series has its own mark, so the chart reads without colour; the
+    // legend is a line of its own above the chart (ratatui's legend box has
+    // no samples and covers data), drawn with the very marks used.
     let datasets = vec![
-        Dataset::default()
-            .name("road load")
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Line)
-            .style(t.behind())
-            .data(&road),
-        Dataset::default()
-            .name("available")
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Line)
-            .style(t.good())
-            .data(&avail),
-        Dataset::default()
-            .name("engine only ···")
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(t.dim())
-            .data(&engine_only),
-        Dataset::default()
-            .name("now ■")
-            .marker(Marker::Block)
-            .graph_type(GraphType::Scatter)
-            .style(t.limit())
-            .data(&now),
+        Dataset::default().marker(Marker::Braille).graph_type(GraphType::Line).style(t.behind()).data(&road),
+        Dataset::default().marker(Marker::Dot).graph_type(GraphType::Line).style(t.good()).data(&avail),
+        Dataset::default().marker(Marker::Bar).graph_type(GraphType::Line).style(t.dim()).data(&engine_only),
+        Dataset::default().marker(Marker::Block).graph_type(GraphType::Scatter).style(t.limit()).data(&now),
     ];
     let su = u.speed_unit();
     let pu = u.power_unit();
+    let block = Block::new().borders(Borders::TOP).title(Span::styled(
+        format!(" power at the wheels ({pu}) against speed ({su}), level road, no wind "),
+        t.heading(),
+    ));
+    let inner = block.inner(area);
+    f.render_widget(block, area);
+    let [legend_row, chart_area] = Layout::vertical([Constraint::Length(1), Constraint::Min(3)]).areas(inner);
+    f.render_widget(Paragraph::new(legend_line(app, !now.is_empty())), legend_row);
     let chart = Chart::new(datasets)
-        .block(Block::new().borders(Borders::TOP).title(Span::styled(
-            format!(" power at the wheels ({pu}) against speed ({su}), level road, no wind "),
-            t.heading(),
-        )))
         .x_axis(
             Axis::default()
                 .bounds([0.0, u.speed(vmax)])
@@ -222,7 +233,25 @@ fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
                 .labels(["0".to_string(), format!("{:.0}", pmax / 2.0), format!("{pmax:.0}")])
                 .style(t.label()),
         )
-        .legend_position(Some(LegendPosition::TopLeft))
-        .hidden_legend_constraints((Constraint::Ratio(1, 2), Constraint::Ratio(1, 2)));
-    f.render_widget(chart, area);
+        .legend_position(None);
+    f.render_widget(chart, chart_area);
+}
+
+/// The power chart's legend: each series with a sample of the mark it is
+/// drawn with (braille line, dots, low bars, a block).
+pub fn legend_line(app: &App, has_now: bool) -> Line<'static> {
+    let t = &app.theme;
+    let mut spans = vec![
+        Span::styled(" ⣀⣀ ", t.behind()),
+        Span::styled("road load  ", t.label()),
+        Span::styled("•• ", t.good()),
+        Span::styled("available  ", t.label()),
+        Span::styled("▄▄ ", t.dim()),
+        Span::styled("engine only  ", t.label()),
+    ];
+    if has_now {
+        spans.push(Span::styled("█ ", t.limit()));
+        spans.push(Span::styled("now (measured)", t.label()));
+    }
+    Line::from(spans)
 }
