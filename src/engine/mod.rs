@@ -588,6 +588,8 @@ impl Engine {
                 parse_errors: ds.parse_errors,
                 last_error: ds.last_error,
                 link: h.link,
+                link_reason: (h.link.is_some_and(|l| l != LinkState::Up) && !h.link_reason.is_empty())
+                    .then(|| h.link_reason.clone()),
                 age_s: h.last_t_ns.map(|t| (t_ns - t) as f64 * 1e-9),
                 error_frames: h.error_frames,
                 lost: h.lost,

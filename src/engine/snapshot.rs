@@ -39,6 +39,8 @@ pub struct SourceView {
     pub parse_errors: u64,
     pub last_error: Option<String>,
     pub link: Option<LinkState>,
+    /// Why the link is not up (the source's own words), while it is not.
+    pub link_reason: Option<String>,
     /// Seconds since the source's last event.
     pub age_s: Option<f64>,
     pub error_frames: u64,

@@ -202,3 +202,31 @@ fn help_keeps_the_caution_and_scrolls_at_80x24() {
     assert!(text.contains("Meters: █ filled"), "{text}");
     assert!(text.contains("substitute for marshals"), "{text}");
 }
+
+// Issue 15, item 10: with a serial source that would not open, the feed
+// screen said `last error —` while the alert said why.
+#[test]
+fn the_feed_screen_says_why_a_source_is_down() {
+    use termvel::event::{Event, LinkState, Payload, SourceKind, SourceTable};
+    let cfg = Arc::new(ConfigSet::embedded());
+    let mut sources = SourceTable::default();
+    let gnss = sources.intern("gnss0", SourceKind::Nmea);
+    let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
+    let why = "cannot open /dev/nosuchtty: No such file or directory";
+    let t0 = 1_700_000_000_000_000_000;
+    let mut snaps = Vec::new();
+    engine.feed(&Event::new(t0, gnss, Payload::Link(LinkState::Down, why.into())), &sources, &mut |s| snaps.push(s));
+    engine.feed(
+        &Event::new(t0 + 500_000_000, gnss, Payload::Link(LinkState::Retrying, why.into())),
+        &sources,
+        &mut |s| snaps.push(s),
+    );
+    engine.finish(&sources, &mut |s| snaps.push(s));
+    let mut app = App::new(SessionInfo { mode: Mode::Live, config: cfg }, Theme { color: false });
+    let last = snaps.pop().expect("a snapshot");
+    app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(last), status: StreamStatus::default() }));
+    app.screen = Screen::Feed;
+    let text = render(&app, 200, 40);
+    let row = lines_with(&text, "gnss0");
+    assert!(row.iter().any(|l| l.contains("cannot open /dev/nosuchtty")), "{text}");
+}

@@ -54,7 +54,10 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
                 v.lost.to_string(),
                 v.parse_errors.to_string(),
                 v.error_frames.to_string(),
-                v.last_error.clone().unwrap_or_else(|| "—".into()),
+                // A link that will not come up says why (the same words as
+                // its alert); otherwise the last line that did not parse.
+                crate::printable::printable(v.link_reason.as_deref().or(v.last_error.as_deref()).unwrap_or("—"))
+                    .into_owned(),
             ])
             .style(style)
         })
@@ -114,19 +117,20 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     f.render_widget(block, latency);
     let mut lines = vec![Line::from(vec![
         Span::styled(" p50 ", t.label()),
-        Span::styled(format!("{} µs", l.p50_us), t.value()),
+        Span::styled(latency_text(l.p50_us), t.value()),
         Span::styled("  p99 ", t.label()),
-        Span::styled(format!("{} µs", l.p99_us), t.value()),
+        Span::styled(latency_text(l.p99_us), t.value()),
         Span::styled("  max ", t.label()),
-        Span::styled(format!("{} µs", l.max_us), t.value()),
+        Span::styled(latency_text(l.max_us), t.value()),
         Span::styled(format!("  ({} events)", l.count), t.dim()),
     ])];
-    let most = l.buckets.iter().map(|b| b.1).max().unwrap_or(0).max(1);
+    let rows = histogram_rows(&l.buckets, inner.height.saturating_sub(1) as usize);
+    let most = rows.iter().map(|r| r.1).max().unwrap_or(0).max(1);
     let width = inner.width.saturating_sub(16) as u64;
-    for &(upper, n) in l.buckets.iter().filter(|b| b.1 > 0).take(inner.height.saturating_sub(1) as usize) {
+    for (upper, n) in rows {
         let bar = "█".repeat((n * width / most) as usize);
         lines.push(Line::from(vec![
-            Span::styled(format!(" ≤{:>7} µs ", upper), t.label()),
+            Span::styled(format!(" ≤{:>9} ", latency_text(upper)), t.label()),
             Span::styled(bar, t.ahead()),
             Span::styled(format!(" {n}"), t.dim()),
         ]));
@@ -135,4 +139,67 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         lines.push(Line::styled(" no measurements yet", t.dim()));
     }
     f.render_widget(Paragraph::new(lines), inner);
+}
+
+/// A latency for people: µs below a millisecond, ms below ten seconds, else s.
+pub fn latency_text(us: u64) -> String {
+    match us {
+        0..1_000 => format!("{us} µs"),
+        1_000..10_000 => format!("{:.1} ms", us as f64 / 1e3),
+        10_000..10_000_000 => format!("{:.0} ms", us as f64 / 1e3),
+        _ => format!("{:.0} s", us as f64 / 1e6),
+    }
+}
+
+/// The histogram rows to draw in `rows` lines: every bucket from the first
+/// to the last that holds an event (so p99 and the maximum are always
+/// shown), adjacent buckets merged from the fast end while they do not fit.
+/// Each row is (upper bound µs, count).
+pub fn histogram_rows(buckets: &[(u64, u64)], rows: usize) -> Vec<(u64, u64)> {
+    let (Some(first), Some(last)) = (buckets.iter().position(|b| b.1 > 0), buckets.iter().rposition(|b| b.1 > 0))
+    else {
+        return Vec::new();
+    };
+    let mut out: Vec<(u64, u64)> = buckets[first..=last].to_vec();
+    while out.len() > rows.max(1) {
+        // Merge the two fastest rows: the slow tail is what an engineer reads.
+        let (_, n0) = out.remove(0);
+        out[0].1 += n0;
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Issue 15, item 7: the histogram stopped at the ≤ 512 µs bucket while p99
+    // was 2–4 ms and the maximum 10–45 ms.
+    #[test]
+    fn the_slow_tail_is_always_drawn() {
+        // Power-of-two buckets as the feed screen reads them: 1 µs … 32 768 µs.
+        let mut b: Vec<(u64, u64)> = (0..16).map(|i| (1u64 << i, 0)).collect();
+        b[3].1 = 10; // ≤ 8 µs
+        b[9].1 = 500; // ≤ 512 µs
+        b[12].1 = 7; // ≤ 4 096 µs: the p99
+        b[15].1 = 1; // ≤ 32 768 µs: the maximum
+        let rows = histogram_rows(&b, 5);
+        assert_eq!(rows.len(), 5);
+        assert_eq!(rows.last(), Some(&(32_768, 1)), "the maximum's bucket is the last row");
+        assert!(rows.contains(&(4_096, 7)), "{rows:?}");
+        assert_eq!(rows.iter().map(|r| r.1).sum::<u64>(), 518, "nothing is lost in merging");
+        // Enough room: from the first to the last non-empty bucket, gaps kept.
+        let all = histogram_rows(&b, 40);
+        assert_eq!(all.len(), 13);
+        assert_eq!(all[0], (8, 10));
+        assert!(histogram_rows(&[(1, 0), (2, 0)], 5).is_empty());
+    }
+
+    #[test]
+    fn large_latencies_read_in_ms() {
+        assert_eq!(latency_text(512), "512 µs");
+        assert_eq!(latency_text(4_096), "4.1 ms");
+        assert_eq!(latency_text(32_768), "33 ms");
+        assert_eq!(latency_text(12_000_000), "12 s");
+    }
 }
