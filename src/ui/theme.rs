@@ -96,7 +96,7 @@ impl Theme {
 pub fn severity_tag(s: Severity) -> &'static str {
     match s {
         Severity::Alarm => "!! ALARM",
-        Severity::Caution => " ! CAUTN",
-        Severity::Info => " i INFO ",
+        Severity::Caution => " ! CAUTION",
+        Severity::Info => " i INFO",
     }
 }

@@ -230,3 +230,21 @@ fn the_feed_screen_says_why_a_source_is_down() {
     let row = lines_with(&text, "gnss0");
     assert!(row.iter().any(|l| l.contains("cannot open /dev/nosuchtty")), "{text}");
 }
+
+// Issue 15, item 14: `CAUTN`, an unlabelled `4.3 s`, a 28-column panel at
+// 120 columns, and active and cleared alerts told apart only by a word.
+#[test]
+fn alerts_say_their_state_and_age_in_words_and_marks() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    let text = render(&app, 120, 40);
+    assert!(!text.contains("CAUTN"), "{text}");
+    assert!(text.contains("! CAUTION"), "{text}");
+    let states: Vec<&str> = text.lines().filter(|l| l.contains("● active ·") || l.contains("○ cleared ·")).collect();
+    assert!(!states.is_empty() && states.iter().all(|l| l.contains(" ago")), "{text}");
+    // The panel is a third of the width from 120 columns: its title starts
+    // before column 84 (120 − 28 − a little).
+    let title = text.lines().find(|l| l.contains("alerts · a acknowledges")).expect("the alerts panel");
+    let at = title.chars().position(|c| c == '┌').expect("the panel's corner");
+    assert!(at <= 84, "the alerts panel starts at column {at}: {title}");
+}

@@ -12,7 +12,8 @@ use crate::ui::app::{App, KEYS};
 
 /// How to read the screens: states, chart marks and meter markers.
 const READING: &[&str] = &[
-    "States read as words and marks, not colour alone: !! ALARM, ! CAUTN, i INFO;",
+    "States read as words and marks, not colour alone: !! ALARM, ! CAUTION, i INFO;",
+    "alerts ● active, ○ cleared (listed until acknowledged), ✓ acknowledged;",
     "sources ▲ up, ◆ stale, ▼ down, ↻ retrying; channels STALE, OUT OF RANGE.",
     "Unconverged estimates are marked (prior, unconverged): the vehicle file's",
     "values are used. The peak shows a band from the drag estimate's spread.",

@@ -25,7 +25,9 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         f.render_widget(Paragraph::new("waiting for the first snapshot…").style(app.theme.dim()), area);
         return;
     };
-    let alerts_w = if area.width >= 140 { 44 } else { 28 };
+    // The alerts column grows with the terminal: a third of it from 120
+    // columns, 28 below (the chart needs the rest at 80).
+    let alerts_w = if area.width >= 120 { (area.width / 3).min(56) } else { 28 };
     let [top, summary, bottom] =
         Layout::vertical([Constraint::Length(5), Constraint::Length(3), Constraint::Min(6)]).areas(area);
     let [speed_area, meters] = Layout::horizontal([Constraint::Length(36), Constraint::Min(30)]).areas(top);
@@ -334,24 +336,25 @@ fn draw_alerts(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let width = inner.width.saturating_sub(1) as usize;
     for (shown, a) in s.alerts.iter().enumerate() {
         let ago = (s.t_ns - a.raised_ns) as f64 * 1e-9;
+        // Active and cleared differ by a mark and words, not colour alone:
+        // ● active now, ○ cleared (still listed until acknowledged), ✓ acknowledged.
         let state = match (a.active, a.acked) {
-            (true, false) => "",
-            (true, true) => " ✓",
-            (false, false) => " cleared",
-            (false, true) => " ✓ cleared",
+            (true, false) => format!("● active · {} ago", format::age(ago)),
+            (true, true) => format!("● active ✓ · {} ago", format::age(ago)),
+            (false, false) => format!("○ cleared · {} ago", format::age(ago)),
+            (false, true) => format!("○ cleared ✓ · {} ago", format::age(ago)),
         };
-        let text = wrap(&a.message, width, 2);
+        // Three lines keep the figure at the end of the longer messages.
+        let text = wrap(&a.message, width, 3);
         // Keep a line for "… n more" unless this is the last alert.
-        let need = 1 + text.len() + usize::from(shown + 1 < s.alerts.len());
+        let need = 2 + text.len() + usize::from(shown + 1 < s.alerts.len());
         if lines.len() + need > inner.height as usize {
             lines.push(Line::styled(format!(" … {} more", s.alerts.len() - shown), t.label()));
             break;
         }
         let style = if a.acked || !a.active { t.dim() } else { t.severity(a.severity) };
-        lines.push(Line::from(vec![
-            Span::styled(severity_tag(a.severity), style),
-            Span::styled(format!(" {}{state}", format::age(ago)), t.label()),
-        ]));
+        lines.push(Line::from(vec![Span::styled(severity_tag(a.severity), style)]));
+        lines.push(Line::styled(format!("   {state}"), t.label()));
         for part in text {
             lines.push(Line::styled(format!(" {part}"), if a.active && !a.acked { t.value() } else { t.dim() }));
         }
