@@ -169,6 +169,10 @@ pub struct Derived {
     /// Power at the wheels against speed (road load, available, engine
     /// only) at the present estimates, for the power screen's chart.
     pub power_curve: Vec<PowerPoint>,
+    /// The run so far: peak, target, phase, the stop against stop-by.
+    pub progress: super::progress::ProgressView,
+    /// Mean wind along the run the road load uses, m/s, headwind positive.
+    pub wind_mps: Option<f64>,
 }
 
 /// The engine's inputs to a tick, read from the channel store.

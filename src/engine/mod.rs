@@ -14,6 +14,7 @@ pub mod derived;
 pub mod estimators;
 pub mod physics;
 pub mod power_curve;
+pub mod progress;
 pub mod projection;
 pub mod quantities;
 pub mod rls;
@@ -180,6 +181,7 @@ pub struct Engine {
     pack: PackEstimator,
     derate: DeratingTracker,
     heating: HeatingRate,
+    progress: progress::ProgressTracker,
     odo_m: f64,
     odo_last: Option<(TimeNs, f64)>,
     accel_from_speed: Option<f64>,
@@ -219,6 +221,7 @@ impl Engine {
             marks: Vec::new(),
             derate: DeratingTracker::default(),
             heating: HeatingRate::default(),
+            progress: progress::ProgressTracker::default(),
             odo_m: 0.0,
             odo_last: None,
             accel_from_speed: None,
@@ -522,6 +525,20 @@ impl Engine {
             d.projection = None;
             d.projection_note = Some("rejected: non-finite result");
         }
+        let track = &self.config.track;
+        let pin = progress::ProgressInputs {
+            t_ns: t,
+            speed_mps: d.speed_mps,
+            distance_m: d.distance_m,
+            brake: inp.brake,
+            target_mps: track.target_speed_mps,
+            stopping_m: d.braking.map(|b| b.stopping_m),
+            stop_by_m: track.stop_by_m(),
+            wheel_mps: self.store.fresh(ch::VEHICLE_SPEED, t),
+            gnss_mps: self.store.fresh(ch::GNSS_SPEED, t),
+        };
+        d.progress = self.progress.update(&pin, track.exit_speed_mps);
+        d.wind_mps = inp.wind_mps;
         self.derived = d;
         self.rates.update(t, &self.decoder.can.message_counts);
         self.evaluate_alerts(t, sources, &inp);

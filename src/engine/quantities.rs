@@ -302,6 +302,33 @@ pub static QUANTITIES: &[Quantity] = &[
     q("derived.braking.passed", "", "whether the braking point is passed", |d| {
         Flag(d.braking.is_some_and(|b| b.passed))
     }),
+    q("derived.wind_mps", "m/s", "mean wind along the run (30 s), headwind positive", |d| Num(d.wind_mps)),
+    q("derived.progress.phase", "", "`waiting`, `running`, `braking` or `stopped`", |d| {
+        Text(Some(d.progress.phase.as_str()))
+    }),
+    q("derived.progress.peak_mps", "m/s", "highest speed so far", |d| Num(d.progress.peak_mps)),
+    q("derived.progress.peak_at_m", "m", "where the highest speed so far was reached", |d| Num(d.progress.peak_at_m)),
+    q("derived.progress.peak_minus_target_mps", "m/s", "peak so far minus the target: negative is short of it", |d| {
+        Num(d.progress.peak_minus_target_mps)
+    }),
+    q("derived.progress.target_at_m", "m", "where the speed first reached the target (null: not yet)", |d| {
+        Num(d.progress.target_at_m)
+    }),
+    q(
+        "derived.progress.exit_speed_at_m",
+        "m",
+        "where the car is (or was) down to the track's exit speed: distance plus stopping distance",
+        |d| Num(d.progress.exit_speed_at_m),
+    ),
+    q("derived.progress.stop_margin_m", "m", "the stop-by line minus that: negative is over the line", |d| {
+        Num(d.progress.stop_margin_m)
+    }),
+    q(
+        "derived.progress.gnss_minus_wheel_mps",
+        "m/s",
+        "GNSS speed minus wheel speed (slip, tyre growth, a sensor fault)",
+        |d| Num(d.progress.gnss_minus_wheel_mps),
+    ),
     q("derived.tyre.rated_mps", "m/s", "the tyres' rated speed", |d| Num(d.tyre.map(|t| t.rated_mps))),
     q("derived.tyre.margin_mps", "m/s", "tyre speed margin now", |d| Num(d.tyre.map(|t| t.margin_mps))),
     q("derived.tyre.peak_margin_mps", "m/s", "tyre speed margin at the projected peak", |d| {
@@ -369,6 +396,20 @@ pub fn readme_table() -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Rewrites the README's list from the table:
+    /// `cargo test --lib write_the_readme_table -- --ignored`.
+    #[test]
+    #[ignore]
+    fn write_the_readme_table() {
+        let path = concat!(env!("CARGO_MANIFEST_DIR"), "/README.md");
+        let readme = std::fs::read_to_string(path).expect("README.md");
+        let (start, end) = ("<!-- derived-quantities: start -->\n", "<!-- derived-quantities: end -->");
+        let a = readme.find(start).expect("start marker") + start.len();
+        let b = readme.find(end).expect("end marker");
+        let text = format!("{}{}{}", &readme[..a], readme_table(), &readme[b..]);
+        std::fs::write(path, text).expect("write README.md");
+    }
 
     #[test]
     fn the_readme_lists_the_table() {

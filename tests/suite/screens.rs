@@ -248,3 +248,31 @@ fn alerts_say_their_state_and_age_in_words_and_marks() {
     let at = title.chars().position(|c| c == '┌').expect("the panel's corner");
     assert!(at <= 84, "the alerts panel starts at column {at}: {title}");
 }
+
+// Issue 15, items 5, 18 and 22: once braking, the braking line contradicted
+// itself, PEAK showed `— (braking)` and TARGET went blank, so the run ended
+// with no verdict; the stopping distance was for the exit speed, unsaid; the
+// run screen lacked the distance, GNSS against wheel speed and the wind.
+#[test]
+fn the_run_screen_ends_with_a_verdict_and_says_what_it_compares() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    let text = render(&app, 80, 24);
+    assert!(text.contains(" at ") && text.contains(" km "), "no present distance: {text}");
+    assert!(text.contains("GNSS +") || text.contains("GNSS -"), "{text}");
+    assert!(text.contains(" head ") || text.contains(" tail "), "no wind: {text}");
+    let brake = lines_with(&text, " BRAKE ");
+    assert!(brake.iter().any(|l| l.contains("to 80 km/h in")), "the stopping distance's speed: {brake:?}");
+    // The end of the demo run: stopped, with the peak, the verdict and the
+    // stop against the stop-by line, none of them blank or contradictory.
+    let mut app = demo_app(1e9, false);
+    app.screen = Screen::Run;
+    let text = render(&app, 80, 24);
+    let peak = lines_with(&text, " PEAK ");
+    assert!(peak.iter().any(|l| l.contains("km/h reached at") && l.contains(" km")), "{peak:?}");
+    let target = lines_with(&text, " TARGET ");
+    assert!(target.iter().any(|l| l.contains("MISSED by") || l.contains("REACHED at")), "{target:?}");
+    let brake = lines_with(&text, " BRAKE ");
+    assert!(brake.iter().any(|l| l.contains("STOPPED") && l.contains("stop-by 6.80 km")), "{brake:?}");
+    assert!(!text.contains("(braking)") && !text.contains("in 0.0 s"), "{text}");
+}

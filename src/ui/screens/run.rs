@@ -14,6 +14,7 @@ use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, Paragrap
 
 use crate::engine::Snapshot;
 use crate::engine::derived::Derived;
+use crate::engine::progress::Phase;
 use crate::ui::app::App;
 use crate::ui::format::{self, Units};
 use crate::ui::theme::severity_tag;
@@ -68,10 +69,26 @@ fn draw_speed(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let unit_x = area.x + 1 + w + 1;
     if unit_x + 5 < area.x + area.width {
         f.render_widget(Paragraph::new(Span::styled(u.speed_unit(), t.label())), Rect::new(unit_x, area.y + 3, 5, 1));
+        // Beside the figures: where the car is, and GNSS against wheel speed
+        // (a slip and sensor check) when both are fresh.
+        let room = area.x + area.width - unit_x;
+        let at = format!("at {}", format::distance(u, Some(d.distance_m)));
+        f.render_widget(Paragraph::new(Span::styled(at, t.value())), Rect::new(unit_x, area.y + 1, room, 1));
+        if let Some(diff) = d.progress.gnss_minus_wheel_mps {
+            let text = format!("GNSS {:+.1}", u.speed(diff));
+            let style = if diff.abs() > 2.0 { t.doubtful() } else { t.label() };
+            f.render_widget(Paragraph::new(Span::styled(text, style)), Rect::new(unit_x, area.y + 2, room, 1));
+        }
     }
-    let tyre = d
-        .tyre
-        .map(|ty| format!("tyres {} {} below rating", format::num(Some(u.speed(ty.margin_mps)), 0), u.speed_unit()));
+    let wind = d
+        .wind_mps
+        .map_or(String::new(), |w| format!(" · {} {:.1} m/s", if w >= 0.0 { "head" } else { "tail" }, w.abs()));
+    let tyre = d.tyre.map(|ty| {
+        format!("tyres {} {} under{wind}", format::num(Some(u.speed(ty.margin_mps)), 0), u.speed_unit())
+            .chars()
+            .take(area.width.saturating_sub(2) as usize)
+            .collect::<String>()
+    });
     if let Some(line) = tyre {
         let style = if d.tyre.is_some_and(|ty| ty.margin_mps < app.info.config.alerts.limits.tyre_margin_low_mps) {
             t.severity(crate::config::Severity::Alarm)
@@ -165,6 +182,58 @@ fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let d = &s.derived;
     let su = u.speed_unit();
     let mut lines = Vec::new();
+    let pr = &d.progress;
+    let exit_kmh = format!("{} {su}", format::num(Some(u.speed(app.info.config.track.exit_speed_mps)), 0));
+    let stop_by = format::distance(u, Some(app.info.config.track.stop_by_m()));
+    // Once the car brakes the projection is over: the panel says what was
+    // reached, and where the car will be down to the exit speed against the
+    // stop-by line (both from the engine's run-so-far view).
+    if matches!(pr.phase, Phase::Braking | Phase::Stopped) {
+        let target = format!("{} {su}", format::num(Some(u.speed(app.info.config.track.target_speed_mps)), 0));
+        lines.push(Line::from(vec![
+            Span::styled(" PEAK   ", t.heading()),
+            Span::styled(format!("{} {su}", format::num(pr.peak_mps.map(|v| u.speed(v)), 1)), t.value()),
+            Span::styled(format!(" reached at {}", format::distance(u, pr.peak_at_m)), t.label()),
+        ]));
+        let by = pr.peak_minus_target_mps.map_or(0.0, |x| u.speed(x.abs()));
+        let verdict = match pr.target_at_m {
+            Some(at) => Span::styled(
+                format!("REACHED at {}, peak {} {su} above", format::distance(u, Some(at)), format::num(Some(by), 1)),
+                t.good(),
+            ),
+            None => Span::styled(
+                format!("MISSED by {} {su}", format::num(Some(by), 1)),
+                t.severity(crate::config::Severity::Caution),
+            ),
+        };
+        lines.push(Line::from(vec![
+            Span::styled(" TARGET ", t.heading()),
+            Span::styled(format!("{target}  "), t.value()),
+            verdict,
+        ]));
+        let (word, when) = if pr.phase == Phase::Stopped { ("STOPPED", "at") } else { ("BRAKING", "by") };
+        let margin = pr.stop_margin_m.map(|m| {
+            if m >= 0.0 {
+                (format!("{} spare", format::distance(u, Some(m))), t.good())
+            } else {
+                (format!("{} over", format::distance(u, Some(-m))), t.severity(crate::config::Severity::Alarm))
+            }
+        });
+        let mut spans = vec![
+            Span::styled(" BRAKE  ", t.heading()),
+            Span::styled(format!("{word} · "), t.value()),
+            Span::styled(
+                format!("{exit_kmh} {when} {} · stop-by {stop_by}: ", format::distance(u, pr.exit_speed_at_m)),
+                t.label(),
+            ),
+        ];
+        if let Some((m, style)) = margin {
+            spans.push(Span::styled(m, style));
+        }
+        lines.push(Line::from(spans));
+        f.render_widget(Paragraph::new(lines), area);
+        return;
+    }
     match &d.projection {
         Some(p) => {
             let basis = if p.converged {
@@ -240,7 +309,7 @@ fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             Span::styled(format!("in {}", format::seconds(Some(b.in_s))), t.value()),
             Span::styled(
                 format!(
-                    " · {} to go · at {} · stopping {}",
+                    " · {} to go · at {} · to {exit_kmh} in {}",
                     format::distance(u, Some(b.distance_m)),
                     format::distance(u, Some(b.point_m)),
                     format::distance(u, Some(b.stopping_m))
