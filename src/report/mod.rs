@@ -119,6 +119,7 @@ pub struct Run {
     pub config: Arc<ConfigSet>,
     pub config_origin: String,
     pub start_ns: TimeNs,
+    /// The end of the run: the last snapshot (at or after the last event).
     pub end_ns: TimeNs,
     pub rows: Vec<Row>,
     /// The derived block at the end.
@@ -204,9 +205,17 @@ impl Run {
         }
         let sources_table = r.header.sources.clone();
         let start = start_ns.ok_or_else(|| ReportError::NoEvents { file: file.to_path_buf() })?;
-        engine.finish(&sources_table, &mut |s| rows.push(Row::of(&s, start)));
+        // The last snapshot lies at the first grid time at or after the last
+        // event, and alerts can be raised there: the run ends at that
+        // snapshot, so every stretch (and the duration) is measured to one
+        // end that no alert comes after.
+        let mut last_snapshot_ns = None;
+        engine.finish(&sources_table, &mut |s| {
+            last_snapshot_ns = Some(s.t_ns);
+            rows.push(Row::of(&s, start))
+        });
         progress(size, size);
-        let end = engine.now_ns().unwrap_or(start);
+        let end = engine.now_ns().unwrap_or(start).max(last_snapshot_ns.unwrap_or(start));
         let rel = |t: Option<TimeNs>| t.map(|t| (t - start) as f64 * 1e-9);
         let sources = sources_table
             .iter()
@@ -493,7 +502,8 @@ impl Summary {
 }
 
 /// Stale stretches per message or serial source, from the `stale:` alerts'
-/// raises and clears (an unfinished one runs to the end of the run).
+/// raises and clears (an unfinished one runs to `end_ns`, the end of the
+/// run: [`Run::end_ns`], the last snapshot). A stretch is never negative.
 fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
     let mut open: std::collections::BTreeMap<&str, (Option<TimeNs>, usize, TimeNs)> = std::collections::BTreeMap::new();
     for t in timeline {
@@ -506,7 +516,7 @@ fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
             }
             "clear" => {
                 if let Some(since) = e.0.take() {
-                    e.2 += t.t_ns - since;
+                    e.2 += (t.t_ns - since).max(0);
                 }
             }
             _ => {}
@@ -516,7 +526,7 @@ fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
         .map(|(what, (since, n, total))| StalePeriods {
             what: what.to_string(),
             periods: n,
-            total_s: (total + since.map_or(0, |s| end_ns - s)) as f64 * 1e-9,
+            total_s: (total + since.map_or(0, |s| (end_ns - s).max(0))) as f64 * 1e-9,
         })
         .collect()
 }
@@ -785,5 +795,28 @@ mod tests {
         std::fs::write(&log, b"(1.000000) can0 123#00\n(1.500000) can0 123#01\n").unwrap();
         let run = read(&log).unwrap();
         assert_eq!((run.events, run.can_frames, run.name().as_str()), (2, 2, "short.log"));
+    }
+
+    #[test]
+    fn an_alert_raised_at_the_last_snapshot_lasts_zero_not_less() {
+        // Issue 14, item 6: a stale alert raised at the last snapshot, after
+        // the last event, was measured to the last event: `-0.04 s in all`.
+        // pt_state (0x0C4, every 10 ms) stops at 1.06 s; the last snapshot
+        // is at 1.1 s, where its channels are over three periods old.
+        let dir = tempfile::tempdir().unwrap();
+        let log = dir.path().join("ends-stale.log");
+        let text: String =
+            (0..=106).map(|k| format!("({:.6}) can0 0C4#00000F0000001000\n", 100.0 + k as f64 * 0.01)).collect();
+        std::fs::write(&log, text).unwrap();
+        let run = read(&log).unwrap();
+        let raised = run.timeline.iter().find(|t| t.key == "stale:pt_state" && t.what == "raise").expect("raised");
+        assert!(raised.t_ns > run.start_ns + 1_060_000_000, "raised after the last event: {raised:?}");
+        assert!(run.end_ns >= raised.t_ns, "no alert after the end of the run");
+        let s = Summary::of(&run);
+        let st = s.stale.iter().find(|st| st.what == "pt_state").expect("a stale period");
+        assert_eq!(st.periods, 1);
+        assert!(st.total_s >= 0.0 && st.total_s < 0.05, "{st:?}");
+        assert!((s.duration_s - 1.1).abs() < 1e-9, "the run ends at its last snapshot: {}", s.duration_s);
+        assert!(s.alerts.iter().all(|a| a.t_s <= s.duration_s), "{:?}", s.alerts);
     }
 }
