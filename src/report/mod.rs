@@ -20,6 +20,7 @@ use serde::Serialize;
 use crate::channel::ch;
 use crate::config::ConfigSet;
 use crate::engine::alerts::Transition;
+use crate::engine::coastdown::{CoastDownFit, RoadLoadCurve};
 use crate::engine::derived::AirOrigin;
 use crate::engine::estimators::DeratingFit;
 use crate::engine::{Derived, Engine, EngineOptions, Snapshot};
@@ -124,6 +125,9 @@ pub struct Run {
     pub rows: Vec<Row>,
     /// The derived block at the end.
     pub last: Derived,
+    /// The road load F = A + B·v + C·v² fitted on the coast-down segments,
+    /// when there were enough.
+    pub coast_curve: Option<RoadLoadCurve>,
     pub timeline: Vec<Transition>,
     pub marks: Vec<(TimeNs, String)>,
     pub sources: Vec<SourceQuality>,
@@ -190,6 +194,7 @@ impl Run {
         let cfg = Arc::new(cfg);
         let mut engine = Engine::new(cfg.clone(), EngineOptions { snapshot_every_ns: REPORT_EVERY_NS });
         let mut rows = Vec::new();
+        let mut coast = CoastDownFit::default();
         let mut start_ns: Option<TimeNs> = None;
         let mut n = 0u64;
         while let Some(ev) = r.next_event() {
@@ -197,7 +202,10 @@ impl Run {
                 continue;
             }
             let start = *start_ns.get_or_insert(ev.t_ns);
-            engine.feed(&ev, &r.header.sources, &mut |s| rows.push(Row::of(&s, start)));
+            engine.feed(&ev, &r.header.sources, &mut |s| {
+                coast.push_snapshot(&cfg.vehicle, &cfg.track, &s);
+                rows.push(Row::of(&s, start))
+            });
             n += 1;
             if n.is_multiple_of(1 << 16) {
                 progress(read.load(Ordering::Relaxed), size);
@@ -212,6 +220,7 @@ impl Run {
         let mut last_snapshot_ns = None;
         engine.finish(&sources_table, &mut |s| {
             last_snapshot_ns = Some(s.t_ns);
+            coast.push_snapshot(&cfg.vehicle, &cfg.track, &s);
             rows.push(Row::of(&s, start))
         });
         progress(size, size);
@@ -248,6 +257,7 @@ impl Run {
             end_ns: end,
             rows,
             last: engine.derived().clone(),
+            coast_curve: coast.fit(),
             timeline: engine.alerts.timeline.clone(),
             marks: engine.marks().to_vec(),
             sources,
@@ -313,6 +323,10 @@ pub struct EstimateSummary {
     /// From coast-down segments alone, when there were any.
     pub coast: Option<CoastSummary>,
     pub coast_samples: u64,
+    /// The road load F = A + B·v + C·v² (SAE J2263 form) fitted on the
+    /// coast-down snapshots, with standard deviations; a steady headwind
+    /// shows up in B.
+    pub coast_curve: Option<RoadLoadCurve>,
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
@@ -472,6 +486,7 @@ impl Summary {
                     crr_sd: r.sd,
                 }),
                 coast_samples: e.coast_samples,
+                coast_curve: run.coast_curve,
             },
             air_density_min_kg_m3: if rho_min.is_finite() { rho_min } else { f64::NAN },
             air_density_max_kg_m3: if rho_max.is_finite() { rho_max } else { f64::NAN },
@@ -645,6 +660,21 @@ pub fn text(s: &Summary) -> String {
         None => {
             let _ = writeln!(o, "  from coast-down      no coast-down segments");
         }
+    }
+    if let Some(c) = &e.coast_curve {
+        let _ = writeln!(
+            o,
+            "  road load (coast)    F = A + B·v + C·v²: A {:.1} ± {:.1} N, B {:.3} ± {:.3} N·s/m, C {:.4} ± {:.4} N·s²/m²",
+            c.a_n, c.a_sd_n, c.b_n_s_per_m, c.b_sd_n_s_per_m, c.c_n_s2_per_m2, c.c_sd_n_s2_per_m2
+        );
+        let _ = writeln!(
+            o,
+            "                       over {:.0}–{:.0} km/h, {} points, residual rms {:.0} N",
+            c.speed_min_mps * 3.6,
+            c.speed_max_mps * 3.6,
+            c.points,
+            c.rms_n
+        );
     }
     let _ = writeln!(
         o,
