@@ -16,7 +16,8 @@
 use crate::config::run_plan::{BoostStart, Plan};
 use crate::config::{ConfigSet, Track, Vehicle};
 use crate::engine::physics::motion::{self, MotionParams, StopReason, TRACTION_SPEED_FLOOR_MPS};
-use crate::engine::physics::{air, braking, pack as bat};
+use crate::engine::physics::{braking, pack as bat};
+use crate::envelope::{Air, AirArgs};
 use crate::sim::rng::Rng;
 use crate::units::G0;
 
@@ -31,9 +32,12 @@ pub struct Conditions {
     pub cda_m2: f64,
     pub crr0: f64,
     pub mass_kg: f64,
+    /// The air of the day: the plan's weather, or the standard atmosphere
+    /// at the track's elevation when the plan gives none (as the engine).
+    pub air: Air,
+    /// The air's temperature in this trial, °C (drawn; the pressure and
+    /// humidity stay the air's).
     pub temp_c: f64,
-    pub pressure_pa: f64,
-    pub humidity: f64,
     pub headwind_mps: f64,
     pub derate_tau_s: f64,
     pub derate_floor: f64,
@@ -42,17 +46,17 @@ pub struct Conditions {
 
 impl Conditions {
     /// The plan's nominal conditions: the vehicle file's coefficients (what
-    /// the engineer believes before the run) and the plan's weather and
-    /// starting charge.
+    /// the engineer believes before the run), the plan's air ([`plan_air`])
+    /// and starting charge.
     pub fn nominal(cfg: &ConfigSet, plan: &Plan) -> Conditions {
         let v = &cfg.vehicle;
+        let air = plan_air(cfg, plan);
         Conditions {
             cda_m2: v.cda_m2,
             crr0: v.crr0,
             mass_kg: v.mass_kg,
-            temp_c: plan.ambient.temp_c,
-            pressure_pa: plan.ambient.pressure_pa,
-            humidity: plan.ambient.humidity,
+            air,
+            temp_c: air.temp_c.unwrap_or(15.0),
             headwind_mps: plan.ambient.headwind_mps,
             derate_tau_s: v.battery.derate_tau_s,
             derate_floor: v.battery.derate_floor,
@@ -76,9 +80,21 @@ impl Conditions {
         }
     }
 
+    /// Air density in this trial, kg/m³: the air at the trial's temperature.
     pub fn air_density(&self) -> f64 {
-        air::moist_air_density_cipm2007(self.temp_c, self.pressure_pa, self.humidity)
+        self.air.at_temp_c(self.temp_c).density_kg_m3
     }
+}
+
+/// The planner's air: the plan's weather, or the standard atmosphere at the
+/// track's elevation when it gives none, by the rule `termvel envelope`
+/// uses ([`Air::of_the_day`], nothing given on the command line), which is
+/// the engine's stand-in without weather data (`derived::air_step`).
+pub fn plan_air(cfg: &ConfigSet, plan: &Plan) -> Air {
+    let elevation_m = cfg.track.elevation_m;
+    // Nothing given on the command line: the rule cannot fail.
+    Air::of_the_day(&AirArgs::default(), plan.ambient.weather, elevation_m)
+        .unwrap_or_else(|_| Air::standard(elevation_m))
 }
 
 /// Open-circuit voltage of the pack in the planner's model, V: a cell at
@@ -496,5 +512,48 @@ mod tests {
         }
         assert!(x_roll > x_free + 0.1, "rolling resistance lengthens 0–100 km/h: {x_roll} m against {x_free} m");
         assert!(t_roll > t_free, "{t_roll} s against {t_free} s");
+    }
+
+    #[test]
+    fn without_weather_in_the_plan_the_air_is_the_engines_standard_atmosphere() {
+        // Issue 14, item 8: the planner took the air only from the plan's
+        // weather; the engine, without weather data, uses the ISA
+        // troposphere at the track's elevation (derived::air_step). A plan
+        // without weather now gives the engine's density exactly; a plan
+        // with weather keeps its CIPM-2007 density.
+        let (plan, cfg) = demo();
+        let with = Conditions::nominal(&cfg, &plan);
+        let w = plan.ambient.weather.expect("the demo plan has weather");
+        assert_eq!(with.air.source, crate::envelope::AirSource::PlanWeather);
+        assert_eq!(
+            with.air_density(),
+            crate::engine::physics::air::moist_air_density_cipm2007(w.temp_c, w.pressure_pa, w.humidity)
+        );
+
+        let text: String = config::EMBEDDED_PLAN
+            .1
+            .lines()
+            .filter(|l| !(l.starts_with("temp_c") || l.starts_with("pressure_hpa") || l.starts_with("humidity_pct")))
+            .map(|l| format!("{l}\n"))
+            .collect();
+        let Some(config::Parsed::Plan(bare)) = config::validate_text("no-weather.toml", &text).parsed else {
+            panic!("a plan without weather is valid")
+        };
+        assert_eq!(bare.ambient.weather, None);
+        let without = Conditions::nominal(&cfg, &bare);
+        assert_eq!(without.air.source, crate::envelope::AirSource::StandardAtmosphere);
+        let (engine_rho, _) = crate::engine::derived::air_step(None, cfg.track.elevation_m);
+        assert_eq!(without.air_density(), engine_rho, "the engine's air");
+        assert!((without.air_density() - with.air_density()).abs() > 0.01, "the two airs differ on the demo track");
+        // The rehearsal's car runs in the same air and sends no weather.
+        let car = crate::sim::car::Car::new(std::sync::Arc::new(cfg.clone()), std::sync::Arc::new(bare.clone()), 0.0);
+        assert_eq!(car.s.rho, engine_rho);
+        assert_eq!(car.channel("ambient.temp"), None);
+        assert!(car.channel("ambient.wind").is_some());
+        // The Monte Carlo's temperature draw moves the standard air by the
+        // ideal gas law at its pressure.
+        let warm = Conditions { temp_c: without.temp_c + 10.0, ..without };
+        let t_k = without.temp_c + crate::engine::physics::air::ZERO_C_K;
+        assert!((warm.air_density() / engine_rho - t_k / (t_k + 10.0)).abs() < 1e-12);
     }
 }

@@ -245,7 +245,8 @@ fn a_rehearsed_coast_in_a_headwind_gives_the_road_load_a_b_c_it_was_built_with()
         Some(termvel::config::Parsed::Plan(p)) => p,
         _ => panic!("the coast plan is valid"),
     };
-    let (t_c, p_pa, rh, w) = (plan.ambient.temp_c, plan.ambient.pressure_pa, plan.ambient.humidity, 4.0);
+    let weather = plan.ambient.weather.expect("the demo plan has weather");
+    let (t_c, p_pa, rh, w) = (weather.temp_c, weather.pressure_pa, weather.humidity, 4.0);
     let (cda, c0) = (plan.car.cda_m2.unwrap(), plan.car.crr0.unwrap());
     let dir = tempfile::tempdir().unwrap();
     let path = dir.path().join("coast.tvrec");
