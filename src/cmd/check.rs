@@ -192,13 +192,19 @@ fn check_texts_with(files: &[(String, String)], unread: usize) -> (String, bool)
                 };
                 let _ = writeln!(
                     out,
-                    "{}: plan \"{}\": seed {}, {:.1} °C, {:.0} hPa, {:.0} % RH, headwind {:.1} m/s; {boost}, brake at {:.0} m; {} fault{}",
+                    "{}: plan \"{}\": seed {}, {}, headwind {:.1} m/s; {boost}, brake at {:.0} m; {} fault{}",
                     r.origin,
                     p.name,
                     p.seed,
-                    p.ambient.temp_c,
-                    p.ambient.pressure_pa / 100.0,
-                    p.ambient.humidity * 100.0,
+                    match p.ambient.weather {
+                        Some(w) => format!(
+                            "{:.1} °C, {:.0} hPa, {:.0} % RH",
+                            w.temp_c,
+                            w.pressure_pa / 100.0,
+                            w.humidity * 100.0
+                        ),
+                        None => "no weather (the standard atmosphere at the track's elevation)".to_string(),
+                    },
                     p.ambient.headwind_mps,
                     p.driver.brake_at_m,
                     p.faults.len(),

@@ -7,7 +7,7 @@ use std::process::ExitCode;
 
 use crate::cli::EnvelopeArgs;
 use crate::config::{self, ConfigSet, run_plan::Plan};
-use crate::envelope::{self, Air, AirSource, BrakeAt, Inputs};
+use crate::envelope::{self, Air, AirArgs, BrakeAt, Inputs};
 
 /// The plan (if any) and the config set: a plan given, or a config set
 /// given without a plan, or the built-in demo plan and its set.
@@ -19,42 +19,16 @@ fn load(args: &EnvelopeArgs) -> Result<(Option<Plan>, ConfigSet), config::Config
     }
 }
 
-/// The air: a density given; or the standard atmosphere when asked for or
-/// when there is no plan and nothing given; or weather from the command
-/// line with gaps filled from the plan (or the standard atmosphere, dry);
-/// or the plan's weather.
+/// The air, by the rule `termvel plan` shares ([`Air::of_the_day`]).
 fn air(args: &EnvelopeArgs, plan: Option<&Plan>, elevation_m: f64) -> Result<Air, String> {
-    if let Some(rho) = args.air_density {
-        return Air::density(rho).map_err(|e| e.to_string());
-    }
-    let isa = Air::standard(elevation_m);
-    if args.standard_air {
-        return Ok(isa);
-    }
-    let given = args.air_temp_c.is_some() || args.air_pressure_hpa.is_some() || args.humidity_pct.is_some();
-    let (t, p, h) = match plan {
-        Some(pl) => (pl.ambient.temp_c, pl.ambient.pressure_pa, pl.ambient.humidity),
-        None => (isa.temp_c.unwrap_or(15.0), isa.pressure_pa.unwrap_or(101_325.0), 0.0),
+    let given = AirArgs {
+        density_kg_m3: args.air_density,
+        standard: args.standard_air,
+        temp_c: args.air_temp_c,
+        pressure_hpa: args.air_pressure_hpa,
+        humidity_pct: args.humidity_pct,
     };
-    if !given {
-        return Ok(match plan {
-            Some(_) => Air::weather(AirSource::PlanWeather, t, p, h),
-            None => isa,
-        });
-    }
-    let t = args.air_temp_c.unwrap_or(t);
-    let p = args.air_pressure_hpa.map_or(p, |x| x * 100.0);
-    let h = args.humidity_pct.map_or(h, |x| x / 100.0);
-    if !(-60.0..=70.0).contains(&t) {
-        return Err(format!("--air-temp-c: expected −60 to 70 °C, found {t}"));
-    }
-    if !(300e2..=1200e2).contains(&p) {
-        return Err(format!("--air-pressure-hpa: expected 300 to 1200 hPa, found {}", p / 100.0));
-    }
-    if !(0.0..=1.0).contains(&h) {
-        return Err(format!("--humidity-pct: expected 0 to 100 %, found {}", h * 100.0));
-    }
-    Ok(Air::weather(AirSource::CommandLine, t, p, h))
+    Air::of_the_day(&given, plan.and_then(|p| p.ambient.weather), elevation_m).map_err(|e| e.to_string())
 }
 
 pub fn run(args: EnvelopeArgs) -> anyhow::Result<ExitCode> {

@@ -8,6 +8,7 @@ use serde_json::json;
 
 use crate::cli::PlanArgs;
 use crate::config::{self, run_plan::BoostStart};
+use crate::envelope::AirSource;
 use crate::planner::{self, Conditions, RunResult};
 
 fn kmh(v: f64) -> f64 {
@@ -63,6 +64,14 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
             "vehicle": veh.name,
             "track": track.name,
             "air_density_kg_m3": rho,
+            "air": {
+                "source": c.air.source.key(),
+                "temp_c": c.temp_c,
+                "pressure_pa": c.air.pressure_pa,
+                "humidity": c.air.humidity,
+                "density_kg_m3": rho,
+                "track_elevation_m": track.elevation_m,
+            },
             "target_mps": track.target_speed_mps,
             "planned": { "boost_start_m": match plan.driver.boost_start { BoostStart::AtDistance(m) => Some(m), _ => None },
                          "boost_start_mps": match plan.driver.boost_start { BoostStart::AtSpeed(v) => Some(v), _ => None },
@@ -85,11 +94,16 @@ pub fn run(args: PlanArgs) -> anyhow::Result<ExitCode> {
     let target = kmh(track.target_speed_mps);
     crate::out!("plan: {}", plan.name);
     crate::out!("car: {}   course: {}   target {target:.0} km/h", veh.name, track.name);
+    let elevation = match c.air.source {
+        AirSource::StandardAtmosphere => format!(" ({:.0} m)", track.elevation_m),
+        _ => String::new(),
+    };
     crate::out!(
-        "conditions: {:.1} °C, {:.0} hPa, {:.0} % RH → air {rho:.4} kg/m³; headwind {:.1} m/s; charge {:.0} %",
-        plan.ambient.temp_c,
-        plan.ambient.pressure_pa / 100.0,
-        plan.ambient.humidity * 100.0,
+        "conditions: {:.1} °C, {:.0} hPa, {:.0} % RH → air {rho:.4} kg/m³ from {}{elevation}; headwind {:.1} m/s; charge {:.0} %",
+        c.temp_c,
+        c.air.pressure_pa.unwrap_or(f64::NAN) / 100.0,
+        c.air.humidity.unwrap_or(f64::NAN) * 100.0,
+        c.air.source.describe(),
         plan.ambient.headwind_mps,
         plan.car.soc_start * 100.0
     );

@@ -24,6 +24,7 @@ struct Raw {
     track: Option<Spanned<String>>,
     signals: Option<Spanned<String>>,
     alerts: Option<Spanned<String>>,
+    #[serde(default)]
     ambient: RawAmbient,
     driver: RawDriver,
     car: Option<RawCar>,
@@ -33,12 +34,12 @@ struct Raw {
     uncertainty: Option<RawUncertainty>,
 }
 
-#[derive(Deserialize)]
+#[derive(Deserialize, Default)]
 #[serde(deny_unknown_fields)]
 struct RawAmbient {
-    temp_c: F,
-    pressure_hpa: F,
-    humidity_pct: F,
+    temp_c: Option<F>,
+    pressure_hpa: Option<F>,
+    humidity_pct: Option<F>,
     headwind_mps: Option<F>,
     gust_mps: Option<F>,
     gust_period_s: Option<F>,
@@ -111,13 +112,21 @@ struct RawUncertainty {
     derate_floor: Option<Spanned<[f64; 2]>>,
 }
 
-/// Weather for the rehearsal.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Ambient {
+/// Temperature, pressure and humidity of the air.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Weather {
     pub temp_c: f64,
     pub pressure_pa: f64,
     /// Relative humidity, 0..1.
     pub humidity: f64,
+}
+
+/// Weather for the rehearsal.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Ambient {
+    /// The plan's weather; `None`: the plan gives none, and the standard
+    /// atmosphere at the track's elevation stands in (as in the engine).
+    pub weather: Option<Weather>,
     /// Steady wind along the run, headwind positive, m/s.
     pub headwind_mps: f64,
     /// Amplitude and period of the gusts on top, m/s and s.
@@ -321,10 +330,30 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Plan> {
         }
     };
     let a = &raw.ambient;
+    // The weather is given whole or not at all: a temperature without a
+    // pressure would be half an air.
+    let weather = match (&a.temp_c, &a.pressure_hpa, &a.humidity_pct) {
+        (Some(t), Some(p), Some(h)) => Some(Weather {
+            temp_c: ctx.range(t, "ambient.temp_c", -40.0, 60.0, "a temperature in °C"),
+            pressure_pa: ctx.range(p, "ambient.pressure_hpa", 500.0, 1100.0, "a pressure in hPa") * 100.0,
+            humidity: ctx.range(h, "ambient.humidity_pct", 0.0, 100.0, "a relative humidity in %") / 100.0,
+        }),
+        (None, None, None) => None,
+        (t, p, h) => {
+            let (key, span) = [("ambient.temp_c", t), ("ambient.pressure_hpa", p), ("ambient.humidity_pct", h)]
+                .into_iter()
+                .find_map(|(k, v)| v.as_ref().map(|v| (k, v.span())))
+                .expect("one of them is given");
+            ctx.err(
+                span,
+                key,
+                "expected temp_c, pressure_hpa and humidity_pct together, or none of them (the standard atmosphere at the track's elevation)",
+            );
+            None
+        }
+    };
     let ambient = Ambient {
-        temp_c: ctx.range(&a.temp_c, "ambient.temp_c", -40.0, 60.0, "a temperature in °C"),
-        pressure_pa: ctx.range(&a.pressure_hpa, "ambient.pressure_hpa", 500.0, 1100.0, "a pressure in hPa") * 100.0,
-        humidity: ctx.range(&a.humidity_pct, "ambient.humidity_pct", 0.0, 100.0, "a relative humidity in %") / 100.0,
+        weather,
         headwind_mps: a
             .headwind_mps
             .as_ref()

@@ -10,6 +10,7 @@
 //! for bit.
 
 pub mod alerts;
+pub mod coastdown;
 pub mod derived;
 pub mod estimators;
 pub mod physics;

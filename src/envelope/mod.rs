@@ -27,6 +27,7 @@ pub mod render_json;
 pub mod render_svg;
 pub mod render_text;
 
+use crate::config::run_plan::Weather;
 use crate::config::{Track, Vehicle};
 use crate::engine::physics::motion::{self, MotionParams, TRACTION_SPEED_FLOOR_MPS};
 use crate::engine::physics::{air, braking, pack as bat, roadload};
@@ -59,6 +60,21 @@ pub enum EnvelopeError {
     /// The air density is not a positive finite number.
     #[error("the air density must be a positive number of kg/m³, found {rho}")]
     BadAirDensity { rho: f64 },
+    /// A temperature, pressure or humidity given for the air is out of range.
+    #[error("{option}: expected {expected}, found {found}")]
+    AirOutOfRange { option: &'static str, expected: &'static str, found: f64 },
+}
+
+/// What the command line says about the air (every part optional).
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
+pub struct AirArgs {
+    /// A density, kg/m³, instead of temperature, pressure and humidity.
+    pub density_kg_m3: Option<f64>,
+    /// The standard atmosphere even when there is weather.
+    pub standard: bool,
+    pub temp_c: Option<f64>,
+    pub pressure_hpa: Option<f64>,
+    pub humidity_pct: Option<f64>,
 }
 
 /// Where the air density came from.
@@ -132,6 +148,67 @@ impl Air {
             pressure_pa: Some(p_pa),
             humidity: Some(0.0),
             density_kg_m3: rho,
+        }
+    }
+
+    /// The air of the day, one rule for `termvel envelope` and `termvel
+    /// plan`: a density given; or the standard atmosphere when asked for,
+    /// or when there is no weather and nothing given (as the engine does
+    /// without weather data); or weather from the command line with its
+    /// gaps filled from the plan's weather (or the standard atmosphere,
+    /// dry); or the plan's weather.
+    pub fn of_the_day(args: &AirArgs, weather: Option<Weather>, elevation_m: f64) -> Result<Air, EnvelopeError> {
+        if let Some(rho) = args.density_kg_m3 {
+            return Air::density(rho);
+        }
+        let isa = Air::standard(elevation_m);
+        if args.standard {
+            return Ok(isa);
+        }
+        let given = args.temp_c.is_some() || args.pressure_hpa.is_some() || args.humidity_pct.is_some();
+        let (t, p, h) = match weather {
+            Some(w) => (w.temp_c, w.pressure_pa, w.humidity),
+            None => (isa.temp_c.unwrap_or(15.0), isa.pressure_pa.unwrap_or(101_325.0), 0.0),
+        };
+        if !given {
+            return Ok(match weather {
+                Some(_) => Air::weather(AirSource::PlanWeather, t, p, h),
+                None => isa,
+            });
+        }
+        let t = args.temp_c.unwrap_or(t);
+        let p = args.pressure_hpa.map_or(p, |x| x * 100.0);
+        let h = args.humidity_pct.map_or(h, |x| x / 100.0);
+        let out = |option, expected, found| Err(EnvelopeError::AirOutOfRange { option, expected, found });
+        if !(-60.0..=70.0).contains(&t) {
+            return out("--air-temp-c", "−60 to 70 °C", t);
+        }
+        if !(300e2..=1200e2).contains(&p) {
+            return out("--air-pressure-hpa", "300 to 1200 hPa", p / 100.0);
+        }
+        if !(0.0..=1.0).contains(&h) {
+            return out("--humidity-pct", "0 to 100 %", h * 100.0);
+        }
+        Ok(Air::weather(AirSource::CommandLine, t, p, h))
+    }
+
+    /// The same air at `temp_c` and the same pressure: by CIPM-2007 for
+    /// weather; for the standard atmosphere and a bare density by the ideal
+    /// gas law (a bare density assumed at 15 °C). The planner's Monte Carlo
+    /// draws the temperature with this.
+    pub fn at_temp_c(&self, temp_c: f64) -> Air {
+        match (self.source, self.temp_c, self.pressure_pa, self.humidity) {
+            (AirSource::PlanWeather | AirSource::CommandLine, Some(_), Some(p), Some(h)) => {
+                Air::weather(self.source, temp_c, p, h)
+            }
+            _ => {
+                let t_k = self.temp_c.unwrap_or(ASSUMED_TEMP_C) + air::ZERO_C_K;
+                Air {
+                    temp_c: Some(temp_c),
+                    density_kg_m3: self.density_kg_m3 * t_k / (temp_c + air::ZERO_C_K),
+                    ..*self
+                }
+            }
         }
     }
 

@@ -20,6 +20,7 @@ use serde::Serialize;
 use crate::channel::ch;
 use crate::config::ConfigSet;
 use crate::engine::alerts::Transition;
+use crate::engine::coastdown::{CoastDownFit, RoadLoadCurve};
 use crate::engine::derived::AirOrigin;
 use crate::engine::estimators::DeratingFit;
 use crate::engine::{Derived, Engine, EngineOptions, Snapshot};
@@ -119,10 +120,14 @@ pub struct Run {
     pub config: Arc<ConfigSet>,
     pub config_origin: String,
     pub start_ns: TimeNs,
+    /// The end of the run: the last snapshot (at or after the last event).
     pub end_ns: TimeNs,
     pub rows: Vec<Row>,
     /// The derived block at the end.
     pub last: Derived,
+    /// The road load F = A + B·v + C·v² fitted on the coast-down segments,
+    /// when there were enough.
+    pub coast_curve: Option<RoadLoadCurve>,
     pub timeline: Vec<Transition>,
     pub marks: Vec<(TimeNs, String)>,
     pub sources: Vec<SourceQuality>,
@@ -189,6 +194,7 @@ impl Run {
         let cfg = Arc::new(cfg);
         let mut engine = Engine::new(cfg.clone(), EngineOptions { snapshot_every_ns: REPORT_EVERY_NS });
         let mut rows = Vec::new();
+        let mut coast = CoastDownFit::default();
         let mut start_ns: Option<TimeNs> = None;
         let mut n = 0u64;
         while let Some(ev) = r.next_event() {
@@ -196,7 +202,10 @@ impl Run {
                 continue;
             }
             let start = *start_ns.get_or_insert(ev.t_ns);
-            engine.feed(&ev, &r.header.sources, &mut |s| rows.push(Row::of(&s, start)));
+            engine.feed(&ev, &r.header.sources, &mut |s| {
+                coast.push_snapshot(&cfg.vehicle, &cfg.track, &s);
+                rows.push(Row::of(&s, start))
+            });
             n += 1;
             if n.is_multiple_of(1 << 16) {
                 progress(read.load(Ordering::Relaxed), size);
@@ -204,9 +213,18 @@ impl Run {
         }
         let sources_table = r.header.sources.clone();
         let start = start_ns.ok_or_else(|| ReportError::NoEvents { file: file.to_path_buf() })?;
-        engine.finish(&sources_table, &mut |s| rows.push(Row::of(&s, start)));
+        // The last snapshot lies at the first grid time at or after the last
+        // event, and alerts can be raised there: the run ends at that
+        // snapshot, so every stretch (and the duration) is measured to one
+        // end that no alert comes after.
+        let mut last_snapshot_ns = None;
+        engine.finish(&sources_table, &mut |s| {
+            last_snapshot_ns = Some(s.t_ns);
+            coast.push_snapshot(&cfg.vehicle, &cfg.track, &s);
+            rows.push(Row::of(&s, start))
+        });
         progress(size, size);
-        let end = engine.now_ns().unwrap_or(start);
+        let end = engine.now_ns().unwrap_or(start).max(last_snapshot_ns.unwrap_or(start));
         let rel = |t: Option<TimeNs>| t.map(|t| (t - start) as f64 * 1e-9);
         let sources = sources_table
             .iter()
@@ -239,6 +257,7 @@ impl Run {
             end_ns: end,
             rows,
             last: engine.derived().clone(),
+            coast_curve: coast.fit(),
             timeline: engine.alerts.timeline.clone(),
             marks: engine.marks().to_vec(),
             sources,
@@ -304,6 +323,10 @@ pub struct EstimateSummary {
     /// From coast-down segments alone, when there were any.
     pub coast: Option<CoastSummary>,
     pub coast_samples: u64,
+    /// The road load F = A + B·v + C·v² (SAE J2263 form) fitted on the
+    /// coast-down snapshots, with standard deviations; a steady headwind
+    /// shows up in B.
+    pub coast_curve: Option<RoadLoadCurve>,
 }
 
 #[derive(Clone, Copy, Debug, PartialEq, Serialize)]
@@ -463,6 +486,7 @@ impl Summary {
                     crr_sd: r.sd,
                 }),
                 coast_samples: e.coast_samples,
+                coast_curve: run.coast_curve,
             },
             air_density_min_kg_m3: if rho_min.is_finite() { rho_min } else { f64::NAN },
             air_density_max_kg_m3: if rho_max.is_finite() { rho_max } else { f64::NAN },
@@ -493,7 +517,8 @@ impl Summary {
 }
 
 /// Stale stretches per message or serial source, from the `stale:` alerts'
-/// raises and clears (an unfinished one runs to the end of the run).
+/// raises and clears (an unfinished one runs to `end_ns`, the end of the
+/// run: [`Run::end_ns`], the last snapshot). A stretch is never negative.
 fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
     let mut open: std::collections::BTreeMap<&str, (Option<TimeNs>, usize, TimeNs)> = std::collections::BTreeMap::new();
     for t in timeline {
@@ -506,7 +531,7 @@ fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
             }
             "clear" => {
                 if let Some(since) = e.0.take() {
-                    e.2 += t.t_ns - since;
+                    e.2 += (t.t_ns - since).max(0);
                 }
             }
             _ => {}
@@ -516,7 +541,7 @@ fn stale_periods(timeline: &[Transition], end_ns: TimeNs) -> Vec<StalePeriods> {
         .map(|(what, (since, n, total))| StalePeriods {
             what: what.to_string(),
             periods: n,
-            total_s: (total + since.map_or(0, |s| end_ns - s)) as f64 * 1e-9,
+            total_s: (total + since.map_or(0, |s| (end_ns - s).max(0))) as f64 * 1e-9,
         })
         .collect()
 }
@@ -635,6 +660,21 @@ pub fn text(s: &Summary) -> String {
         None => {
             let _ = writeln!(o, "  from coast-down      no coast-down segments");
         }
+    }
+    if let Some(c) = &e.coast_curve {
+        let _ = writeln!(
+            o,
+            "  road load (coast)    F = A + B·v + C·v²: A {:.1} ± {:.1} N, B {:.3} ± {:.3} N·s/m, C {:.4} ± {:.4} N·s²/m²",
+            c.a_n, c.a_sd_n, c.b_n_s_per_m, c.b_sd_n_s_per_m, c.c_n_s2_per_m2, c.c_sd_n_s2_per_m2
+        );
+        let _ = writeln!(
+            o,
+            "                       over {:.0}–{:.0} km/h, {} points, residual rms {:.0} N",
+            c.speed_min_mps * 3.6,
+            c.speed_max_mps * 3.6,
+            c.points,
+            c.rms_n
+        );
     }
     let _ = writeln!(
         o,
@@ -785,5 +825,28 @@ mod tests {
         std::fs::write(&log, b"(1.000000) can0 123#00\n(1.500000) can0 123#01\n").unwrap();
         let run = read(&log).unwrap();
         assert_eq!((run.events, run.can_frames, run.name().as_str()), (2, 2, "short.log"));
+    }
+
+    #[test]
+    fn an_alert_raised_at_the_last_snapshot_lasts_zero_not_less() {
+        // Issue 14, item 6: a stale alert raised at the last snapshot, after
+        // the last event, was measured to the last event: `-0.04 s in all`.
+        // pt_state (0x0C4, every 10 ms) stops at 1.06 s; the last snapshot
+        // is at 1.1 s, where its channels are over three periods old.
+        let dir = tempfile::tempdir().unwrap();
+        let log = dir.path().join("ends-stale.log");
+        let text: String =
+            (0..=106).map(|k| format!("({:.6}) can0 0C4#00000F0000001000\n", 100.0 + k as f64 * 0.01)).collect();
+        std::fs::write(&log, text).unwrap();
+        let run = read(&log).unwrap();
+        let raised = run.timeline.iter().find(|t| t.key == "stale:pt_state" && t.what == "raise").expect("raised");
+        assert!(raised.t_ns > run.start_ns + 1_060_000_000, "raised after the last event: {raised:?}");
+        assert!(run.end_ns >= raised.t_ns, "no alert after the end of the run");
+        let s = Summary::of(&run);
+        let st = s.stale.iter().find(|st| st.what == "pt_state").expect("a stale period");
+        assert_eq!(st.periods, 1);
+        assert!(st.total_s >= 0.0 && st.total_s < 0.05, "{st:?}");
+        assert!((s.duration_s - 1.1).abs() < 1e-9, "the run ends at its last snapshot: {}", s.duration_s);
+        assert!(s.alerts.iter().all(|a| a.t_s <= s.duration_s), "{:?}", s.alerts);
     }
 }

@@ -114,6 +114,9 @@ pub struct Car {
     cfg: std::sync::Arc<ConfigSet>,
     plan: std::sync::Arc<Plan>,
     gust_phase: f64,
+    /// Temperature of the air the car runs in, °C: the plan's, or the
+    /// standard atmosphere's at the track's elevation when it gives none.
+    air_temp_c: f64,
 }
 
 impl Car {
@@ -145,6 +148,16 @@ impl Car {
         let soc = plan.car.soc_start;
         let ocv = cell_ocv_v(soc) * p.cells;
         let a = &plan.ambient;
+        // Without the plan's weather the car runs in the standard
+        // atmosphere at the track's elevation, the engine's own stand-in
+        // (and no weather is put on the wire).
+        let (air_temp_c, rho) = match a.weather {
+            Some(w) => (w.temp_c, air::moist_air_density_cipm2007(w.temp_c, w.pressure_pa, w.humidity)),
+            None => {
+                let (t_k, _, rho) = air::isa_troposphere(air::geopotential_m(cfg.track.elevation_m));
+                (t_k - air::ZERO_C_K, rho)
+            }
+        };
         let s = CarState {
             t_s: 0.0,
             x_m: 0.0,
@@ -163,7 +176,7 @@ impl Car {
             engine_power_w: 0.0,
             motor_power_w: 0.0,
             motor_rpm: 0.0,
-            motor_temp_c: a.temp_c + 25.0,
+            motor_temp_c: air_temp_c + 25.0,
             coolant_c: 86.0,
             soc,
             pack_temp_c: plan.car.pack_temp_start_c,
@@ -171,12 +184,12 @@ impl Car {
             pack_v: ocv,
             pack_a: 0.0,
             power_limit_w: 0.0,
-            rho: air::moist_air_density_cipm2007(a.temp_c, a.pressure_pa, a.humidity),
+            rho,
             wind_mps: a.headwind_mps,
             derate_speedup: 1.0,
             wheel_power_w: 0.0,
         };
-        Car { p, s, cfg, plan, gust_phase }
+        Car { p, s, cfg, plan, gust_phase, air_temp_c }
     }
 
     /// Whether the run is over (stopped and the tail has passed).
@@ -288,10 +301,10 @@ impl Car {
             s.boost_time_s = (s.boost_time_s - DERATE_RECOVERY * dt).max(0.0);
         }
         s.soc -= s.pack_a * dt / p.capacity_c;
-        let heat = s.pack_a * s.pack_a * p.r_pack - COOLING_W_PER_K * (s.pack_temp_c - a.temp_c);
+        let heat = s.pack_a * s.pack_a * p.r_pack - COOLING_W_PER_K * (s.pack_temp_c - self.air_temp_c);
         s.pack_temp_c += heat * dt / p.heat_cap;
         // Windings settle near 140 °C at 200 kW, coolant near 100 °C at 400 kW.
-        s.motor_temp_c += (s.motor_power_w * 9e-6 - (s.motor_temp_c - a.temp_c - 25.0) * 0.02) * dt;
+        s.motor_temp_c += (s.motor_power_w * 9e-6 - (s.motor_temp_c - self.air_temp_c - 25.0) * 0.02) * dt;
         s.coolant_c += (s.engine_power_w * 1.05e-6 - (s.coolant_c - 86.0) * 0.03) * dt;
 
         // Forces and motion. Traction control trims engine torque so the
@@ -356,9 +369,9 @@ impl Car {
             "battery.cell_max_temp" => s.pack_temp_c + 2.0,
             "battery.cell_spread" => 0.021 + s.pack_a * 2e-5,
             "battery.balance_events" => 1200.0 + (s.t_s / 7.0).floor(),
-            "ambient.temp" => a.temp_c,
-            "ambient.pressure" => a.pressure_pa,
-            "ambient.humidity" => a.humidity,
+            "ambient.temp" => a.weather?.temp_c,
+            "ambient.pressure" => a.weather?.pressure_pa,
+            "ambient.humidity" => a.weather?.humidity,
             "ambient.wind" => s.wind_mps,
             "tyre.fl.temp" | "tyre.fr.temp" => 38.0 + s.x_m * 0.0015,
             "tyre.rl.temp" | "tyre.rr.temp" => 41.0 + s.x_m * 0.0022,

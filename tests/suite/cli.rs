@@ -1,6 +1,7 @@
 //! The commands as a user runs them: exit codes, messages, recordings.
 
-use crate::util::{demo, stderr, stdout, termvel, write};
+use crate::util::{demo, root, stderr, stdout, termvel, write};
+use termvel::engine::physics::air;
 
 #[test]
 fn commands_missing_their_arguments_show_their_usage_and_exit_2() {
@@ -114,6 +115,53 @@ fn plan_prints_a_recommendation_and_probabilities() {
     // The same seed gives the same answer.
     let again = termvel(&["plan", "--trials", "400", "--json", "--seed", "9"]);
     assert_eq!(stdout(&again), stdout(&o));
+}
+
+#[test]
+fn plan_says_which_air_it_used_and_uses_the_engines_without_weather() {
+    // Issue 14, item 8: `termvel plan` took the air only from the plan's
+    // weather and did not say so; without weather it now uses the ISA
+    // troposphere at the track's elevation, as the engine does, and says
+    // which in text and JSON.
+    let dir = tempfile::tempdir().unwrap();
+    let text: String = termvel::config::EMBEDDED_PLAN
+        .1
+        .lines()
+        .filter(|l| !(l.starts_with("temp_c") || l.starts_with("pressure_hpa") || l.starts_with("humidity_pct")))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    let bare = write(dir.path(), "no-weather.toml", text);
+    let config = root().join("config").display().to_string();
+    let cases =
+        [(None, "plan_weather", "the plan's weather"), (Some(&bare), "standard_atmosphere", "the standard atmosphere")];
+    for (plan, key, words) in cases {
+        let mut args = vec!["plan", "--trials", "20"];
+        if let Some(p) = plan {
+            args.extend([p.to_str().unwrap(), "--config", config.as_str()]);
+        }
+        let o = termvel(&args);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let line = stdout(&o).lines().find(|l| l.starts_with("conditions:")).unwrap_or_default().to_string();
+        assert!(line.contains(words), "{key}: {line}");
+        args.push("--json");
+        let v: serde_json::Value = serde_json::from_str(&stdout(&termvel(&args))).unwrap();
+        assert_eq!(v["air"]["source"], key);
+        let (t, p, rho) = (
+            v["air"]["temp_c"].as_f64().unwrap(),
+            v["air"]["pressure_pa"].as_f64().unwrap(),
+            v["air_density_kg_m3"].as_f64().unwrap(),
+        );
+        if key == "standard_atmosphere" {
+            // ISA at the demo track's 240 m (ISO 2533), as derived::air_step.
+            let elev = v["air"]["track_elevation_m"].as_f64().unwrap();
+            let (t_k, p_pa, isa_rho) = air::isa_troposphere(air::geopotential_m(elev));
+            // Equal to the last digit JSON keeps.
+            let same = |a: f64, b: f64| (a / b - 1.0).abs() < 1e-12;
+            assert!(same(t, t_k - air::ZERO_C_K) && same(p, p_pa) && same(rho, isa_rho), "{t} {p} {rho}");
+        } else {
+            assert_eq!((t, p), (19.5, 98_400.0));
+        }
+    }
 }
 
 #[test]

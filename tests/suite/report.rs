@@ -219,3 +219,61 @@ fn bad_inputs_to_report_and_export_say_what_and_where() {
     assert_eq!(out.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&out.stderr).contains("/no/such/dir/x.csv"));
 }
+
+#[test]
+fn a_rehearsed_coast_in_a_headwind_gives_the_road_load_a_b_c_it_was_built_with() {
+    // Issue 14, item 9: the report gives the coast-down road load in the
+    // trade's form F = A + B·v + C·v² (SAE J2263; REFERENCES.md "Road load
+    // and coast-down") with its uncertainties. The demo car coasts from
+    // 2 km (throttle 0, no boost) to the brake point in a steady 4 m/s
+    // headwind without gusts. The simulator's truth (sim/car.rs: drag on
+    // the air speed, Crr(v) = c₀ + c₂·v²) expands to
+    //   A = c₀·m·g + ½ρ·CdA·w², B = ρ·CdA·w, C = ½ρ·CdA + c₂·m·g
+    // (expanding ½ρ·CdA·(v + w)²), and the fit must find each within 3 of
+    // its standard deviations.
+    let base = termvel::config::EMBEDDED_PLAN.1;
+    let mut text = base.to_string();
+    for (from, to) in [
+        ("throttle = [[0, 1.0]]", "throttle = [[0, 1.0], [2000, 0.0]]"),
+        ("headwind_mps = 1.4", "headwind_mps = 4.0"),
+        ("gust_mps = 1.2", "gust_mps = 0.0"),
+    ] {
+        assert!(text.contains(from), "the demo plan has {from}");
+        text = text.replace(from, to);
+    }
+    let plan = match termvel::config::validate_text("coast.toml", &text).parsed {
+        Some(termvel::config::Parsed::Plan(p)) => p,
+        _ => panic!("the coast plan is valid"),
+    };
+    let weather = plan.ambient.weather.expect("the demo plan has weather");
+    let (t_c, p_pa, rh, w) = (weather.temp_c, weather.pressure_pa, weather.humidity, 4.0);
+    let (cda, c0) = (plan.car.cda_m2.unwrap(), plan.car.crr0.unwrap());
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("coast.tvrec");
+    std::fs::write(&path, crate::rehearsal::rehearse(plan).recording).unwrap();
+
+    let veh = termvel::config::ConfigSet::embedded().vehicle;
+    let rho = termvel::engine::physics::air::moist_air_density_cipm2007(t_c, p_pa, rh);
+    let mg = veh.mass_kg * termvel::engine::physics::roadload::G_MPS2;
+    let truth = [c0 * mg + 0.5 * rho * cda * w * w, rho * cda * w, 0.5 * rho * cda + veh.crr2_s2_m2 * mg];
+
+    let j = report_json(&[&path]);
+    let c = &j["runs"][0]["estimate"]["coast_curve"];
+    assert!(c.is_object(), "a coast-down fit: {}", j["runs"][0]["estimate"]);
+    let got = [
+        ("A", c["a_n"].as_f64().unwrap(), c["a_sd_n"].as_f64().unwrap()),
+        ("B", c["b_n_s_per_m"].as_f64().unwrap(), c["b_sd_n_s_per_m"].as_f64().unwrap()),
+        ("C", c["c_n_s2_per_m2"].as_f64().unwrap(), c["c_sd_n_s2_per_m2"].as_f64().unwrap()),
+    ];
+    eprintln!("coast fit {got:?} against truth {truth:?}; {c}");
+    for ((what, x, sd), truth) in got.into_iter().zip(truth) {
+        assert!(sd > 0.0 && (x - truth).abs() <= 3.0 * sd, "{what}: {x} ± {sd} against the truth {truth}");
+    }
+    // B is the headwind's: clearly above zero (still air would give 0).
+    assert!(got[1].1 > 3.0 * got[1].2, "B shows the headwind: {got:?}");
+
+    // The text report shows it beside drag area and rolling resistance.
+    let out = termvel(&["report", path.to_str().unwrap()]);
+    let t = String::from_utf8(out.stdout).unwrap();
+    assert!(t.contains("road load (coast)    F = A + B·v + C·v²: A "), "{t}");
+}
