@@ -244,3 +244,25 @@ fn shell_files_cover_every_command_and_install_for_a_user() {
     assert!(home.join(".local/share/zsh/site-functions/_termvel").is_file());
     assert!(home.join(".config/fish/completions/termvel.fish").is_file());
 }
+
+// Issue 15, item 20: plan's probability line was for the best boost start,
+// not the plan's own, and did not say so; it mixed `1100 m` with `4.99 km`
+// and wrote `headwind -1.0–4.0 m/s`.
+#[test]
+fn plan_says_whose_probability_it_prints_in_one_unit_of_distance() {
+    let o = termvel(&["plan", "--trials", "200", "--seed", "3"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let text = stdout(&o);
+    let p = text.lines().find(|l| l.contains("probability of reaching")).expect("a probability line");
+    assert!(p.contains("as planned (boost from 1.10 km)") && p.contains("with the best start ("), "{p}");
+    assert!(!text.contains("1100 m") && text.contains("brake at 5.75 km"), "{text}");
+    assert!(text.contains("headwind -1.0 to 4.0 m/s"), "{text}");
+    assert!(text.contains("to slow to 80 km/h"), "{text}");
+    let o = termvel(&["plan", "--trials", "200", "--seed", "3", "--json"]);
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).expect("JSON");
+    let planned = v["monte_carlo"]["as_planned"]["p_target"].as_f64().expect("the plan's own probability");
+    let best = v["monte_carlo"]["p_target"].as_f64().expect("the best start's probability");
+    // The best start is chosen for the most speed by the brake point, so it
+    // reaches the target at least as often over the same seeded trials.
+    assert!(best >= planned, "best {best} < planned {planned}");
+}
