@@ -691,7 +691,7 @@ pub fn text(s: &Summary) -> String {
     }
     let t = &s.time_order;
     if t.is_clean() {
-        let _ = writeln!(o, "  time order: every event later than the one before");
+        let _ = writeln!(o, "  time order: no jump, gap or step back");
     } else {
         let _ = writeln!(
             o,
