@@ -155,7 +155,7 @@ pub struct RehearseArgs {
 #[derive(Args, Debug)]
 pub struct LiveArgs {
     /// A SocketCAN interface (repeatable), e.g. can0.
-    #[arg(long = "can", value_name = "IFACE")]
+    #[arg(long = "can", value_name = "IFACE", value_parser = parse_iface)]
     pub can: Vec<String>,
     /// A serial port (repeatable): PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME].
     #[arg(long = "serial", value_name = "SPEC")]
@@ -280,6 +280,26 @@ pub fn parse_duration_ns(s: &str) -> Result<TimeNs, String> {
     Ok(ns as TimeNs)
 }
 
+/// A network interface name as the kernel takes it: 1 to 15 bytes, no
+/// whitespace, no '/' (Linux `dev_valid_name`; also "." and ".." are not
+/// names).
+pub fn parse_iface(s: &str) -> Result<String, String> {
+    let shown = crate::printable::clipped(s, 40);
+    if s.is_empty() || s.len() > 15 {
+        return Err(format!("an interface name is 1 to 15 bytes, found {} (\"{shown}\")", s.len()));
+    }
+    if let Some(c) = s.chars().find(|c| c.is_whitespace() || *c == '/' || c.is_control() || *c == ':') {
+        return Err(format!(
+            "an interface name holds no whitespace, '/', ':' or control character, found {} in \"{shown}\"",
+            crate::printable::printable(&c.to_string())
+        ));
+    }
+    if s == "." || s == ".." {
+        return Err(format!("\"{s}\" is not an interface name"));
+    }
+    Ok(s.to_string())
+}
+
 fn parse_speed(s: &str) -> Result<f64, String> {
     let v: f64 =
         s.trim_end_matches('x').parse().map_err(|_| format!("expected a factor like 2 or 0.5, found \"{s}\""))?;
@@ -300,6 +320,19 @@ mod tests {
         assert_eq!(parse_duration_ns("1"), Ok(1_000_000_000));
         assert!(parse_duration_ns("10 parsecs").is_err());
         assert!(parse_duration_ns("0ms").is_err());
+    }
+
+    // Issue 13, item 6: `--can ""`, `--can "a b"` and a name with a newline
+    // were taken, and recorded a header that replay rejected.
+    #[test]
+    fn interface_names_are_checked_as_the_kernel_does() {
+        assert_eq!(parse_iface("can0"), Ok("can0".into()));
+        assert_eq!(parse_iface("vcan-front_15ch"), Ok("vcan-front_15ch".into()));
+        for bad in ["", "a b", "can\n0", "a/b", "can0:1", ".", "..", "sixteen_bytes_xx", "tab\there"] {
+            assert!(parse_iface(bad).is_err(), "{bad:?}");
+        }
+        let e = parse_iface("can\u{1b}[2J").unwrap_err();
+        assert!(e.contains("\\x1b") && !e.contains('\u{1b}'), "{e}");
     }
 
     #[test]

@@ -26,6 +26,8 @@
 //! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
 //!   resizing, and the recording afterwards.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
+//! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
+//!   files without lines, CRLF, escapes on output, long config lines.
 //!
 //! Shared helpers live in `suite/util.rs` and `suite/pty.rs`. The load test
 //! is its own binary (`tests/load.rs`), so it never shares the machine with
@@ -66,5 +68,7 @@ mod report;
 mod screens;
 #[path = "suite/signals.rs"]
 mod signals;
+#[path = "suite/time_and_format.rs"]
+mod time_and_format;
 #[path = "suite/tui.rs"]
 mod tui;

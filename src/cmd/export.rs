@@ -18,6 +18,9 @@ pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
     };
     match r {
         Ok(o) => {
+            for line in o.time_order.describe(&args.file.display().to_string()) {
+                crate::say!("termvel: {}", crate::printable::printable(&line));
+            }
             crate::say!(
                 "termvel: {} rows × {} columns written to {} (config {})",
                 o.rows,

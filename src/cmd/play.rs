@@ -59,7 +59,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().build()?;
         let (_tx, rx) = mpsc::channel(16);
         let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut printer))?;
-        printer.finish_json(&summarise(&outcome).json());
+        printer.finish_json(&summary_json(&outcome));
         drop(printer);
         return finish(&spec, &outcome);
     }
@@ -123,28 +123,33 @@ pub fn summarise(o: &PlayerOutcome) -> Summary {
     let mut s = Summary::from_counters(&snap_counters);
     s.snapshots = o.snapshots;
     s.malformed_lines = o.read_stats.malformed;
-    s.time_reversals = o.read_stats.time_reversals;
+    s.time_reversals = o.read_stats.time.time_reversals;
     s.torn_tail = o.read_stats.torn_tail.is_some();
     s.torn_tail_line = o.read_stats.torn_tail.as_ref().map(|t| t.line);
     s
 }
 
+/// The closing summary as JSON, with what putting the file's times in
+/// order found (`time_order`).
+pub fn summary_json(o: &PlayerOutcome) -> serde_json::Value {
+    let mut j = summarise(o).json();
+    j["summary"]["time_order"] = serde_json::to_value(o.read_stats.time).unwrap_or_default();
+    j
+}
+
 /// Tells the user, on stderr, what was skipped and where.
 pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
     let st = &o.read_stats;
+    let file_s = crate::printable::printable(&file.display().to_string()).into_owned();
+    let file = std::path::Path::new(&file_s);
     for e in st.errors.iter().take(10) {
         crate::say!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
     }
     if st.malformed > 10 {
         crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
     }
-    if let Some((line, back)) = st.first_reversal {
-        crate::say!(
-            "termvel: {}:{line}: time goes back {:.3} s from the event before ({} such events in all); events are applied in file order",
-            file.display(),
-            back as f64 * 1e-9,
-            st.time_reversals
-        );
+    for line in st.time.describe(&file_s) {
+        crate::say!("termvel: {line}");
     }
     // Lines a source sent that did not parse (counted, alerted, kept in
     // the recording) and derived values that were not finite.
@@ -155,8 +160,8 @@ pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
                 "termvel: {}: {} bad lines from {} (last: {})",
                 file.display(),
                 d.parse_errors,
-                s.name,
-                d.last_error.unwrap_or_default()
+                crate::printable::clipped(&s.name, 64),
+                crate::printable::clipped(&d.last_error.unwrap_or_default(), 200)
             );
         }
     }

@@ -49,12 +49,15 @@ pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
                 r.file.display()
             );
         }
+        for line in s.time_order.describe(&r.file.display().to_string()) {
+            crate::say!("termvel: {}", crate::printable::printable(&line));
+        }
         if r.malformed_lines > 0 {
             crate::say!(
                 "termvel: {}: {} malformed lines skipped (first: {})",
                 r.file.display(),
                 r.malformed_lines,
-                r.first_malformed.as_deref().unwrap_or("?")
+                crate::printable::printable(r.first_malformed.as_deref().unwrap_or("?"))
             );
         }
     }

@@ -21,19 +21,32 @@
 //! CAN lines are exactly `candump -L` lines (with nine fraction digits when a
 //! time is not whole microseconds), so `grep '^('` turns a recording into a
 //! log that can-utils and python-can read. Other events use `[time]`. Text
-//! payloads escape control bytes and backslash as `\xNN` and `\\`; bytes that
-//! are not UTF-8 are escaped too, so any serial garbage survives the trip.
-//! A `%source` line may also appear in the body when a source first shows up.
-//! The reader also takes a plain candump log (no header).
+//! payloads escape control bytes and backslash as `\xNN`; bytes that are not
+//! UTF-8 are escaped too, so any serial garbage survives the trip. Source
+//! names (1 to [`MAX_NAME`] bytes) escape spaces as well, so a name is always
+//! one word. A `%source` line may also appear in the body when a source
+//! first shows up.
+//!
+//! An embedded config line is written as it is after `%|`, or escaped after
+//! `%\` when it holds a control character; a line longer than
+//! [`CONFIG_CHUNK_CHARS`] characters continues on `%+` lines, so no line of
+//! the file is longer than the reader accepts. `%config KIND N- ORIGIN` (a
+//! dash after the count) says the text's last line has no line end.
+//!
+//! The property the tests hold: whatever the writer accepts reads back
+//! identically. The reader also takes a plain candump log (no header), and
+//! CRLF line ends.
 
 pub mod config_choice;
 pub mod files;
 pub mod reader;
+pub mod time_order;
 pub mod writer;
 
 pub use config_choice::ConfigChoiceError;
 pub use files::{create_recording, default_record_dir};
 pub use reader::{BodyError, LineError, ReadStats, RecordingError, RecordingReader, SourceDeclError};
+pub use time_order::{TimeOrderStats, TimeStep};
 pub use writer::RecordingWriter;
 
 use crate::config::ConfigText;
@@ -44,7 +57,17 @@ pub const MAGIC: &str = "%termvel-recording";
 /// Format version written by this build.
 pub const VERSION: u32 = 1;
 /// Longest line the reader accepts; longer lines are corrupt and skipped.
-pub const MAX_LINE: usize = 8192;
+/// The writer never writes a longer one: names are short, config lines are
+/// cut into chunks, and text payloads are at most [`MAX_TEXT`] bytes (four
+/// bytes each when every one is escaped).
+pub const MAX_LINE: usize = 64 * 1024;
+/// Longest text payload (a serial line, a mark, a note), bytes; the serial
+/// sources cut lines at 4 KiB. A longer text is cut by the writer and says so.
+pub const MAX_TEXT: usize = (MAX_LINE - 1024) / 4;
+/// Longest source name, bytes (interface names are at most 15).
+pub const MAX_NAME: usize = 64;
+/// Characters of an embedded config line per recording line.
+pub const CONFIG_CHUNK_CHARS: usize = 1024;
 /// File extension of recordings.
 pub const EXTENSION: &str = "tvrec";
 
@@ -73,6 +96,33 @@ pub fn escape_into(out: &mut Vec<u8>, bytes: &[u8]) {
             out.extend_from_slice(&[b'\\', b'x', D[(b >> 4) as usize], D[(b & 15) as usize]]);
         }
     }
+}
+
+/// Escapes a source name: as [`escape_into`], and spaces too, so the name
+/// is one word on every line.
+pub fn escape_name_into(out: &mut Vec<u8>, name: &str) {
+    for part in name.split(' ').enumerate() {
+        if part.0 > 0 {
+            out.extend_from_slice(b"\\x20");
+        }
+        escape_into(out, part.1.as_bytes());
+    }
+}
+
+/// A source name as written in a recording (see [`escape_name_into`]).
+pub fn escaped_name(name: &str) -> String {
+    let mut out = Vec::with_capacity(name.len());
+    escape_name_into(&mut out, name);
+    String::from_utf8(out).expect("escaping keeps UTF-8")
+}
+
+/// Reverses [`escape_name_into`]: `None` for a malformed escape or a name
+/// that is not UTF-8.
+pub fn unescape_name(s: &[u8]) -> Option<String> {
+    if !s.contains(&b'\\') {
+        return std::str::from_utf8(s).ok().map(str::to_string);
+    }
+    String::from_utf8(unescape(s)?).ok()
 }
 
 /// Reverses [`escape_into`]. `None` for a malformed escape.

@@ -4,17 +4,29 @@
 //! location and reason kept (the first hundred), and skipped. A last line
 //! without its newline is a torn tail (power loss, kill): reported, skipped,
 //! everything before it delivered. Memory is bounded by the buffer and the
-//! longest accepted line, whatever the file holds.
+//! longest accepted line, whatever the file holds. Events then pass through
+//! [`super::time_order`], which puts isolated time jumps right and small
+//! reversals in order, and counts what it did.
+//!
+//! Only regular files and pipes are read (a device such as `/dev/zero`
+//! never ends), and a file with no line end in its first
+//! [`NO_LINES_AFTER`] bytes is refused at once rather than skipped forever.
 
 use std::fmt;
 use std::fs::File;
 use std::io::{self, Read};
 use std::path::Path;
 
-use super::{Header, MAGIC, MAX_LINE, VERSION, unescape};
+use super::time_order::{TimeOrder, TimeOrderStats};
+use super::{Header, MAGIC, MAX_LINE, MAX_NAME, VERSION, unescape, unescape_name};
 use crate::config::{ConfigKind, ConfigText};
 use crate::decode::candump::{self, FrameSyntaxError};
-use crate::event::{Event, LinkState, Payload, SourceKind, SourceTable, TimeNs};
+use crate::event::{Event, LinkState, Payload, SourceKind, SourceTable};
+use crate::printable::{clipped, printable};
+
+/// Bytes read without a single line end before a file is refused as
+/// holding no lines.
+pub const NO_LINES_AFTER: usize = 4 << 20;
 
 /// A recording that cannot be read at all.
 #[derive(Debug, thiserror::Error)]
@@ -30,6 +42,36 @@ pub enum RecordingError {
     /// replay as recorded.
     #[error("{path}:{line}: {message}")]
     Header { path: String, line: u64, message: String },
+    /// Not a regular file or a pipe (a device such as `/dev/zero`, a
+    /// directory): it would be read forever or not at all.
+    #[error("{path}: not a regular file ({what}); give a recording or a candump log")]
+    NotAFile { path: String, what: &'static str },
+    /// No line end in the first [`NO_LINES_AFTER`] bytes (a file of NULs,
+    /// binary data).
+    #[error("{path}: no line end in the first {} MiB: this file holds no lines, so it is not a recording or a candump log", NO_LINES_AFTER >> 20)]
+    NoLines { path: String },
+}
+
+/// Refuses what cannot be a recording: a device, a directory, a socket.
+/// Regular files and pipes (`<(…)`, a FIFO) are read.
+pub fn check_readable(file: &File, path: &Path) -> Result<(), RecordingError> {
+    use std::os::unix::fs::FileTypeExt;
+    let path_s = || printable(&path.display().to_string()).into_owned();
+    let t = file.metadata().map_err(|e| RecordingError::Io { path: path_s(), source: e })?.file_type();
+    let what = if t.is_file() || t.is_fifo() {
+        return Ok(());
+    } else if t.is_dir() {
+        "a directory"
+    } else if t.is_char_device() {
+        "a character device"
+    } else if t.is_block_device() {
+        "a block device"
+    } else if t.is_socket() {
+        "a socket"
+    } else {
+        "not a file"
+    };
+    Err(RecordingError::NotAFile { path: path_s(), what })
 }
 
 /// Why a line of a recording's body (or of a candump log) was skipped.
@@ -48,6 +90,13 @@ pub enum BodyError {
     /// A CAN line whose interface name is not UTF-8.
     #[error("CAN line: the interface name is not UTF-8")]
     CanInterfaceNotUtf8,
+    /// A source name longer than the format allows ([`MAX_NAME`] bytes).
+    #[error("source name of {0} bytes: at most {max} allowed", max = MAX_NAME)]
+    NameTooLong(usize),
+    /// A `%source` line in the body naming a source already declared with
+    /// another kind (the name, its kind, the kind now).
+    #[error("source \"{0}\" is already declared as {1}, here as {2}")]
+    SourceKindClash(String, &'static str, &'static str),
     /// A CAN frame from a source declared with another kind.
     #[error("CAN frame from source {0} which is not a CAN source")]
     NotCanSource(String),
@@ -57,8 +106,8 @@ pub enum BodyError {
     /// No space between an event line's time and its source.
     #[error("event line: expected a space after the time")]
     NoSpaceAfterTime,
-    /// An event line's source name is not UTF-8.
-    #[error("event line: source name is not UTF-8")]
+    /// An event line's source name is not UTF-8 or its escape is malformed.
+    #[error("event line: source name is not UTF-8 (or a malformed \\x escape)")]
     SourceNameNotUtf8,
     /// An event line names a source that no `%source` line declared (the
     /// name, cut to 40 characters).
@@ -100,6 +149,23 @@ pub enum SourceDeclError {
     /// A kind this build does not know (the word found).
     #[error("expected a source kind (can, nmea, lines, operator, session), found \"{0}\"")]
     UnknownKind(String),
+    /// A name whose `\xNN` escape is malformed or that is not UTF-8.
+    #[error("a malformed source name \"{0}\"")]
+    BadName(String),
+    /// A name longer than the format allows.
+    #[error("source name of {0} bytes: at most {max} allowed", max = MAX_NAME)]
+    NameTooLong(usize),
+}
+
+/// Which first word of a `%config` chunk line: a new line written as it is
+/// (`%|`), a new line escaped (`%\`), or a continuation (`%+`).
+fn config_chunk(l: &[u8]) -> Option<(u8, &[u8])> {
+    match l {
+        [b'%', b'|', rest @ ..] => Some((b'|', rest)),
+        [b'%', b'\\', rest @ ..] => Some((b'\\', rest)),
+        [b'%', b'+', rest @ ..] => Some((b'+', rest)),
+        _ => None,
+    }
 }
 
 /// A skipped line: where and why.
@@ -126,10 +192,8 @@ pub struct ReadStats {
     /// The first [`ReadStats::KEPT_ERRORS`] malformed lines.
     pub errors: Vec<LineError>,
     pub torn_tail: Option<TornTail>,
-    /// Times an event's timestamp was earlier than the one before it.
-    pub time_reversals: u64,
-    /// The first of them: its line, and how far back it went (ns).
-    pub first_reversal: Option<(u64, TimeNs)>,
+    /// Isolated jumps, gaps and reversals of time, and what was done.
+    pub time: TimeOrderStats,
 }
 
 impl ReadStats {
@@ -147,17 +211,27 @@ pub struct RecordingReader<R: Read> {
     line_no: u64,
     pub header: Header,
     pub stats: ReadStats,
-    prev_t: Option<TimeNs>,
+    /// Events parsed, on their way out in time order.
+    order: TimeOrder,
+    /// The file has ended and the order stage has been flushed.
+    done: bool,
     /// Skipping the rest of an over-long line.
     skipping: bool,
-    /// The source of the previous CAN line (logs rarely switch interface).
-    last_can_source: Option<(String, crate::event::SourceId)>,
+    /// No line end seen yet, anywhere in the input.
+    no_line_yet: bool,
+    /// Bytes read so far.
+    bytes_read: usize,
+    /// The source of the previous CAN line as written (logs rarely switch
+    /// interface).
+    last_can_source: Option<(Vec<u8>, crate::event::SourceId)>,
 }
 
 impl RecordingReader<File> {
     pub fn open(path: &Path) -> Result<RecordingReader<File>, RecordingError> {
-        let f = File::open(path).map_err(|e| RecordingError::Io { path: path.display().to_string(), source: e })?;
-        RecordingReader::new(f, &path.display().to_string())
+        let name = printable(&path.display().to_string()).into_owned();
+        let f = File::open(path).map_err(|e| RecordingError::Io { path: name.clone(), source: e })?;
+        check_readable(&f, path)?;
+        RecordingReader::new(f, &name)
     }
 }
 
@@ -165,6 +239,8 @@ enum Next {
     Line(usize, usize),
     TooLong,
     End,
+    /// [`NO_LINES_AFTER`] bytes without a line end from the start.
+    NoLines,
 }
 
 impl<R: Read> RecordingReader<R> {
@@ -180,8 +256,11 @@ impl<R: Read> RecordingReader<R> {
             line_no: 0,
             header: Header::default(),
             stats: ReadStats::default(),
-            prev_t: None,
+            order: TimeOrder::default(),
+            done: false,
             skipping: false,
+            no_line_yet: true,
+            bytes_read: 0,
             last_can_source: None,
         };
         r.read_header()?;
@@ -222,6 +301,7 @@ impl<R: Read> RecordingReader<R> {
                 }
                 Ok(n) => {
                     self.end += n;
+                    self.bytes_read += n;
                     return Ok(true);
                 }
                 Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
@@ -237,6 +317,7 @@ impl<R: Read> RecordingReader<R> {
                 let (s, e) = (self.start, self.start + p);
                 self.start = e + 1;
                 self.line_no += 1;
+                self.no_line_yet = false;
                 if self.skipping {
                     self.skipping = false;
                     return Ok(Next::TooLong);
@@ -245,6 +326,9 @@ impl<R: Read> RecordingReader<R> {
                     return Ok(Next::TooLong);
                 }
                 return Ok(Next::Line(s, e));
+            }
+            if self.no_line_yet && self.bytes_read > NO_LINES_AFTER {
+                return Ok(Next::NoLines);
             }
             if self.end - self.start > MAX_LINE {
                 // Drop what we have of an over-long line and keep skipping.
@@ -263,8 +347,22 @@ impl<R: Read> RecordingReader<R> {
         }
     }
 
+    fn no_lines(&self) -> RecordingError {
+        RecordingError::NoLines { path: self.name.clone() }
+    }
+
+    /// The next header line without a CR before its line end (CRLF files).
+    fn header_line(&mut self) -> Result<Next, RecordingError> {
+        match self.next_raw().map_err(|e| self.io_err(e))? {
+            Next::Line(s, e) if e > s && self.buf[e - 1] == b'\r' => Ok(Next::Line(s, e - 1)),
+            Next::NoLines => Err(self.no_lines()),
+            n => Ok(n),
+        }
+    }
+
     fn read_header(&mut self) -> Result<(), RecordingError> {
         let (s, e) = match self.next_raw().map_err(|e| self.io_err(e))? {
+            Next::NoLines => return Err(self.no_lines()),
             Next::Line(s, e) => (s, e),
             Next::TooLong => {
                 // Not a termvel header: a candump log whose first line is
@@ -294,7 +392,10 @@ impl<R: Read> RecordingReader<R> {
         }
         let version_txt = String::from_utf8_lossy(&first[MAGIC.len()..]).trim().to_string();
         let version: u32 = version_txt.parse().map_err(|_| {
-            self.header_err(1, format!("expected a format version number after {MAGIC}, found \"{version_txt}\""))
+            self.header_err(
+                1,
+                format!("expected a format version number after {MAGIC}, found \"{}\"", clipped(&version_txt, 40)),
+            )
         })?;
         if version == 0 || version > VERSION {
             return Err(
@@ -304,9 +405,11 @@ impl<R: Read> RecordingReader<R> {
         let mut header = Header { version, is_termvel: true, sources: SourceTable::default(), ..Header::default() };
         loop {
             let line_no = self.line_no + 1;
-            let (s, e) = match self.next_raw().map_err(|e| self.io_err(e))? {
+            let (s, e) = match self.header_line()? {
                 Next::Line(s, e) => (s, e),
-                Next::TooLong => return Err(self.header_err(line_no, "header line longer than 8192 bytes")),
+                Next::TooLong | Next::NoLines => {
+                    return Err(self.header_err(line_no, format!("header line longer than {MAX_LINE} bytes")));
+                }
                 Next::End => {
                     return Err(self.header_err(
                         line_no,
@@ -322,51 +425,116 @@ impl<R: Read> RecordingReader<R> {
             } else if line.starts_with("%program ") {
             } else if let Some(rest) = line.strip_prefix("%source ") {
                 let (name, kind) = parse_source_decl(rest).map_err(|m| self.header_err(line_no, m.to_string()))?;
-                header.sources.intern(name, kind);
-            } else if let Some(rest) = line.strip_prefix("%config ") {
-                let mut parts = rest.splitn(3, ' ');
-                let kind_s = parts.next().unwrap_or("");
-                let kind = ConfigKind::parse(kind_s).ok_or_else(|| {
-                    self.header_err(line_no, format!("expected a config kind after %config, found \"{kind_s}\""))
-                })?;
-                let n: usize = parts
-                    .next()
-                    .and_then(|n| n.parse().ok())
-                    .ok_or_else(|| self.header_err(line_no, "expected a line count after the config kind"))?;
-                let origin = parts.next().unwrap_or("").to_string();
-                let mut text = String::new();
-                for k in 0..n {
-                    let ln = self.line_no + 1;
-                    let (s, e) = match self.next_raw().map_err(|e| self.io_err(e))? {
-                        Next::Line(s, e) => (s, e),
-                        _ => {
-                            return Err(self
-                                .header_err(ln, format!("the embedded {kind_s} config ends after {k} of {n} lines")));
-                        }
-                    };
-                    let l = &self.buf[s..e];
-                    let Some(body) = l.strip_prefix(b"%|") else {
-                        return Err(self.header_err(
-                            ln,
-                            format!("expected line {} of {n} of the embedded {kind_s} config (\"%|…\")", k + 1),
-                        ));
-                    };
-                    text.push_str(&String::from_utf8_lossy(body));
-                    text.push('\n');
+                if let Some(id) = header.sources.find(&name)
+                    && let Some(had) = header.sources.get(id).map(|i| i.kind)
+                    && had != kind
+                {
+                    // Two sources cannot share a name: which one would a
+                    // line from it belong to?
+                    return Err(self.header_err(
+                        line_no,
+                        format!(
+                            "source \"{}\" is declared again with another kind ({}, before: {})",
+                            clipped(&name, 40),
+                            kind.as_str(),
+                            had.as_str()
+                        ),
+                    ));
                 }
-                header.configs.push(ConfigText { kind, origin, text });
+                header.sources.intern(&name, kind);
+            } else if let Some(rest) = line.strip_prefix("%config ") {
+                let config = self.read_config(rest, line_no)?;
+                header.configs.push(config);
             } else {
                 return Err(self.header_err(
                     line_no,
-                    format!(
-                        "expected a header line (%source, %config, %end-header), found \"{}\"",
-                        truncate(&line, 60)
-                    ),
+                    format!("expected a header line (%source, %config, %end-header), found \"{}\"", clipped(&line, 60)),
                 ));
             }
         }
         self.header = header;
         Ok(())
+    }
+
+    /// Reads one embedded config after its `%config ` line (`rest`, at
+    /// `line_no`): its lines as written (`%|`), escaped (`%\`), each
+    /// continued on `%+` lines.
+    fn read_config(&mut self, rest: &str, line_no: u64) -> Result<ConfigText, RecordingError> {
+        let mut parts = rest.splitn(3, ' ');
+        let kind_s = parts.next().unwrap_or("").to_string();
+        let kind = ConfigKind::parse(&kind_s).ok_or_else(|| {
+            self.header_err(
+                line_no,
+                format!("expected a config kind after %config, found \"{}\"", clipped(&kind_s, 40)),
+            )
+        })?;
+        let count = parts.next().unwrap_or("");
+        let (count, no_final_newline) = match count.strip_suffix('-') {
+            Some(c) => (c, true),
+            None => (count, false),
+        };
+        let n: usize =
+            count.parse().map_err(|_| self.header_err(line_no, "expected a line count after the config kind"))?;
+        let origin_raw = parts.next().unwrap_or("");
+        // Recordings before names were escaped wrote the origin as it was.
+        let origin = unescape(origin_raw.as_bytes())
+            .and_then(|b| String::from_utf8(b).ok())
+            .unwrap_or_else(|| origin_raw.to_string());
+        let mut text = String::new();
+        let mut k = 0;
+        // The form of the line being read: b'|' as written, b'\\' escaped.
+        let mut form = None;
+        loop {
+            let ln = self.line_no + 1;
+            let (s, e) = match self.header_line()? {
+                Next::Line(s, e) => (s, e),
+                Next::TooLong | Next::NoLines => {
+                    return Err(self.header_err(ln, format!("header line longer than {MAX_LINE} bytes")));
+                }
+                Next::End if k == n => break,
+                Next::End => {
+                    return Err(
+                        self.header_err(ln, format!("the embedded {kind_s} config ends after {k} of {n} lines"))
+                    );
+                }
+            };
+            let chunk = config_chunk(&self.buf[s..e]).map(|(f, b)| (f, b.to_vec()));
+            let (f, body) = match chunk {
+                Some((b'+', body)) if form.is_some() => (form.expect("checked"), body),
+                Some((f @ (b'|' | b'\\'), body)) if k < n => {
+                    if form.is_some() {
+                        text.push('\n');
+                    }
+                    form = Some(f);
+                    k += 1;
+                    (f, body)
+                }
+                _ if k == n => {
+                    // The next header line: not ours.
+                    self.start = s;
+                    self.line_no -= 1;
+                    break;
+                }
+                _ => {
+                    return Err(self.header_err(
+                        ln,
+                        format!("expected line {} of {n} of the embedded {kind_s} config (\"%|…\")", k + 1),
+                    ));
+                }
+            };
+            if f == b'\\' {
+                let bytes = unescape(&body).ok_or_else(|| {
+                    self.header_err(ln, format!("a malformed \\x escape in line {k} of the embedded {kind_s} config"))
+                })?;
+                text.push_str(&String::from_utf8_lossy(&bytes));
+            } else {
+                text.push_str(&String::from_utf8_lossy(&body));
+            }
+        }
+        if n > 0 && !no_final_newline {
+            text.push('\n');
+        }
+        Ok(ConfigText { kind, origin, text })
     }
 
     fn malformed(&mut self, problem: BodyError) {
@@ -381,6 +549,27 @@ impl<R: Read> RecordingReader<R> {
     /// the stream and is reported as a malformed line.
     pub fn next_event(&mut self) -> Option<Event> {
         loop {
+            if let Some(ev) = self.order.pop() {
+                self.stats.events += 1;
+                return Some(ev);
+            }
+            if self.done {
+                return None;
+            }
+            match self.next_parsed() {
+                Some(ev) => self.order.push(ev, self.line_no),
+                None => {
+                    self.order.finish();
+                    self.done = true;
+                }
+            }
+            self.stats.time = self.order.stats;
+        }
+    }
+
+    /// The next event in file order, as its line says.
+    fn next_parsed(&mut self) -> Option<Event> {
+        loop {
             let (s, e) = match self.next_raw() {
                 Ok(Next::Line(s, e)) => (s, e),
                 Ok(Next::TooLong) => {
@@ -389,6 +578,12 @@ impl<R: Read> RecordingReader<R> {
                     continue;
                 }
                 Ok(Next::End) => return None,
+                Ok(Next::NoLines) => {
+                    // Only before the first line end, which the header
+                    // reading has passed: not reached.
+                    self.no_line_yet = false;
+                    continue;
+                }
                 Err(err) => {
                     self.malformed(BodyError::Read(err));
                     self.eof = true;
@@ -398,19 +593,7 @@ impl<R: Read> RecordingReader<R> {
             };
             self.stats.lines += 1;
             match self.parse_body(s, e) {
-                Ok(Some(ev)) => {
-                    if let Some(p) = self.prev_t
-                        && ev.t_ns < p
-                    {
-                        self.stats.time_reversals += 1;
-                        if self.stats.first_reversal.is_none() {
-                            self.stats.first_reversal = Some((self.line_no, p - ev.t_ns));
-                        }
-                    }
-                    self.prev_t = Some(ev.t_ns);
-                    self.stats.events += 1;
-                    return Some(ev);
-                }
+                Ok(Some(ev)) => return Some(ev),
                 Ok(None) => continue,
                 Err(m) => self.malformed(m),
             }
@@ -423,24 +606,27 @@ impl<R: Read> RecordingReader<R> {
         match line.first() {
             None => Ok(None),
             Some(b'(') => {
-                let (t_ns, iface, frame) = candump::parse_line_bytes(line).map_err(BodyError::Can)?;
+                let (t_ns, raw, frame) = candump::parse_line_bytes(line).map_err(BodyError::Can)?;
                 if let Some((name, id)) = &self.last_can_source
-                    && name.as_bytes() == iface
+                    && name.as_slice() == raw
                 {
                     return Ok(Some(Event::new(t_ns, *id, Payload::Can(frame))));
                 }
-                let iface = std::str::from_utf8(iface).map_err(|_| BodyError::CanInterfaceNotUtf8)?;
-                let src = match self.header.sources.find(iface) {
+                let iface = unescape_name(raw).ok_or(BodyError::CanInterfaceNotUtf8)?;
+                if iface.len() > MAX_NAME {
+                    return Err(BodyError::NameTooLong(iface.len()));
+                }
+                let src = match self.header.sources.find(&iface) {
                     Some(id) => {
                         let kind = self.header.sources.get(id).map(|i| i.kind);
                         if kind != Some(SourceKind::Can) {
-                            return Err(BodyError::NotCanSource(iface.to_string()));
+                            return Err(BodyError::NotCanSource(clipped(&iface, 40).into_owned()));
                         }
                         id
                     }
-                    None => self.header.sources.intern(iface, SourceKind::Can),
+                    None => self.header.sources.intern(&iface, SourceKind::Can),
                 };
-                self.last_can_source = Some((iface.to_string(), src));
+                self.last_can_source = Some((raw.to_vec(), src));
                 Ok(Some(Event::new(t_ns, src, Payload::Can(frame))))
             }
             Some(b'[') => {
@@ -448,9 +634,9 @@ impl<R: Read> RecordingReader<R> {
                 let rest = line.get(i..).unwrap_or(b"");
                 let rest = rest.strip_prefix(b" ").ok_or(BodyError::NoSpaceAfterTime)?;
                 let (name, rest) = split_word(rest);
-                let name = std::str::from_utf8(name).map_err(|_| BodyError::SourceNameNotUtf8)?;
-                let Some(src) = self.header.sources.find(name) else {
-                    return Err(BodyError::UndeclaredSource(truncate(name, 40)));
+                let name = unescape_name(name).ok_or(BodyError::SourceNameNotUtf8)?;
+                let Some(src) = self.header.sources.find(&name) else {
+                    return Err(BodyError::UndeclaredSource(clipped(&name, 40).into_owned()));
                 };
                 let (verb, arg) = split_word(rest);
                 let text = || unescape(arg).ok_or(BodyError::BadEscape);
@@ -473,7 +659,9 @@ impl<R: Read> RecordingReader<R> {
                         let reason = utf8(unescape(reason).ok_or(BodyError::BadEscape)?)?;
                         Payload::Link(state, reason)
                     }
-                    other => return Err(BodyError::UnknownKind(truncate(&String::from_utf8_lossy(other), 20))),
+                    other => {
+                        return Err(BodyError::UnknownKind(clipped(&String::from_utf8_lossy(other), 20).into_owned()));
+                    }
                 };
                 Ok(Some(Event::new(t_ns, src, payload)))
             }
@@ -481,13 +669,23 @@ impl<R: Read> RecordingReader<R> {
                 if let Some(rest) = line.strip_prefix(b"%source ") {
                     let rest = String::from_utf8_lossy(rest).into_owned();
                     let (name, kind) = parse_source_decl(&rest)?;
-                    self.header.sources.intern(name, kind);
+                    if let Some(id) = self.header.sources.find(&name)
+                        && let Some(had) = self.header.sources.get(id).map(|i| i.kind)
+                        && had != kind
+                    {
+                        return Err(BodyError::SourceKindClash(
+                            clipped(&name, 40).into_owned(),
+                            had.as_str(),
+                            kind.as_str(),
+                        ));
+                    }
+                    self.header.sources.intern(&name, kind);
                     Ok(None)
                 } else {
-                    Err(BodyError::HeaderLineInBody(truncate(&String::from_utf8_lossy(line), 40)))
+                    Err(BodyError::HeaderLineInBody(clipped(&String::from_utf8_lossy(line), 40).into_owned()))
                 }
             }
-            Some(_) => Err(BodyError::Unrecognised(truncate(&String::from_utf8_lossy(line), 30))),
+            Some(_) => Err(BodyError::Unrecognised(clipped(&String::from_utf8_lossy(line), 30).into_owned())),
         }
     }
 
@@ -509,16 +707,18 @@ fn split_word(s: &[u8]) -> (&[u8], &[u8]) {
     }
 }
 
-fn parse_source_decl(rest: &str) -> Result<(&str, SourceKind), SourceDeclError> {
+fn parse_source_decl(rest: &str) -> Result<(String, SourceKind), SourceDeclError> {
     let mut parts = rest.split(' ');
     let name = parts.next().filter(|n| !n.is_empty()).ok_or(SourceDeclError::NoName)?;
+    let name =
+        unescape_name(name.as_bytes()).ok_or_else(|| SourceDeclError::BadName(clipped(name, 40).into_owned()))?;
+    if name.len() > MAX_NAME {
+        return Err(SourceDeclError::NameTooLong(name.len()));
+    }
     let kind_s = parts.next().unwrap_or("");
-    let kind = SourceKind::parse(kind_s).ok_or_else(|| SourceDeclError::UnknownKind(kind_s.to_string()))?;
+    let kind =
+        SourceKind::parse(kind_s).ok_or_else(|| SourceDeclError::UnknownKind(clipped(kind_s, 20).into_owned()))?;
     Ok((name, kind))
-}
-
-fn truncate(s: &str, n: usize) -> String {
-    if s.chars().count() <= n { s.to_string() } else { format!("{}…", s.chars().take(n).collect::<String>()) }
 }
 
 impl fmt::Display for LineError {

@@ -25,7 +25,8 @@ use crate::engine::derived::AirOrigin;
 use crate::engine::estimators::DeratingFit;
 use crate::engine::{Derived, Engine, EngineOptions, Snapshot};
 use crate::event::{NS_PER_S, Payload, SourceKind, TimeNs};
-use crate::record::{RecordingError, RecordingReader};
+use crate::printable::{clipped, printable};
+use crate::record::{RecordingError, RecordingReader, TimeOrderStats};
 
 /// Snapshot interval of a report, ns.
 pub const REPORT_EVERY_NS: TimeNs = NS_PER_S / 10;
@@ -136,6 +137,8 @@ pub struct Run {
     pub malformed_lines: u64,
     pub first_malformed: Option<String>,
     pub torn_tail_line: Option<u64>,
+    /// Time jumps, gaps and reversals in the file, and what was done.
+    pub time_order: TimeOrderStats,
 }
 
 /// Why a run cannot be reported on.
@@ -187,9 +190,11 @@ impl Run {
     /// with (bytes read, file size).
     pub fn read(file: &Path, config: &[PathBuf], progress: &mut dyn FnMut(u64, u64)) -> Result<Run, ReportError> {
         let f = std::fs::File::open(file).map_err(|source| ReportError::Open { file: file.to_path_buf(), source })?;
+        crate::record::reader::check_readable(&f, file)?;
         let size = f.metadata().map(|m| m.len()).unwrap_or(0);
         let read = Arc::new(AtomicU64::new(0));
-        let mut r = RecordingReader::new(Counting { inner: f, read: read.clone() }, &file.display().to_string())?;
+        let mut r =
+            RecordingReader::new(Counting { inner: f, read: read.clone() }, &printable(&file.display().to_string()))?;
         let (cfg, origin) = r.header.config_set(config, file)?;
         let cfg = Arc::new(cfg);
         let mut engine = Engine::new(cfg.clone(), EngineOptions { snapshot_every_ns: REPORT_EVERY_NS });
@@ -266,6 +271,7 @@ impl Run {
             malformed_lines: r.stats.malformed,
             first_malformed: r.stats.errors.first().map(|e| r.describe(e)),
             torn_tail_line: r.stats.torn_tail.as_ref().map(|t| t.line),
+            time_order: r.stats.time,
         })
     }
 
@@ -402,6 +408,8 @@ pub struct Summary {
     pub can_frames: u64,
     pub malformed_lines: u64,
     pub torn_tail_line: Option<u64>,
+    /// Time jumps, gaps and reversals in the file, and what was done.
+    pub time_order: TimeOrderStats,
 }
 
 /// Integral of `f` over the rows (trapezoids), skipping gaps where either
@@ -512,6 +520,7 @@ impl Summary {
             can_frames: run.can_frames,
             malformed_lines: run.malformed_lines,
             torn_tail_line: run.torn_tail_line,
+            time_order: run.time_order,
         }
     }
 }
@@ -563,8 +572,11 @@ fn clock(t_s: f64) -> String {
 pub fn text(s: &Summary) -> String {
     use std::fmt::Write as _;
     let mut o = String::new();
-    let _ = writeln!(o, "termvel report: {}", s.file);
-    let _ = writeln!(o, "  {} on {}; config {}", s.vehicle, s.track, s.config);
+    // Every text from the file or its config is escaped: a recording must
+    // not drive the reader's terminal.
+    let _ = writeln!(o, "termvel report: {}", printable(&s.file));
+    let _ =
+        writeln!(o, "  {} on {}; config {}", clipped(&s.vehicle, 120), clipped(&s.track, 120), printable(&s.config));
     let _ = writeln!(o, "  {}", crate::CAUTION);
     let _ = writeln!(o);
     let _ = writeln!(o, "run");
@@ -684,13 +696,13 @@ pub fn text(s: &Summary) -> String {
     let _ = writeln!(o);
     let _ = writeln!(o, "marks ({})", s.marks.len());
     for m in &s.marks {
-        let _ = writeln!(o, "  {:>8}  {}", clock(m.t_s), m.text);
+        let _ = writeln!(o, "  {:>8}  {}", clock(m.t_s), clipped(&m.text, 500));
     }
     let raises = s.alerts.iter().filter(|a| a.what == "raise").count();
     let _ = writeln!(o);
     let _ = writeln!(o, "alerts ({raises} raised)");
     for a in s.alerts.iter().filter(|a| a.what != "ack") {
-        let _ = writeln!(o, "  {:>8}  {:<5} {:<7} {}", clock(a.t_s), a.what, a.severity, a.message);
+        let _ = writeln!(o, "  {:>8}  {:<5} {:<7} {}", clock(a.t_s), a.what, a.severity, clipped(&a.message, 500));
     }
     let _ = writeln!(o);
     let _ = writeln!(o, "data quality");
@@ -703,11 +715,32 @@ pub fn text(s: &Summary) -> String {
         let _ = writeln!(
             o,
             "  {:<10} {:<6} {:>10} {:>9.1} {:>6} {:>10} {:>10} {:>6}",
-            q.name, q.kind, q.events, q.rate_per_s, q.gaps, q.parse_errors, q.can_error_frames, q.lost_frames
+            clipped(&q.name, 64),
+            q.kind,
+            q.events,
+            q.rate_per_s,
+            q.gaps,
+            q.parse_errors,
+            q.can_error_frames,
+            q.lost_frames
         );
     }
     for st in &s.stale {
-        let _ = writeln!(o, "  stale: {:<24} {} period(s), {:.1} s in all", st.what, st.periods, st.total_s);
+        let _ =
+            writeln!(o, "  stale: {:<24} {} period(s), {:.1} s in all", clipped(&st.what, 64), st.periods, st.total_s);
+    }
+    let t = &s.time_order;
+    if t.is_clean() {
+        let _ = writeln!(o, "  time order: no jump, gap or step back");
+    } else {
+        let _ = writeln!(
+            o,
+            "  time order: {} isolated jumps, {} gaps, time went back {} times ({} put back in order, {} applied in file order)",
+            t.isolated_jumps, t.gaps, t.time_reversals, t.reordered, t.applied_out_of_order
+        );
+        for line in t.describe(&s.file) {
+            let _ = writeln!(o, "    {}", printable(&line));
+        }
     }
     let _ = writeln!(
         o,
@@ -725,8 +758,8 @@ pub fn comparison_text(a: &Summary, b: &Summary) -> String {
     use std::fmt::Write as _;
     let mut o = String::new();
     let _ = writeln!(o, "termvel comparison");
-    let _ = writeln!(o, "  A  {}", a.file);
-    let _ = writeln!(o, "  B  {}", b.file);
+    let _ = writeln!(o, "  A  {}", printable(&a.file));
+    let _ = writeln!(o, "  B  {}", printable(&b.file));
     let _ = writeln!(o, "  {}", crate::CAUTION);
     let _ = writeln!(o);
     let _ = writeln!(o, "  {:<28} {:>14} {:>14} {:>14}", "", "A", "B", "B − A");

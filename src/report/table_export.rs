@@ -367,6 +367,8 @@ pub struct ExportOutcome {
     pub rows: u64,
     pub columns: usize,
     pub config_origin: String,
+    /// Time jumps, gaps and reversals in the file, and what was done.
+    pub time_order: crate::record::TimeOrderStats,
 }
 
 /// Opens a recording and its config (as a report does).
@@ -459,7 +461,7 @@ pub fn resampled(
         return Err(e);
     }
     sink.finish()?;
-    Ok(ExportOutcome { rows, columns: cols.len(), config_origin: origin })
+    Ok(ExportOutcome { rows, columns: cols.len(), config_origin: origin, time_order: r.stats.time })
 }
 
 /// Long-form export: every decoded sample, and the derived quantities at
@@ -546,7 +548,7 @@ pub fn long(
         derived_rows(&s, t0, &mut sink, &mut rows)?;
     }
     sink.finish()?;
-    Ok(ExportOutcome { rows, columns: cols.len(), config_origin: origin })
+    Ok(ExportOutcome { rows, columns: cols.len(), config_origin: origin, time_order: r.stats.time })
 }
 
 /// Parses a rate such as `50Hz`, `10hz` or `0.5Hz` into a period in ns.

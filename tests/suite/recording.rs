@@ -133,7 +133,7 @@ fn malformed_lines_are_counted_located_and_skipped() {
             bad_at.push(i as u64 + 2 + bad_at.len() as u64);
         }
     }
-    damaged.push_str(&"x".repeat(20_000));
+    damaged.push_str(&"x".repeat(70_000));
     damaged.push('\n');
     let (evs, r) = read_all(damaged.as_bytes());
     assert_eq!(evs, clean, "the good lines replay exactly as before");
