@@ -44,6 +44,7 @@ pub fn demo_app(secs: f64, color: bool) -> App {
                 recording: Some("/rec/termvel-20260314-074210-replay.tvrec".into()),
                 record_failures: 0,
                 events_fed: 0,
+                ..StreamStatus::default()
             };
             app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status }));
         }
