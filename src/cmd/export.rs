@@ -27,6 +27,9 @@ pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
             );
             Ok(ExitCode::SUCCESS)
         }
+        // Writing failed (the message names the file and what failed):
+        // nothing is left at --out; anything else is unusable input.
+        Err(e @ table_export::ExportError::Output(_)) => super::failed(e),
         Err(e) => super::unusable(e),
     }
 }

@@ -53,13 +53,21 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Plan(a)) => plan::run(a),
         Some(Command::Envelope(a)) => envelope::run(a),
     };
-    match result {
+    let code = match result {
         Ok(code) => code,
         Err(e) => {
             crate::say!("termvel: {e:#}");
-            ExitCode::from(EXIT_FAILED)
+            return ExitCode::from(EXIT_FAILED);
+        }
+    };
+    // Whatever the command, output it could not print is a failure.
+    if let Some(e) = crate::stdout_error() {
+        crate::say!("termvel: cannot write to standard output: {e}");
+        if code == ExitCode::SUCCESS {
+            return ExitCode::from(EXIT_FAILED);
         }
     }
+    code
 }
 
 /// Prints a one-line reason and returns the unusable-input exit code.

@@ -172,3 +172,72 @@ fn plots_on_a_full_disk_name_the_file_that_failed() {
         .unwrap_or_default();
     assert!(partial.iter().all(|n: &String| !n.starts_with('.')), "no temporary left: {partial:?}");
 }
+
+// Issue 13, item 2: `export same.tvrec --to csv --out same.tvrec` (and
+// through a symlink) replaced the recording with a CSV.
+#[test]
+fn an_export_onto_its_input_is_refused_and_the_input_is_kept() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("same.tvrec");
+    std::fs::copy(demo(), &input).unwrap();
+    let before = std::fs::read(&input).unwrap();
+    let link = dir.path().join("link.csv");
+    std::os::unix::fs::symlink(&input, &link).unwrap();
+    for out in [&input, &link] {
+        for to in ["csv", "parquet"] {
+            let o = termvel(&["export", input.to_str().unwrap(), "--to", to, "--out", out.to_str().unwrap()]);
+            let err = stderr(&o);
+            assert_eq!(o.status.code(), Some(2), "{err}");
+            assert!(err.contains("refusing to overwrite") && err.contains(out.to_str().unwrap()), "{err}");
+        }
+    }
+    assert_eq!(std::fs::read(&input).unwrap(), before, "the recording is untouched");
+    assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 2, "no other file");
+}
+
+/// Runs termvel with stdout on /dev/full.
+fn to_dev_full(args: &[&str]) -> std::process::Output {
+    let full = std::fs::OpenOptions::new().write(true).open("/dev/full").unwrap();
+    Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(args)
+        .current_dir(root())
+        .stdout(full)
+        .stderr(Stdio::piped())
+        .output()
+        .unwrap()
+}
+
+// Issue 13, item 11: `report --json D > /dev/full` and `replay --headless
+// … > /dev/full` exited 0.
+#[test]
+fn output_that_cannot_be_written_exits_1_and_says_so() {
+    let d = demo();
+    let d = d.to_str().unwrap();
+    for args in [vec!["report", "--json", d], vec!["report", d], vec!["replay", "--headless", "--no-record", d]] {
+        let o = to_dev_full(&args);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(1), "{args:?}: {err}");
+        assert!(err.contains("cannot write to standard output: No space left"), "{args:?}: {err}");
+    }
+    // A reader that goes away (`| head`) is not a failure.
+    let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["replay", "--headless", "--no-record", d])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::null())
+        .spawn()
+        .unwrap();
+    drop(child.stdout.take());
+    assert_eq!(child.wait().unwrap().code(), Some(0));
+}
+
+// Issue 13, item 11: `report --plots README.md` printed the whole report,
+// then `File exists (os error 17)`.
+#[test]
+fn a_plots_folder_that_is_a_file_is_refused_before_the_report_is_printed() {
+    let o = termvel(&["report", demo().to_str().unwrap(), "--plots", "README.md"]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(err.contains("README.md: --plots needs a folder"), "{err}");
+    assert!(stdout(&o).is_empty(), "nothing printed: {}", stdout(&o));
+}
