@@ -241,3 +241,31 @@ fn a_plots_folder_that_is_a_file_is_refused_before_the_report_is_printed() {
     assert!(err.contains("README.md: --plots needs a folder"), "{err}");
     assert!(stdout(&o).is_empty(), "nothing printed: {}", stdout(&o));
 }
+
+// Issue 13, item 13: `lost 18446744073709551615` twice wrapped the count
+// (a panic in a debug build), and the recorder's own `lost` line (events
+// it dropped on a full disk) raised no alert on replay or in the report.
+#[test]
+fn lost_counts_saturate_and_the_recorders_losses_alert_on_replay_and_report() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(demo()).unwrap();
+    let mut lines: Vec<&str> = text.lines().collect();
+    let at = lines.iter().position(|l| l.starts_with("[1773474135.600000]")).unwrap();
+    lines.insert(at, "[1773474135.600000] session lost 12");
+    lines.insert(at, "[1773474135.500000] can0 lost 18446744073709551615");
+    lines.insert(at, "[1773474135.500000] can0 lost 18446744073709551615");
+    let file = dir.path().join("lost.tvrec");
+    std::fs::write(&file, lines.join("\n") + "\n").unwrap();
+    let f = file.to_str().unwrap();
+    let o = termvel(&["replay", "--headless", "--no-record", f]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(out.contains("\"key\":\"lost:recording\""), "the recorder's losses alert on replay");
+    assert!(out.contains("\"key\":\"lost:can0\""));
+    let o = termvel(&["report", "--json", f]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let j: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    let text = j.to_string();
+    assert!(text.contains("the recorder dropped 12 events"), "in the report's alerts");
+    assert!(text.contains("\"lost_frames\":18446744073709551615"), "saturated, not wrapped: {text}");
+}
