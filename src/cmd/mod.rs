@@ -11,8 +11,9 @@
 //!   missing events), or the run itself failed. The message names the path
 //!   and what failed.
 //! - **2** ([`EXIT_UNUSABLE`]): unusable input: a config, a file or an
-//!   argument that cannot be used (an output that is the input, a plots
-//!   directory that is a file); nothing was run or written. Command-line
+//!   argument that cannot be used (an output that is the input or cannot
+//!   be created, a plots directory that is a file); nothing was run or
+//!   written. Command-line
 //!   syntax errors are 2 as well.
 
 pub mod check;

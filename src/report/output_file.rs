@@ -8,6 +8,9 @@
 use std::fs::File;
 use std::path::{Path, PathBuf};
 
+/// What failed when the file could not be created.
+const CANNOT_CREATE: &str = "cannot create";
+
 /// An output file that could not be written, with its path and what failed.
 #[derive(Debug, thiserror::Error)]
 #[error("{}: {what}: {source}", path.display())]
@@ -21,6 +24,12 @@ pub struct OutputError {
 }
 
 impl OutputError {
+    /// Whether the file could not even be created (a folder missing, no
+    /// permission): the path is unusable and nothing was written.
+    pub fn is_create(&self) -> bool {
+        self.what == CANNOT_CREATE
+    }
+
     /// `what` failed on `path`.
     pub fn new<'a>(path: &'a Path, what: &'static str) -> impl FnOnce(std::io::Error) -> OutputError + 'a {
         move |source| OutputError { path: path.to_path_buf(), what, source }
@@ -50,7 +59,7 @@ impl PendingFile {
     /// Creates the temporary beside `path` and opens it for writing.
     pub fn create(path: &Path) -> Result<(PendingFile, File), OutputError> {
         let p = PendingFile::beside(path);
-        let f = File::create(&p.tmp).map_err(OutputError::new(path, "cannot create"))?;
+        let f = File::create(&p.tmp).map_err(OutputError::new(path, CANNOT_CREATE))?;
         Ok((p, f))
     }
 
