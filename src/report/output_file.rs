@@ -141,8 +141,6 @@ mod tests {
         assert!(is_same_file(&input, &link));
         assert!(is_same_file(&input, &dir.path().join(".").join("run.tvrec")));
         assert!(!is_same_file(&input, &dir.path().join("run.csv")));
-        // A dangling link to the input's path: the input exists, so it
-        // resolves to it.
         let other = dir.path().join("other.tvrec");
         std::fs::write(&other, b"y").unwrap();
         assert!(!is_same_file(&input, &other));

@@ -99,7 +99,10 @@ impl<W: RecordFile> Pipeline<W> {
         self.status.record_failures = o.failures;
         self.status.record_dropped = o.dropped;
         self.status.record_held = r.held();
-        if r.failing().is_some() != self.status.record_error.is_some() {
+        let failing = r.failing().is_some();
+        // The alert is raised again on an engine made afresh (a seek back)
+        // while the file still fails.
+        if failing != self.status.record_error.is_some() || (failing && !self.engine.alerts.is_active("recording")) {
             self.status.record_error = r.failing().map(str::to_string);
             let t = self.engine.now_ns().unwrap_or(0);
             crate::engine::alerts::health::recording(&mut self.engine.alerts, t, r.failing());

@@ -167,10 +167,20 @@ fn plots_on_a_full_disk_name_the_file_that_failed() {
     assert_eq!(o.status.code(), Some(1), "{err}");
     assert!(err.contains(dir.to_str().unwrap()) && err.contains("No space left"), "{err}");
     assert!(!err.contains("BackendError") && !err.contains("Os {"), "no debug dump: {err}");
-    let partial: Vec<_> = std::fs::read_dir(&dir)
-        .map(|d| d.map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect())
-        .unwrap_or_default();
-    assert!(partial.iter().all(|n: &String| !n.starts_with('.')), "no temporary left: {partial:?}");
+    // Issue 13, item 2: the plot being written when the disk filled was
+    // left behind, cut short. What is there now is whole, and no temporary.
+    for e in std::fs::read_dir(&dir).unwrap() {
+        let p = e.unwrap().path();
+        let name = p.file_name().unwrap().to_string_lossy().into_owned();
+        assert!(!name.starts_with('.'), "no temporary left: {name}");
+        let bytes = std::fs::read(&p).unwrap();
+        let whole = match p.extension().and_then(|x| x.to_str()) {
+            Some("svg") => bytes.trim_ascii_end().ends_with(b"</svg>"),
+            Some("png") => bytes.ends_with(b"IEND\xAE\x42\x60\x82"),
+            _ => false,
+        };
+        assert!(whole, "{name}: a partial plot ({} bytes)", bytes.len());
+    }
 }
 
 // Issue 13, item 2: `export same.tvrec --to csv --out same.tvrec` (and
