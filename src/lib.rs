@@ -64,6 +64,7 @@ pub mod engine;
 pub mod envelope;
 pub mod event;
 pub mod headless;
+pub mod output_file;
 pub mod planner;
 pub mod printable;
 pub mod record;

@@ -7,7 +7,6 @@
 //! engineer asks for after a run. Nothing here reads a clock: a report of a
 //! file is the same every time.
 
-pub mod output_file;
 pub mod plots;
 pub mod table_export;
 

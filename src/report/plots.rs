@@ -21,9 +21,9 @@ use plotters::coord::types::RangedCoordf64;
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 
-use super::output_file::PendingFile;
 use super::{Run, Summary};
 use crate::engine::physics::roadload::{RoadLoadInputs, road_load};
+use crate::output_file::PendingFile;
 
 const W: u32 = 1100;
 const H: u32 = 650;
@@ -56,7 +56,7 @@ pub enum PlotError {
     /// A plot drawn whole could not be put in place (synced and renamed
     /// from its temporary name).
     #[error(transparent)]
-    Output(#[from] super::output_file::OutputError),
+    Output(#[from] crate::output_file::OutputError),
     /// Drawing or writing one plot file failed.
     #[error("{}: {what}: {source}", file.display())]
     Draw {

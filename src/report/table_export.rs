@@ -21,13 +21,13 @@ use std::sync::Arc;
 
 use serde_json::Value;
 
-use super::output_file::{OutputError, PendingFile, is_same_file};
 use crate::config::ConfigSet;
 use crate::decode::{Decoder, Sample};
 use crate::engine::derived::Derived;
 use crate::engine::quantities::{self, QUANTITIES, Quantity, Reading};
 use crate::engine::{Engine, EngineOptions, Snapshot};
 use crate::event::{NS_PER_S, Payload, SourceKind, TimeNs};
+use crate::output_file::{OutputError, PendingFile, is_same_file};
 use crate::record::{RecordingError, RecordingReader};
 
 /// Output format.

@@ -279,3 +279,20 @@ fn lost_counts_saturate_and_the_recorders_losses_alert_on_replay_and_report() {
     assert!(text.contains("the recorder dropped 12 events"), "in the report's alerts");
     assert!(text.contains("\"lost_frames\":18446744073709551615"), "saturated, not wrapped: {text}");
 }
+
+// Issue 13, item 11: `envelope --plots` on a full disk exited 1 with a raw
+// debug dump (`BackendError(DrawingError(Os { code: 28 … }))`) naming no
+// file, and left its temporary behind.
+#[test]
+fn envelope_plots_on_a_full_disk_name_the_file_and_leave_nothing() {
+    let Some(fs) = Tmpfs::mount("16k") else { return };
+    let dir = fs.path.join("p");
+    let o = termvel(&["envelope", "--plots", dir.to_str().unwrap()]);
+    let err = stderr(&o);
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    let svg = dir.join("envelope-power-speed.svg");
+    assert!(err.contains(svg.to_str().unwrap()) && err.contains("No space left"), "{err}");
+    assert!(!err.contains("Os {") && !err.contains("BackendError("), "no debug dump: {err}");
+    let left: Vec<_> = std::fs::read_dir(&dir).unwrap().map(|e| e.unwrap().file_name()).collect();
+    assert!(left.is_empty(), "no partial file or temporary: {left:?}");
+}
