@@ -455,7 +455,7 @@ mod tests {
     fn sizes_and_flags_are_classified_and_each_problem_is_counted_as_an_error() {
         let good = classic(0x123, 2, &[1, 2]);
         let frame = CanFrame::Data(DataFrame::new(CanId::Standard(0x123), &[1, 2]).unwrap());
-        assert_eq!(classify(&good, 0), (Ok(frame.clone()), None));
+        assert_eq!(classify(&good, 0), (Ok(frame), None));
         // The ancillary data cut: the frame is kept, the problem reported.
         assert_eq!(classify(&good, libc::MSG_CTRUNC), (Ok(frame), Some(RawProblem::ControlTruncated)));
         // Sizes that are no frame, and a frame cut short.
