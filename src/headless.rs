@@ -121,6 +121,31 @@ pub struct Summary {
     pub torn_tail: bool,
     /// Line number of the torn last line, when there is one.
     pub torn_tail_line: Option<u64>,
+    /// What the session's recorder did, when it recorded.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub recording: Option<RecordingSummary>,
+}
+
+/// The recorder's figures in the closing summary: what is in the file, and
+/// what the file failed to take.
+#[derive(Clone, Debug, Default, PartialEq, Eq, serde::Serialize)]
+pub struct RecordingSummary {
+    pub path: String,
+    /// Events in the file, whole.
+    pub recorded_events: u64,
+    /// Times the file stopped taking writes.
+    pub failures: u64,
+    /// Events held in memory while the file failed, then written.
+    pub held_then_written: u64,
+    /// Events dropped because the memory buffer was full (counted in the
+    /// file by a `lost` line of the session).
+    pub dropped_events: u64,
+    /// Events still unwritten at the end: not in the file.
+    pub unwritten_events: u64,
+    /// Whether every event of the session is in the file.
+    pub complete: bool,
+    /// The first error, naming the file and what failed.
+    pub error: Option<String>,
 }
 
 impl Summary {

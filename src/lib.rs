@@ -23,13 +23,35 @@ macro_rules! say {
     }};
 }
 
-/// Prints a line to stdout, ignoring a closed stdout (`| head`).
+/// Prints a line to stdout, ignoring a closed stdout (`| head`); any other
+/// failure (a full disk) is kept for the exit code ([`stdout_error`]).
 #[macro_export]
 macro_rules! out {
     ($($t:tt)*) => {{
         use std::io::Write as _;
-        let _ = writeln!(std::io::stdout(), $($t)*);
+        let mut o = std::io::stdout().lock();
+        if let Err(e) = writeln!(o, $($t)*).and_then(|()| o.flush()) {
+            $crate::note_stdout_error(e);
+        }
     }};
+}
+
+/// The first failure to write standard output, other than a reader that
+/// went away.
+static STDOUT_ERROR: std::sync::OnceLock<String> = std::sync::OnceLock::new();
+
+/// Keeps `e` as standard output's failure, unless it is a broken pipe (the
+/// reader's choice, not a failure).
+pub fn note_stdout_error(e: std::io::Error) {
+    if e.kind() != std::io::ErrorKind::BrokenPipe {
+        let _ = STDOUT_ERROR.set(e.to_string());
+    }
+}
+
+/// Standard output's first write failure, if any (the commands turn it
+/// into exit code 1).
+pub fn stdout_error() -> Option<&'static str> {
+    STDOUT_ERROR.get().map(String::as_str)
 }
 
 pub mod channel;
@@ -42,6 +64,7 @@ pub mod engine;
 pub mod envelope;
 pub mod event;
 pub mod headless;
+pub mod output_file;
 pub mod planner;
 pub mod printable;
 pub mod record;

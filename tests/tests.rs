@@ -7,6 +7,9 @@
 //! - `bad_input`: the corpus in tests/bad-input (malformed recordings,
 //!   candump logs, an NMEA stream): a message with a location, no panic.
 //! - `cli`: the commands as a user runs them: exit codes and messages.
+//! - `output_faults`: outputs under faults: the recorder on a full disk
+//!   (a small tmpfs), exports and plots that leave no partial file or
+//!   overwrite their input, write errors that name the path.
 //! - `crosscheck`: termvel against reference libraries (python-can).
 //! - `envelope`: `termvel envelope` against closed forms (Cardano, partial
 //!   fractions), scipy, and a hand computation of the battery figures.
@@ -58,6 +61,8 @@ mod ground_truth;
 mod kill;
 #[path = "suite/live_serial.rs"]
 mod live_serial;
+#[path = "suite/output_faults.rs"]
+mod output_faults;
 #[path = "suite/recording.rs"]
 mod recording;
 #[path = "suite/rehearsal.rs"]

@@ -63,7 +63,11 @@ pub fn run(args: EnvelopeArgs) -> anyhow::Result<ExitCode> {
     };
     let plan_name = plan.as_ref().map(|p| p.name.as_str());
     if let Some(dir) = &args.plots {
-        let written = envelope::render_svg::write(dir, &e, veh)?;
+        let written = match envelope::render_svg::write(dir, &e, veh) {
+            Ok(w) => w,
+            // The message names the file and what failed.
+            Err(e) => return super::failed(e),
+        };
         for p in written {
             crate::say!("wrote {}", p.display());
         }

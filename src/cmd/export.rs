@@ -30,6 +30,10 @@ pub fn run(args: ExportArgs) -> anyhow::Result<ExitCode> {
             );
             Ok(ExitCode::SUCCESS)
         }
+        // Writing failed part-way (the message names the file and what
+        // failed): nothing is left at --out. An --out that cannot even be
+        // created is unusable input, as anything else.
+        Err(table_export::ExportError::Output(o)) if !o.is_create() => super::failed(o),
         Err(e) => super::unusable(e),
     }
 }

@@ -64,7 +64,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     };
     let _log = if args.run.headless { None } else { init_log_file() };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
-    let outcome: LiveOutcome = rt.block_on(async {
+    let (outcome, out_error): (LiveOutcome, Option<std::io::Error>) = rt.block_on(async {
         let clock = SessionClock::start();
         let (tx, rx) = mpsc::channel(INPUT_CAPACITY);
         let (stop_tx, stop_rx) = watch::channel(false);
@@ -103,11 +103,13 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
             let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut printer).await;
             drop(ctl_tx);
-            let summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
+            let mut summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
+            summary.snapshots = printer.snapshots();
+            summary.recording = super::recording_summary(&out.recording);
             let mut json = summary.json();
             json["live"] = realtime::figures(&out, &latency);
             printer.finish_json(&json);
-            out
+            (out, printer.take_error())
         } else {
             let (frames_tx, frames_rx) = watch::channel(None);
             let (done_tx, done_rx) = oneshot::channel();
@@ -122,7 +124,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 Ok(stats) => crate::say!("{}", stats.line()),
                 Err(e) => tracing::error!("screen: {e}"),
             }
-            task.await.expect("the pipeline task")
+            (task.await.expect("the pipeline task"), None)
         }
     });
     crate::say!(
@@ -131,6 +133,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         outcome.events,
         realtime::cpu_seconds()
     );
-    report_recording(&outcome.recording);
-    Ok(ExitCode::SUCCESS)
+    let complete = report_recording(&outcome.recording);
+    if let Some(e) = out_error {
+        return super::failed(super::stdout_error(&e));
+    }
+    Ok(super::code(complete))
 }

@@ -1,6 +1,20 @@
 //! The commands: each turns parsed arguments into settings, runs, and maps
-//! the outcome to an exit code (0 success, 1 failure while running, 2
-//! unusable input).
+//! the outcome to an exit code.
+//!
+//! One exit-code rule for every command (the README says the same):
+//!
+//! - **0**: everything asked was done, and every output is complete (the
+//!   recording holds every event, every file and standard output were
+//!   written whole). A reader that went away (`| head`) is not a failure.
+//! - **1** ([`EXIT_FAILED`]): it failed while running: an output could not
+//!   be written (standard output, an exported file, a plot, the recording
+//!   missing events), or the run itself failed. The message names the path
+//!   and what failed.
+//! - **2** ([`EXIT_UNUSABLE`]): unusable input: a config, a file or an
+//!   argument that cannot be used (an output that is the input or cannot
+//!   be created, a plots directory that is a file); nothing was run or
+//!   written. Command-line
+//!   syntax errors are 2 as well.
 
 pub mod check;
 pub mod envelope;
@@ -22,7 +36,10 @@ use crate::config::ConfigSet;
 use crate::event::SourceTable;
 use crate::record::{self, RecordingWriter};
 
-/// Exit status for unusable input (bad config, unreadable file).
+/// Exit status for a failure while running (an output not written whole).
+pub const EXIT_FAILED: u8 = 1;
+/// Exit status for unusable input (bad config, unreadable file, an output
+/// path that cannot be used).
 pub const EXIT_UNUSABLE: u8 = 2;
 
 /// Runs the command line.
@@ -39,19 +56,54 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Plan(a)) => plan::run(a),
         Some(Command::Envelope(a)) => envelope::run(a),
     };
-    match result {
+    let code = match result {
         Ok(code) => code,
         Err(e) => {
             crate::say!("termvel: {e:#}");
-            ExitCode::from(1)
+            return ExitCode::from(EXIT_FAILED);
+        }
+    };
+    // Whatever the command, output it could not print is a failure.
+    if let Some(e) = crate::stdout_error() {
+        crate::say!("termvel: cannot write to standard output: {e}");
+        if code == ExitCode::SUCCESS {
+            return ExitCode::from(EXIT_FAILED);
         }
     }
+    code
 }
 
 /// Prints a one-line reason and returns the unusable-input exit code.
 pub fn unusable(reason: impl std::fmt::Display) -> anyhow::Result<ExitCode> {
     crate::say!("termvel: {reason}");
     Ok(ExitCode::from(EXIT_UNUSABLE))
+}
+
+/// Prints a one-line reason and returns the failed-while-running exit code.
+pub fn failed(reason: impl std::fmt::Display) -> anyhow::Result<ExitCode> {
+    crate::say!("termvel: {reason}");
+    Ok(ExitCode::from(EXIT_FAILED))
+}
+
+/// 0 when `ok`, else [`EXIT_FAILED`].
+pub fn code(ok: bool) -> ExitCode {
+    if ok { ExitCode::SUCCESS } else { ExitCode::from(EXIT_FAILED) }
+}
+
+/// Writes `text` to standard output and flushes it; a reader that went away
+/// (a broken pipe) is not an error, anything else is, named.
+pub fn write_stdout(text: &str) -> Result<(), String> {
+    use std::io::Write as _;
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(stdout_error(&e)),
+        _ => Ok(()),
+    }
+}
+
+/// The message for a failed write to standard output.
+pub fn stdout_error(e: &std::io::Error) -> String {
+    format!("cannot write to standard output: {e}")
 }
 
 /// The session's recording as `--no-record` and `--record-dir` ask (`None`
@@ -86,16 +138,47 @@ pub(crate) fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGu
     Some(guard)
 }
 
-/// Says on stderr where the session's recording went, and whether it
-/// stopped early on a failed write.
-pub(crate) fn report_recording(rec: &crate::stream::RecordingOutcome) {
-    if let Some(p) = &rec.path {
-        crate::say!("termvel: recorded {} events to {}", rec.events, p.display());
-        if rec.failures > 0 {
-            crate::say!(
-                "termvel: the recording stopped early: {} (the session ran on unrecorded)",
-                rec.error.as_deref().unwrap_or("a write failed")
-            );
-        }
+/// Says on stderr where the session's recording went, and what its file
+/// failed to take; true when every event is in it.
+pub(crate) fn report_recording(rec: &crate::stream::RecordingOutcome) -> bool {
+    let Some(p) = &rec.path else { return true };
+    crate::say!("termvel: recorded {} events to {}", rec.events, p.display());
+    if rec.failures > 0 {
+        crate::say!(
+            "termvel: the recording's file stopped taking writes {} time(s) (first: {}); {} events waited in memory, then were written",
+            rec.failures,
+            rec.error.as_deref().unwrap_or("a write failed"),
+            rec.held_then_written
+        );
     }
+    if rec.dropped > 0 {
+        crate::say!(
+            "termvel: {} events were dropped (the recorder's memory of {} MiB was full); the recording counts them in a `lost` line",
+            rec.dropped,
+            crate::stream::BACKLOG_BYTES >> 20
+        );
+    }
+    if rec.unwritten > 0 {
+        crate::say!(
+            "termvel: {} events could not be written before the end and are not in {}",
+            rec.unwritten,
+            p.display()
+        );
+    }
+    rec.is_complete()
+}
+
+/// The recorder's figures for the closing JSON summary.
+pub(crate) fn recording_summary(rec: &crate::stream::RecordingOutcome) -> Option<crate::headless::RecordingSummary> {
+    let p = rec.path.as_ref()?;
+    Some(crate::headless::RecordingSummary {
+        path: p.display().to_string(),
+        recorded_events: rec.events,
+        failures: rec.failures,
+        held_then_written: rec.held_then_written,
+        dropped_events: rec.dropped,
+        unwritten_events: rec.unwritten,
+        complete: rec.is_complete(),
+        error: rec.error.clone(),
+    })
 }

@@ -60,8 +60,13 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         let (_tx, rx) = mpsc::channel(16);
         let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut printer))?;
         printer.finish_json(&summary_json(&outcome));
+        let out_error = printer.take_error();
         drop(printer);
-        return finish(&spec, &outcome);
+        let code = finish(&spec, &outcome)?;
+        if let Some(e) = out_error {
+            return super::failed(super::stdout_error(&e));
+        }
+        return Ok(code);
     }
 
     // On the screens: the player in its own task, the UI on this one.
@@ -113,8 +118,7 @@ fn finish(spec: &PlaySpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
             ));
         }
     }
-    report_recording(&o.recording);
-    Ok(ExitCode::SUCCESS)
+    Ok(super::code(report_recording(&o.recording)))
 }
 
 /// The closing summary of a played stream.
@@ -126,6 +130,7 @@ pub fn summarise(o: &PlayerOutcome) -> Summary {
     s.time_reversals = o.read_stats.time.time_reversals;
     s.torn_tail = o.read_stats.torn_tail.is_some();
     s.torn_tail_line = o.read_stats.torn_tail.as_ref().map(|t| t.line);
+    s.recording = super::recording_summary(&o.recording);
     s
 }
 

@@ -11,6 +11,16 @@ use crate::report::{self, Run, Summary};
 const BAR_FROM_BYTES: u64 = 16 << 20;
 
 pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
+    // The plots folder is checked (and made) before anything is printed:
+    // a report printed whole and then refused is a report twice.
+    if let Some(dir) = &args.plots {
+        if dir.exists() && !dir.is_dir() {
+            return super::unusable(format!("{}: --plots needs a folder, and this is a file", dir.display()));
+        }
+        if let Err(e) = std::fs::create_dir_all(dir) {
+            return super::unusable(format!("{}: cannot create the plots folder: {e}", dir.display()));
+        }
+    }
     let mut runs = Vec::new();
     for f in &args.files {
         let bar = std::io::stderr().is_terminal().then(|| {
@@ -61,24 +71,28 @@ pub fn run(args: ReportArgs) -> anyhow::Result<ExitCode> {
             );
         }
     }
+    let mut text = String::new();
     if args.json {
-        crate::out!("{}", serde_json::to_string_pretty(&report::json(&summaries))?);
+        text.push_str(&serde_json::to_string_pretty(&report::json(&summaries))?);
+        text.push('\n');
     } else {
         for s in &summaries {
-            crate::out!("{}", report::text(s));
+            text.push_str(&report::text(s));
+            text.push('\n');
         }
         if let [a, b] = &summaries[..] {
-            crate::out!("{}", report::comparison_text(a, b));
+            text.push_str(&report::comparison_text(a, b));
+            text.push('\n');
         }
+    }
+    if let Err(e) = super::write_stdout(&text) {
+        return super::failed(e);
     }
     if let Some(dir) = &args.plots {
         let pairs: Vec<(&Run, &Summary)> = runs.iter().zip(&summaries).collect();
         match report::plots::write(dir, &pairs) {
             Ok(files) => crate::say!("termvel: {} plots written to {}", files.len(), dir.display()),
-            Err(e) => {
-                crate::say!("termvel: {e}");
-                return Ok(ExitCode::from(1));
-            }
+            Err(e) => return super::failed(e),
         }
     }
     Ok(ExitCode::SUCCESS)

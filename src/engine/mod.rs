@@ -304,7 +304,7 @@ impl Engine {
             }
             Payload::Lost(n) => {
                 let h = &mut self.health[idx];
-                h.lost += n;
+                h.lost = h.lost.saturating_add(*n);
                 h.last_lost_ns = Some(ev.t_ns);
             }
             Payload::Tick | Payload::Note(_) => {}

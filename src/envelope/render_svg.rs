@@ -89,18 +89,20 @@ fn draw_line(chart: &mut Chart<'_>, pts: Vec<(f64, f64)>, k: usize, label: Strin
 /// Draws one SVG into `path` via a temporary file.
 fn svg(
     path: &Path,
-    name: &str,
     draw: impl FnOnce(&DrawingArea<SVGBackend<'_>, plotters::coord::Shift>) -> Result<(), String>,
 ) -> Result<(), PlotError> {
-    let tmp = path.with_extension("svg.tmp");
-    let fail = |message: String| PlotError::Draw { name: name.into(), message };
+    // Written to a temporary beside it and renamed when whole: a failed
+    // write leaves no partial file (the temporary goes when `pending` drops).
+    let pending = crate::output_file::PendingFile::beside(path);
+    // The error names the file, and says what failed in words.
+    let fail = |message: String| PlotError::Draw { name: path.display().to_string(), message };
     {
-        let root = SVGBackend::new(&tmp, (W, H)).into_drawing_area();
-        root.fill(&WHITE).map_err(|e| fail(format!("{e:?}")))?;
+        let root = SVGBackend::new(pending.tmp(), (W, H)).into_drawing_area();
+        root.fill(&WHITE).map_err(|e| fail(format!("{e}")))?;
         draw(&root).map_err(fail)?;
-        root.present().map_err(|e| fail(format!("{e:?}")))?;
+        root.present().map_err(|e| fail(format!("writing the file: {e}")))?;
     }
-    std::fs::rename(&tmp, path).map_err(|source| PlotError::Io { path: path.into(), source })
+    pending.commit().map(|_| ()).map_err(|e| PlotError::Io { path: path.into(), source: e.source })
 }
 
 /// Writes the three plots into `dir`; the files written.
@@ -109,7 +111,7 @@ pub fn write(dir: &Path, e: &Envelope, veh: &Vehicle) -> Result<Vec<PathBuf>, Pl
     std::fs::create_dir_all(dir).map_err(|source| PlotError::Io { path: dir.into(), source })?;
     let model = Model::new(veh, &e.inputs);
     let target_kmh = e.inputs.target_mps * 3.6;
-    let err = |e: plotters::drawing::DrawingAreaErrorKind<std::io::Error>| format!("{e:?}");
+    let err = |e: plotters::drawing::DrawingAreaErrorKind<std::io::Error>| format!("{e}");
     let mut written = Vec::new();
 
     // Power against speed.
@@ -122,7 +124,7 @@ pub fn write(dir: &Path, e: &Envelope, veh: &Vehicle) -> Result<Vec<PathBuf>, Pl
         .collect();
     let p_max = cases.iter().flatten().chain(&load).map(|p| p.1).fold(1.0, f64::max) * 1.08;
     let path = dir.join("envelope-power-speed.svg");
-    svg(&path, "envelope-power-speed", |area| {
+    svg(&path, |area| {
         let mut chart = ChartBuilder::on(area)
             .caption("power at the wheels against speed", (FONT, 24))
             .margin(14)
@@ -174,7 +176,7 @@ pub fn write(dir: &Path, e: &Envelope, veh: &Vehicle) -> Result<Vec<PathBuf>, Pl
         // speed, or at the braking point's distance, whichever is further.
         let x_max = runs.iter().flatten().map(coord).fold(if pick == 1 { brake_km } else { 1.0 }, f64::max) * 1.02;
         let path = dir.join(format!("{stem}.svg"));
-        svg(&path, stem, |area| {
+        svg(&path, |area| {
             let mut chart = ChartBuilder::on(area)
                 .caption(
                     format!(

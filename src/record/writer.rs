@@ -31,6 +31,14 @@ pub struct RecordingWriter<W: Write> {
     declared: Vec<Option<String>>,
     last_flush_ns: Option<TimeNs>,
     events: u64,
+    /// Events whose lines are in `pending` (not yet known to be on disk).
+    pending_events: u64,
+    /// Bytes known to be in the file as whole lines: the header and every
+    /// flush that completed. A failed flush may have left part of
+    /// `pending` after them; the owner truncates back to this length before
+    /// the next attempt writes `pending` again, so no line is torn or
+    /// written twice.
+    committed_bytes: u64,
 }
 
 impl<W: Write> RecordingWriter<W> {
@@ -62,12 +70,39 @@ impl<W: Write> RecordingWriter<W> {
             declared,
             last_flush_ns: None,
             events: 0,
+            pending_events: 0,
+            committed_bytes: h.len() as u64,
         })
     }
 
-    /// Events written so far.
+    /// Events accepted so far (on disk, or pending: see
+    /// [`RecordingWriter::pending_events`]).
     pub fn events(&self) -> u64 {
         self.events
+    }
+
+    /// Events accepted but not yet flushed to the file whole.
+    pub fn pending_events(&self) -> u64 {
+        self.pending_events
+    }
+
+    /// Length of the file's whole lines known to be written (see the field).
+    pub fn committed_bytes(&self) -> u64 {
+        self.committed_bytes
+    }
+
+    /// Forgets the pending lines (the owner gave up on writing them and
+    /// counts them as lost), so dropping the writer does not try again;
+    /// how many events they held.
+    pub fn discard_pending(&mut self) -> u64 {
+        self.pending.clear();
+        std::mem::take(&mut self.pending_events)
+    }
+
+    /// The underlying writer (to truncate a file back to its whole lines
+    /// after a failed flush).
+    pub fn get_mut(&mut self) -> &mut W {
+        &mut self.out
     }
 
     /// Appends one event. Flushes when a mark arrives or 100 ms of stream
@@ -100,6 +135,7 @@ impl<W: Write> RecordingWriter<W> {
         format_event_escaped(&mut self.line, ev, name);
         self.pending.extend_from_slice(&self.line);
         self.events += 1;
+        self.pending_events += 1;
         let due = match self.last_flush_ns {
             None => true,
             Some(t) => ev.t_ns - t >= FLUSH_INTERVAL_NS || ev.t_ns < t,
@@ -116,11 +152,16 @@ impl<W: Write> RecordingWriter<W> {
         Ok(())
     }
 
-    /// Writes everything pending through to the file.
+    /// Writes everything pending through to the file. On an error the
+    /// pending lines are kept (a retry writes them all again, after the
+    /// owner truncated the file to [`RecordingWriter::committed_bytes`]).
     pub fn flush(&mut self) -> io::Result<()> {
         if !self.pending.is_empty() {
             self.out.write_all(&self.pending)?;
+            self.out.flush()?;
+            self.committed_bytes += self.pending.len() as u64;
             self.pending.clear();
+            self.pending_events = 0;
         }
         self.out.flush()
     }

@@ -23,6 +23,7 @@ use plotters::prelude::*;
 
 use super::{Run, Summary};
 use crate::engine::physics::roadload::{RoadLoadInputs, road_load};
+use crate::output_file::PendingFile;
 
 const W: u32 = 1100;
 const H: u32 = 650;
@@ -52,6 +53,10 @@ pub enum PlotError {
         #[source]
         source: std::io::Error,
     },
+    /// A plot drawn whole could not be put in place (synced and renamed
+    /// from its temporary name).
+    #[error(transparent)]
+    Output(#[from] crate::output_file::OutputError),
     /// Drawing or writing one plot file failed.
     #[error("{}: {what}: {source}", file.display())]
     Draw {
@@ -376,23 +381,33 @@ where
     Ok(())
 }
 
-/// Draws one plot to `<stem>.svg` and `<stem>.png` in `dir`.
+/// Draws one plot to `<stem>.svg` and `<stem>.png` in `dir`, each to a
+/// temporary name first and renamed when whole (a failed write leaves no
+/// partial file: the temporary is removed when `pending` drops).
 macro_rules! render {
     ($dir:expr, $stem:expr, $written:expr, |$area:ident| $body:expr) => {{
         let svg = $dir.join(format!("{}.svg", $stem));
         {
-            let root = SVGBackend::new(&svg, (W, H)).into_drawing_area();
-            let $area = &root;
-            $body.map_err(|e| e.in_file(&svg))?;
-            root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&svg))?;
+            let pending = PendingFile::beside(&svg);
+            {
+                let root = SVGBackend::new(pending.tmp(), (W, H)).into_drawing_area();
+                let $area = &root;
+                $body.map_err(|e| e.in_file(&svg))?;
+                root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&svg))?;
+            }
+            pending.commit()?;
         }
         $written.push(svg);
         let png = $dir.join(format!("{}.png", $stem));
         {
-            let root = BitMapBackend::new(&png, (W, H)).into_drawing_area();
-            let $area = &root;
-            $body.map_err(|e| e.in_file(&png))?;
-            root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&png))?;
+            let pending = PendingFile::beside(&png);
+            {
+                let root = BitMapBackend::new(pending.tmp(), (W, H)).into_drawing_area();
+                let $area = &root;
+                $body.map_err(|e| e.in_file(&png))?;
+                root.present().map_err(fail("writing the file")).map_err(|e| e.in_file(&png))?;
+            }
+            pending.commit()?;
         }
         $written.push(png);
     }};
@@ -436,14 +451,16 @@ mod tests {
         assert!(matches!(&e, PlotError::CreateDir { dir, .. } if dir == &blocked), "{e:?}");
         assert!(e.to_string().starts_with(&format!("{}: ", blocked.display())), "{e}");
 
-        // The first file cannot be written: a folder of its name is there.
+        // The first file cannot be put in place: a folder of its name is
+        // there. Its temporary is not left behind.
         let out = dir.path().join("plots");
         let svg = out.join("speed-distance.svg");
         std::fs::create_dir_all(&svg).unwrap();
         let e = write(&out, &[(&run, &summary)]).unwrap_err();
-        assert!(matches!(&e, PlotError::Draw { file, .. } if file == &svg), "{e:?}");
+        assert!(matches!(&e, PlotError::Output(o) if o.path == svg), "{e:?}");
         assert!(e.to_string().starts_with(&format!("{}: ", svg.display())), "{e}");
-        assert!(std::error::Error::source(&e).is_some(), "the drawing library's error is kept as the source");
+        assert!(std::error::Error::source(&e).is_some(), "the I/O error is kept as the source");
+        assert_eq!(std::fs::read_dir(&out).unwrap().count(), 1, "only the folder in the way");
     }
 
     #[test]

@@ -27,6 +27,7 @@ use crate::engine::derived::Derived;
 use crate::engine::quantities::{self, QUANTITIES, Quantity, Reading};
 use crate::engine::{Engine, EngineOptions, Snapshot};
 use crate::event::{NS_PER_S, Payload, SourceKind, TimeNs};
+use crate::output_file::{OutputError, PendingFile, is_same_file};
 use crate::record::{RecordingError, RecordingReader};
 
 /// Output format.
@@ -69,13 +70,13 @@ pub enum ExportError {
     /// The config to derive with could not be resolved (the text says why).
     #[error(transparent)]
     Config(#[from] crate::record::ConfigChoiceError),
-    /// The output file could not be created or written.
-    #[error("{path}: {source}")]
-    Io {
-        path: String,
-        #[source]
-        source: std::io::Error,
-    },
+    /// The output file could not be created, written or put in place.
+    #[error(transparent)]
+    Output(#[from] OutputError),
+    /// The output is the input (the same file once links are resolved):
+    /// writing it would destroy the recording.
+    #[error("{out}: this is the input file {input}; refusing to overwrite it (give another --out)")]
+    SameAsInput { input: String, out: String },
     /// The Parquet writer refused a schema, a row group or the file.
     #[cfg(feature = "parquet")]
     #[error("{path}: {source}")]
@@ -147,19 +148,23 @@ pub trait Sink {
 
 struct CsvSink {
     out: std::io::BufWriter<std::fs::File>,
+    /// The temporary the rows go to, renamed to `path` when complete.
+    pending: PendingFile,
     path: PathBuf,
     line: String,
 }
 
+/// A write to the output at `path` failed.
 fn io(path: &Path) -> impl Fn(std::io::Error) -> ExportError + '_ {
-    move |source| ExportError::Io { path: path.display().to_string(), source }
+    move |source| ExportError::Output(OutputError { path: path.to_path_buf(), what: "cannot write", source })
 }
 
 impl CsvSink {
     fn new(path: &Path, cols: &[Column]) -> Result<CsvSink, ExportError> {
-        let f = std::fs::File::create(path).map_err(io(path))?;
+        let (pending, f) = PendingFile::create(path)?;
         let mut s = CsvSink {
             out: std::io::BufWriter::with_capacity(1 << 20, f),
+            pending,
             path: path.to_path_buf(),
             line: String::new(),
         };
@@ -198,7 +203,10 @@ impl Sink for CsvSink {
     }
 
     fn finish(mut self: Box<Self>) -> Result<(), ExportError> {
-        self.out.flush().map_err(io(&self.path))
+        self.out.flush().map_err(io(&self.path))?;
+        let CsvSink { pending, .. } = *self;
+        pending.commit()?;
+        Ok(())
     }
 }
 
@@ -213,7 +221,7 @@ mod pq {
     use parquet::file::writer::SerializedFileWriter;
     use parquet::schema::types::Type;
 
-    use super::{Cell, ColKind, Column, ExportError, Sink};
+    use super::{Cell, ColKind, Column, ExportError, PendingFile, Sink};
 
     /// Rows per row group.
     const GROUP: usize = 64 * 1024;
@@ -226,6 +234,8 @@ mod pq {
 
     pub struct ParquetSink {
         w: SerializedFileWriter<std::fs::File>,
+        /// The temporary the file goes to, renamed into place when complete.
+        pending: PendingFile,
         bufs: Vec<Buf>,
         rows: usize,
         path: String,
@@ -263,7 +273,7 @@ mod pq {
                 .set_created_by(format!("termvel {}", env!("CARGO_PKG_VERSION")))
                 .set_key_value_metadata(Some(meta.into_iter().map(|(k, v)| KeyValue::new(k, v)).collect()))
                 .build();
-            let f = std::fs::File::create(path).map_err(super::io(path))?;
+            let (pending, f) = PendingFile::create(path)?;
             let w = SerializedFileWriter::new(f, schema, Arc::new(props)).map_err(e(&p))?;
             let bufs = cols
                 .iter()
@@ -273,7 +283,7 @@ mod pq {
                     ColKind::Text => Buf::Text(Vec::new(), Vec::new()),
                 })
                 .collect();
-            Ok(ParquetSink { w, bufs, rows: 0, path: p })
+            Ok(ParquetSink { w, pending, bufs, rows: 0, path: p })
         }
 
         fn flush(&mut self) -> Result<(), ExportError> {
@@ -334,7 +344,9 @@ mod pq {
         fn finish(mut self: Box<Self>) -> Result<(), ExportError> {
             self.flush()?;
             let p = self.path.clone();
-            self.w.close().map_err(e(&p))?;
+            let ParquetSink { w, pending, .. } = *self;
+            w.close().map_err(e(&p))?;
+            pending.commit()?;
             Ok(())
         }
     }
@@ -371,11 +383,16 @@ pub struct ExportOutcome {
     pub time_order: crate::record::TimeOrderStats,
 }
 
-/// Opens a recording and its config (as a report does).
+/// Opens a recording and its config (as a report does), after making sure
+/// the output `out` is not the recording itself.
 fn open(
     file: &Path,
     config: &[PathBuf],
+    out: &Path,
 ) -> Result<(RecordingReader<std::fs::File>, Arc<ConfigSet>, String), ExportError> {
+    if is_same_file(file, out) {
+        return Err(ExportError::SameAsInput { input: file.display().to_string(), out: out.display().to_string() });
+    }
     let r = RecordingReader::open(file)?;
     let (cfg, origin) = r.header.config_set(config, file)?;
     Ok((r, Arc::new(cfg), origin))
@@ -409,7 +426,7 @@ pub fn resampled(
     out: &Path,
     every_ns: TimeNs,
 ) -> Result<ExportOutcome, ExportError> {
-    let (mut r, cfg, origin) = open(file, config)?;
+    let (mut r, cfg, origin) = open(file, config, out)?;
     let has_lines = r.header.sources.iter().any(|(_, s)| s.kind == SourceKind::Lines);
     let table = channel_table(file, &cfg, has_lines)?;
     let mut cols = vec![col("t_ns", "", ColKind::Int), col("t_s", "s", ColKind::Num)];
@@ -473,7 +490,7 @@ pub fn long(
     out: &Path,
     every_ns: TimeNs,
 ) -> Result<ExportOutcome, ExportError> {
-    let (mut r, cfg, origin) = open(file, config)?;
+    let (mut r, cfg, origin) = open(file, config, out)?;
     let cols = vec![
         col("t_ns", "", ColKind::Int),
         col("t_s", "s", ColKind::Num),

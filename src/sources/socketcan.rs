@@ -60,6 +60,57 @@ pub fn from_raw(b: &[u8]) -> Option<CanFrame> {
     })
 }
 
+/// What is wrong with one message read from the socket. Each is counted as
+/// a bad line of the source (an alert, the summary's `parse_errors`) and
+/// recorded as a line starting with `!`, which a replay counts the same way.
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+pub enum RawProblem {
+    /// Not the size of a `struct can_frame` (16) or `struct canfd_frame`
+    /// (72), or cut short by the kernel (MSG_TRUNC): the frame is dropped.
+    #[error("SocketCAN: a message of {len} bytes{} is not a CAN frame (16 or 72 bytes); dropped", if *truncated { " (cut short)" } else { "" })]
+    WrongSize { len: usize, truncated: bool },
+    /// The right size, but its length byte makes no frame: dropped.
+    #[error("SocketCAN: a {len}-byte message with length byte {length} holds no CAN frame; dropped")]
+    Invalid { len: usize, length: u8 },
+    /// The kernel cut the ancillary data (MSG_CTRUNC): the frame is kept,
+    /// but a drop count riding on it may be missing.
+    #[error(
+        "SocketCAN: the kernel cut a message's ancillary data (MSG_CTRUNC); a count of dropped frames may be missing"
+    )]
+    ControlTruncated,
+}
+
+impl RawProblem {
+    /// The line recorded for it: `!`, the problem in short, the bytes in hex.
+    pub fn line(&self, bytes: &[u8]) -> Vec<u8> {
+        let mut l = match self {
+            RawProblem::ControlTruncated => b"!socketcan control-truncated".to_vec(),
+            RawProblem::WrongSize { len, .. } | RawProblem::Invalid { len, .. } => {
+                format!("!socketcan bad-frame {len} bytes ").into_bytes()
+            }
+        };
+        if !matches!(self, RawProblem::ControlTruncated) {
+            for b in bytes.iter().take(CANFD_MTU) {
+                l.extend_from_slice(format!("{b:02X}").as_bytes());
+            }
+        }
+        l
+    }
+}
+
+/// Classifies one message read from the socket (its bytes and the
+/// `msg_flags` the kernel set): the frame, or why there is none; and a
+/// problem with its ancillary data, which leaves the frame usable.
+pub fn classify(b: &[u8], msg_flags: libc::c_int) -> (Result<CanFrame, RawProblem>, Option<RawProblem>) {
+    let ctrunc = (msg_flags & libc::MSG_CTRUNC != 0).then_some(RawProblem::ControlTruncated);
+    let truncated = msg_flags & libc::MSG_TRUNC != 0;
+    if truncated || (b.len() != CAN_MTU && b.len() != CANFD_MTU) {
+        return (Err(RawProblem::WrongSize { len: b.len(), truncated }), ctrunc);
+    }
+    let frame = from_raw(b).ok_or(RawProblem::Invalid { len: b.len(), length: b[4] });
+    (frame, ctrunc)
+}
+
 /// Frames read with one system call when the socket has them queued.
 const BATCH: usize = 64;
 
@@ -69,6 +120,8 @@ struct RecvBatch {
     frames: Box<[[u8; CANFD_MTU]; BATCH]>,
     control: Box<[[u64; 8]; BATCH]>,
     lens: [usize; BATCH],
+    /// Each message's `msg_flags` (MSG_TRUNC, MSG_CTRUNC).
+    flags: [libc::c_int; BATCH],
     drops: [Option<u32>; BATCH],
 }
 
@@ -78,6 +131,7 @@ impl RecvBatch {
             frames: Box::new([[0; CANFD_MTU]; BATCH]),
             control: Box::new([[0; 8]; BATCH]),
             lens: [0; BATCH],
+            flags: [0; BATCH],
             drops: [None; BATCH],
         }
     }
@@ -105,6 +159,7 @@ impl RecvBatch {
             let n = n as usize;
             for (i, h) in hdrs.iter().enumerate().take(n) {
                 self.lens[i] = h.msg_len as usize;
+                self.flags[i] = h.msg_hdr.msg_flags;
                 self.drops[i] = None;
                 let mut c = libc::CMSG_FIRSTHDR(&h.msg_hdr);
                 while !c.is_null() {
@@ -305,9 +360,22 @@ pub async fn run(spec: CanSpec, source: SourceId, clock: SessionClock, tx: Event
                             events.push(Event::new(t, source, Payload::Lost(u64::from(d - drops_seen))));
                             drops_seen = d;
                         }
-                        if let Some(frame) = from_raw(&batch.frames[i][..batch.lens[i]]) {
-                            events.push(Event::new(t, source, Payload::Can(frame)));
+                        // The buffer holds at most a CAN FD frame; the
+                        // kernel says the true length of a longer one.
+                        let bytes = &batch.frames[i][..batch.lens[i].min(CANFD_MTU)];
+                        let (frame, ctrunc) = classify(bytes, batch.flags[i]);
+                        let bad = |p: RawProblem| Payload::BadLine { line: p.line(bytes), error: p.to_string() };
+                        if let Some(p) = ctrunc {
+                            events.push(Event::new(t, source, bad(p)));
                         }
+                        events.push(Event::new(
+                            t,
+                            source,
+                            match frame {
+                                Ok(frame) => Payload::Can(frame),
+                                Err(p) => bad(p),
+                            },
+                        ));
                     }
                     if !link.send_all(&mut events).await {
                         return;
@@ -379,6 +447,34 @@ mod tests {
         assert_eq!(from_raw(&classic(0x123, 9, &[])), None);
         assert_eq!(from_raw(&[0u8; 15]), None);
         assert_eq!(from_raw(&[0u8; 24]), None);
+    }
+
+    // Issue 13, item 13: frames of an unexpected size were dropped
+    // uncounted, and a truncated control message was not checked.
+    #[test]
+    fn sizes_and_flags_are_classified_and_each_problem_is_counted_as_an_error() {
+        let good = classic(0x123, 2, &[1, 2]);
+        let frame = CanFrame::Data(DataFrame::new(CanId::Standard(0x123), &[1, 2]).unwrap());
+        assert_eq!(classify(&good, 0), (Ok(frame), None));
+        // The ancillary data cut: the frame is kept, the problem reported.
+        assert_eq!(classify(&good, libc::MSG_CTRUNC), (Ok(frame), Some(RawProblem::ControlTruncated)));
+        // Sizes that are no frame, and a frame cut short.
+        for len in [0, 8, 15, 17, 24, 71] {
+            let (f, c) = classify(&[0u8; 72][..len], 0);
+            assert_eq!(f, Err(RawProblem::WrongSize { len, truncated: false }), "{len}");
+            assert_eq!(c, None);
+        }
+        let (f, _) = classify(&[0u8; 72], libc::MSG_TRUNC);
+        assert_eq!(f, Err(RawProblem::WrongSize { len: 72, truncated: true }));
+        // The right size, an impossible length.
+        assert_eq!(classify(&classic(0x123, 9, &[]), 0).0, Err(RawProblem::Invalid { len: 16, length: 9 }));
+        // The recorded line starts with `!`, which no adapter message does,
+        // so a replay counts it as an error of the source too.
+        let line = RawProblem::WrongSize { len: 3, truncated: false }.line(&[0xAB, 1, 2]);
+        assert_eq!(line, b"!socketcan bad-frame 3 bytes AB0102");
+        assert!(crate::decode::serial_line::adapter_message(&line).is_err());
+        assert!(crate::decode::serial_line::adapter_message(&RawProblem::ControlTruncated.line(&[])).is_err());
+        assert!(RawProblem::ControlTruncated.to_string().contains("MSG_CTRUNC"));
     }
 
     #[test]

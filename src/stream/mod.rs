@@ -6,8 +6,9 @@
 //!
 //! Two drivers run a stream, and both take every event through the one
 //! step of [`Pipeline::step`] (feed the engine, then write the engine's
-//! notes and the event to the recording; a failed write is counted, stops
-//! the recording and shows in the [`StreamStatus`]):
+//! notes and the event to the recording; a failed write is held in memory
+//! and retried by the [`recorder`], raised as an alert and shown in the
+//! [`StreamStatus`]):
 //!
 //! - [`paced`]: a finite stream ([`crate::sources::EventSource`]: a
 //!   recording, a candump log, the rehearsal simulator) at a chosen pace,
@@ -29,10 +30,12 @@ pub mod latency;
 pub mod paced;
 pub mod pipeline;
 pub mod realtime;
+pub mod recorder;
 pub mod sink;
 
 pub use control::{Control, MAX_SPEED, MIN_SPEED, Operator, Playback, SPEED_STEPS};
 pub use json_printer::JsonPrinter;
 pub use latency::{LatencyHistogram, latency_histogram};
-pub use pipeline::{Pass, Pipeline, RecordingOutcome};
+pub use pipeline::{Pass, Pipeline};
+pub use recorder::{BACKLOG_BYTES, RecordingOutcome};
 pub use sink::{SnapshotSink, StreamStatus};

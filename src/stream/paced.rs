@@ -45,8 +45,8 @@ pub struct PlayerOutcome {
     pub sources: SourceTable,
     pub read_stats: ReadStats,
     pub snapshots: u64,
-    /// The recording written, how many events went into it, and whether it
-    /// stopped on a failed write.
+    /// The recording written, how many events went into it, and what its
+    /// file failed to take (held, dropped, unwritten).
     pub recording: RecordingOutcome,
 }
 
@@ -343,7 +343,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
     fn finish(self) -> PlayerOutcome {
         let read_stats = self.src.read_stats();
         let sources = self.src.sources().clone();
-        let (engine, recording) = self.pipe.close();
+        let (engine, recording) = self.pipe.close(&sources);
         PlayerOutcome { recording, read_stats, sources, engine, snapshots: self.snapshots }
     }
 }

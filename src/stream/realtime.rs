@@ -31,8 +31,8 @@ pub const BATCH: usize = 1024;
 pub struct LiveOutcome {
     pub engine: Engine,
     pub events: u64,
-    /// The recording written, how many events went into it, and whether it
-    /// stopped on a failed write.
+    /// The recording written, how many events went into it, and what its
+    /// file failed to take (held, dropped, unwritten).
     pub recording: RecordingOutcome,
     /// Why it ended.
     pub reason: &'static str,
@@ -121,7 +121,7 @@ pub async fn run<K: SnapshotSink>(
             _ = tick.tick() => {
                 let t = st.clock.now_ns();
                 st.handle(Event::new(t, SESSION, Payload::Tick));
-                st.pipe.flush();
+                st.pipe.flush(&st.sources);
             }
             c = controls.recv(), if controls_open => match c {
                 Some(Control::Operator(action)) => {
@@ -157,7 +157,7 @@ pub async fn run<K: SnapshotSink>(
     st.pipe.end_of_stream(&st.sources, &mut st.snaps);
     st.emit();
     let events = st.events;
-    let (engine, recording) = st.pipe.close();
+    let (engine, recording) = st.pipe.close(&st.sources);
     LiveOutcome { engine, events, recording, reason }
 }
 

@@ -20,11 +20,17 @@ pub struct StreamStatus {
     pub speed: f64,
     pub paused: bool,
     pub finished: bool,
-    /// The recording being written; `None` when not recording, or once the
-    /// recording stopped after a failed write.
+    /// The recording being written; `None` when not recording.
     pub recording: Option<PathBuf>,
-    /// Writes to the recording that failed (it stops at the first).
+    /// Times the recording's file stopped taking writes.
     pub record_failures: u64,
+    /// While the file does not take writes: what failed (events are held
+    /// in memory and the write retried).
+    pub record_error: Option<String>,
+    /// Events held in memory now, waiting for the file.
+    pub record_held: u64,
+    /// Events dropped because the memory buffer was full.
+    pub record_dropped: u64,
     pub events_fed: u64,
 }
 
@@ -38,6 +44,9 @@ impl Default for StreamStatus {
             finished: false,
             recording: None,
             record_failures: 0,
+            record_error: None,
+            record_held: 0,
+            record_dropped: 0,
             events_fed: 0,
         }
     }

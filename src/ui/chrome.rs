@@ -107,6 +107,17 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
             parts.push(Span::styled(format!("│ {mode} {pos} {speed} {state} "), t.status()));
         }
         match &st.recording {
+            // The file does not take writes: say so, with what is waiting
+            // in memory and what was dropped.
+            Some(_) if st.record_error.is_some() || st.record_dropped > 0 => {
+                parts.push(Span::styled("│", t.status()));
+                let what = if st.record_error.is_some() { "REC FAILING" } else { "REC LOST EVENTS" };
+                parts.push(Span::styled(format!(" ● {what} "), t.severity(crate::config::Severity::Alarm)));
+                parts.push(Span::styled(
+                    format!(" {} held, {} dropped ", st.record_held, st.record_dropped),
+                    t.status(),
+                ));
+            }
             Some(p) => {
                 let name = p.file_name().map(|n| n.to_string_lossy().into_owned()).unwrap_or_default();
                 parts.push(Span::styled("│", t.status()));

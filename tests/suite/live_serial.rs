@@ -115,6 +115,9 @@ fn three_serial_protocols_at_once() {
     assert_eq!(v("coolant.temp"), 95.5);
     assert!((v("boost.duty") - 0.40).abs() < 1e-12, "40 % is 0.40");
     assert_eq!(summary["summary"]["parse_errors"], 4, "one bad line per source and the noise: {summary}");
+    // Issue 13, item 13: the live summary said `"snapshots": 0` after
+    // printing them.
+    assert_eq!(summary["summary"]["snapshots"], snaps.len() as u64, "{summary}");
     // Each source reported its bad line on its own.
     let last = snaps.last().unwrap();
     let alerts: Vec<&str> = last["alerts"].as_array().unwrap().iter().map(|a| a["key"].as_str().unwrap()).collect();

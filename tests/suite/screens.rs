@@ -44,6 +44,7 @@ pub fn demo_app(secs: f64, color: bool) -> App {
                 recording: Some("/rec/termvel-20260314-074210-replay.tvrec".into()),
                 record_failures: 0,
                 events_fed: 0,
+                ..StreamStatus::default()
             };
             app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status }));
         }
@@ -275,4 +276,23 @@ fn the_run_screen_ends_with_a_verdict_and_says_what_it_compares() {
     let brake = lines_with(&text, " BRAKE ");
     assert!(brake.iter().any(|l| l.contains("STOPPED") && l.contains("stop-by 6.80 km")), "{brake:?}");
     assert!(!text.contains("(braking)") && !text.contains("in 0.0 s"), "{text}");
+}
+
+// Issue 13, item 1: a recording whose file stopped taking writes showed
+// `● REC` as if all were well.
+#[test]
+fn the_status_line_says_when_the_recording_fails() {
+    let mut app = demo_app(5.0, false);
+    let engine = Engine::new(Arc::new(ConfigSet::embedded()), EngineOptions::default());
+    let snap = engine.snapshot_at(0, &termvel::event::SourceTable::default());
+    let status = StreamStatus {
+        recording: Some("/rec/r.tvrec".into()),
+        record_error: Some("/rec/r.tvrec: write failed: No space left on device".into()),
+        record_held: 1234,
+        record_failures: 1,
+        ..StreamStatus::default()
+    };
+    app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(snap), status }));
+    let text = render(&app, 160, 48);
+    assert!(text.contains("● REC FAILING") && text.contains("1234 held, 0 dropped"), "{text}");
 }

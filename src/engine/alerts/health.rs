@@ -1,6 +1,9 @@
 //! Source health alerts: a source down, silent, sending lines that do not
 //! parse, losing frames before termvel reads them, or reporting CAN bus
 //! errors. One alert of each kind per source, keyed by the source's name.
+//! Also the session's own health: events its recorder dropped (a `lost`
+//! line of the session source) and a recording file that does not take
+//! writes.
 
 use super::AlertBook;
 use crate::config::Severity;
@@ -28,6 +31,15 @@ pub fn evaluate(
     let mut quiet_sources: Vec<SourceId> = Vec::new();
     for (id, info) in sources.iter() {
         let Some(h) = health.get_mut(id.0 as usize) else { continue };
+        if info.kind == SourceKind::Session {
+            // The recorder's own losses (its memory was full while the
+            // disk failed), recorded as `lost N` of the session.
+            let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < RECENT_NS);
+            let lost = h.lost;
+            book.set(t, "lost:recording", Severity::Alarm, lost_recent, || {
+                format!("the recorder dropped {lost} events (its memory was full while the disk failed)")
+            });
+        }
         if !matches!(info.kind, SourceKind::Can | SourceKind::Nmea | SourceKind::Lines) {
             continue;
         }
@@ -78,6 +90,14 @@ pub fn evaluate(
         );
     }
     quiet_sources
+}
+
+/// Raises the `recording` alarm while the recording's file does not take
+/// writes (`failing` says what failed), clears it when it does again.
+pub fn recording(book: &mut AlertBook, t: TimeNs, failing: Option<&str>) {
+    book.set(t, "recording", Severity::Alarm, failing.is_some(), || {
+        format!("recording failing, events held in memory and retried: {}", failing.unwrap_or_default())
+    });
 }
 
 #[cfg(test)]
