@@ -45,6 +45,7 @@ static FRAMES: LazyLock<Frames> = LazyLock::new(|| {
                 recording: None,
                 record_failures: 0,
                 events_fed: 0,
+                ..StreamStatus::default()
             };
             frames.push(Arc::new(UiFrame { snapshot: Arc::new(s), status }));
         }

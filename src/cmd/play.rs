@@ -15,7 +15,7 @@ use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
 use crate::headless::Summary;
 use crate::sources::EventSource;
-use crate::stream::paced::{self, PlayerOptions, PlayerOutcome};
+use crate::stream::paced::{self, PlayerOptions, PlayerOutcome, SharedHistory};
 use crate::stream::{JsonPrinter, latency_histogram};
 use crate::ui;
 use crate::ui::app::{App, Mode, SessionInfo};
@@ -37,6 +37,13 @@ pub struct PlaySpec {
 
 /// Runs `src` to its end (headless) or until the user quits (screens).
 pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<ExitCode> {
+    // A file that is not events is refused before anything starts: no
+    // screen waiting for data that never comes, no empty recording.
+    if let Some(f) = &spec.file
+        && let Err(e) = crate::sources::FileSource::probe(f)
+    {
+        return super::unusable(e);
+    }
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(r) => r,
         Err(reason) => return super::unusable(reason),
@@ -53,6 +60,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
             hold_at_end: false,
             recorder,
             latency: None,
+            history: None,
         };
         let stdout = std::io::stdout();
         let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
@@ -67,21 +75,24 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     // On the screens: the player in its own task, the UI on this one.
     let _log = init_log_file();
     let latency = latency_histogram();
+    let history = SharedHistory::default();
     let popts = PlayerOptions {
         speed: spec.speed.unwrap_or(1.0),
         start_paused: spec.paused,
         hold_at_end: true,
         recorder,
         latency: Some(latency.clone()),
+        history: Some(history.clone()),
     };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
     let (frames_tx, frames_rx) = watch::channel(None);
     let (ctl_tx, ctl_rx) = mpsc::channel(64);
     let (done_tx, done_rx) = oneshot::channel();
-    let app = App::new(
+    let mut app = App::new(
         SessionInfo { mode: spec.mode.clone(), config: spec.config.clone() },
         crate::ui::theme::Theme::from_env(),
     );
+    app.history = Some(history);
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
             let mut sink = UiSink::new(frames_tx);
@@ -114,6 +125,19 @@ fn finish(spec: &PlaySpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
         }
     }
     report_recording(&o.recording);
+    for ev in &o.unrecorded {
+        // Made after a seek back, behind the end of the recording: said
+        // here, since the recording could not take it in time order.
+        let what = match &ev.payload {
+            crate::event::Payload::Mark(m) => format!("mark \"{m}\""),
+            crate::event::Payload::Ack(k) => format!("acknowledgement of {k}"),
+            _ => "operator event".into(),
+        };
+        crate::say!(
+            "termvel: {what} at stream time {:.1} s was not recorded: the recording had already passed that place",
+            ev.t_ns as f64 * 1e-9
+        );
+    }
     Ok(ExitCode::SUCCESS)
 }
 

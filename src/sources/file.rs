@@ -1,9 +1,10 @@
-//! A recording or candump log on disk as a restartable event source.
+//! A recording or candump log on disk as a restartable event source, and
+//! the check that a file given to replay holds events at all.
 
 use std::fs::File;
 use std::path::{Path, PathBuf};
 
-use super::{EventSource, RewindError};
+use super::{EventSource, RewindError, SourcePosition};
 use crate::event::{Event, SourceTable};
 use crate::record::{Header, ReadStats, RecordingError, RecordingReader};
 
@@ -25,6 +26,51 @@ impl FileSource {
     pub fn reader(&self) -> &RecordingReader<File> {
         &self.reader
     }
+
+    /// Whether the file is mostly events: of its first
+    /// [`PROBE_LINES`] lines that are not blank or declarations, at least
+    /// half must be events, and there must be one. A config file, a README
+    /// or a binary file is refused before anything is played or recorded,
+    /// rather than replayed as a handful of lucky lines among hundreds of
+    /// skipped ones.
+    pub fn probe(path: &Path) -> Result<(), NotEvents> {
+        let mut r = RecordingReader::open(path).map_err(NotEvents::Open)?;
+        while r.stats.events + r.stats.malformed < PROBE_LINES && r.next_event().is_some() {}
+        let (events, bad) = (r.stats.events, r.stats.malformed);
+        let first = r.stats.errors.first().map(|e| r.describe(e));
+        if events == 0 {
+            return Err(NotEvents::NoEvents { path: path.display().to_string(), first_bad: first });
+        }
+        if events < bad {
+            return Err(NotEvents::MostlyNotEvents {
+                path: path.display().to_string(),
+                events,
+                lines: events + bad,
+                first_bad: first.unwrap_or_default(),
+            });
+        }
+        Ok(())
+    }
+}
+
+/// Lines [`FileSource::probe`] reads before it judges a file.
+pub const PROBE_LINES: u64 = 64;
+
+/// A file that is not a recording or a CAN log.
+#[derive(Debug, thiserror::Error)]
+pub enum NotEvents {
+    /// The file could not be opened or its recording header is damaged.
+    #[error(transparent)]
+    Open(RecordingError),
+    /// Not one event in the file's first lines (an empty file, a
+    /// recording with only its header, a text that is not a log).
+    #[error("{path}: not a termvel recording or a CAN log: no event in it{}", first_bad.as_ref().map(|f| format!(" (first line refused: {f})")).unwrap_or_default())]
+    NoEvents { path: String, first_bad: Option<String> },
+    /// Fewer than half of the first lines are events.
+    #[error(
+        "{path}: not a termvel recording or a CAN log: only {events} of its first {lines} lines are events (first refused: {first_bad})"
+    )]
+    MostlyNotEvents { path: String, events: u64, lines: u64, first_bad: String },
 }
 
 impl EventSource for FileSource {
@@ -43,5 +89,13 @@ impl EventSource for FileSource {
 
     fn read_stats(&self) -> ReadStats {
         self.reader.stats.clone()
+    }
+
+    fn position(&self) -> Option<SourcePosition> {
+        self.reader.position().map(SourcePosition)
+    }
+
+    fn resume(&mut self, pos: &SourcePosition) -> Result<(), RewindError> {
+        Ok(self.reader.resume(&pos.0)?)
     }
 }

@@ -26,6 +26,12 @@ pub struct StreamStatus {
     /// Writes to the recording that failed (it stops at the first).
     pub record_failures: u64,
     pub events_fed: u64,
+    /// Snapshots the stream has produced up to its position (after a seek:
+    /// as many as a straight run to there).
+    pub snapshots: u64,
+    /// How far (stream time) the recording of a replayed stream reaches: a
+    /// mark made behind it cannot go into the copy in time order.
+    pub recorded_to_ns: Option<TimeNs>,
 }
 
 impl Default for StreamStatus {
@@ -39,6 +45,8 @@ impl Default for StreamStatus {
             recording: None,
             record_failures: 0,
             events_fed: 0,
+            snapshots: 0,
+            recorded_to_ns: None,
         }
     }
 }

@@ -11,6 +11,7 @@ use super::theme::Theme;
 use crate::config::ConfigSet;
 use crate::engine::Snapshot;
 use crate::event::{NS_PER_S, TimeNs};
+use crate::stream::paced::{ChartHistory, SharedHistory};
 use crate::stream::{Control, Operator, Playback, StreamStatus};
 
 /// The screens.
@@ -121,8 +122,13 @@ pub struct App {
     /// (time in boost s, deliverable/rated) measured while boosting.
     pub derating: Vec<(f64, f64)>,
     pub latency: LatencyView,
-    /// Snapshots seen and drawn frames, for the feed screen.
-    pub snapshots_seen: u64,
+    /// The stream's chart history, kept by a finite stream's player from
+    /// every snapshot (so it is a straight run's after any seek); `None`
+    /// live, where the app keeps its own from the frames it sees.
+    pub history: Option<SharedHistory>,
+    own_history: ChartHistory,
+    /// The history's generation `trace` was copied from.
+    history_generation: u64,
     /// The CAN bus load of the signal map (config alone), for the feed screen.
     pub bus_load: crate::decode::busload::BusLoad,
 }
@@ -146,7 +152,9 @@ impl App {
             trace: Vec::new(),
             derating: Vec::new(),
             latency: LatencyView::default(),
-            snapshots_seen: 0,
+            history: None,
+            own_history: ChartHistory::default(),
+            history_generation: 0,
         }
     }
 
@@ -158,33 +166,43 @@ impl App {
         self.frame.as_deref().map(|f| &f.status)
     }
 
-    /// A new snapshot: keep it and extend the histories the charts draw.
+    /// A new snapshot: keep it and take the histories the charts draw up
+    /// to its time.
     pub fn on_frame(&mut self, f: Arc<UiFrame>) {
-        self.snapshots_seen += 1;
-        let d = &f.snapshot.derived;
-        if let Some(v) = d.speed_mps {
-            let x = d.distance_m;
-            // Back in distance: a seek backwards; drop what is now ahead.
-            if self.trace.last().is_some_and(|p| x < p.0 - 1.0) {
-                self.trace.retain(|p| p.0 <= x);
-                self.derating.clear();
+        let t_ns = f.snapshot.t_ns;
+        match &self.history {
+            Some(shared) => {
+                let h = shared.lock().unwrap_or_else(|e| e.into_inner());
+                Self::take_history(&h, t_ns, &mut self.trace, &mut self.derating, &mut self.history_generation);
             }
-            if self.trace.last().is_none_or(|p| x - p.0 >= 5.0 || (v - p.1).abs() > 2.0) {
-                self.trace.push((x, v));
-            }
-        }
-        let b = &d.battery;
-        if b.boosting
-            && let Some(r) = b.derating_ratio
-        {
-            if self.derating.last().is_some_and(|p| b.time_in_boost_s < p.0 - 0.5) {
-                self.derating.clear();
-            }
-            if self.derating.last().is_none_or(|p| b.time_in_boost_s - p.0 >= 0.25) {
-                self.derating.push((b.time_in_boost_s, r));
+            None => {
+                if self.frame.as_ref().is_none_or(|old| !Arc::ptr_eq(&old.snapshot, &f.snapshot)) {
+                    self.own_history.push(&f.snapshot);
+                }
+                let h = &self.own_history;
+                Self::take_history(h, t_ns, &mut self.trace, &mut self.derating, &mut self.history_generation);
             }
         }
         self.frame = Some(f);
+    }
+
+    /// Copies the history up to `t_ns`: only what is new, unless it was
+    /// cut back or the copy runs past `t_ns` (a seek back).
+    fn take_history(
+        h: &ChartHistory,
+        t_ns: TimeNs,
+        trace: &mut Vec<(f64, f64)>,
+        derating: &mut Vec<(f64, f64)>,
+        generation: &mut u64,
+    ) {
+        let upto = h.trace.partition_point(|p| p.0 <= t_ns);
+        if *generation != h.generation || trace.len() > upto {
+            trace.clear();
+            *generation = h.generation;
+        }
+        let from = trace.len();
+        trace.extend(h.trace[from..upto].iter().map(|p| (p.1, p.2)));
+        *derating = h.derating_until(t_ns);
     }
 
     /// A clock tick (the frame rate): age the transient state.
@@ -222,7 +240,17 @@ impl App {
                     } else {
                         text.trim().to_string()
                     };
-                    self.say(format!("marked: {text}"));
+                    let status = self.status();
+                    let said = match status {
+                        Some(st) if st.recording.is_none() => {
+                            format!("mark shown, not recorded (no recording is being written): {text}")
+                        }
+                        Some(st) if st.recorded_to_ns.is_some_and(|r| st.position_ns.is_some_and(|p| p < r)) => {
+                            format!("mark shown, not recorded (the recording is past this place): {text}")
+                        }
+                        _ => format!("marked: {text}"),
+                    };
+                    self.say(said);
                     return vec![Action::Player(Control::Operator(Operator::Mark(text)))];
                 }
                 KeyCode::Esc => {

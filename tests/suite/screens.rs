@@ -44,6 +44,8 @@ pub fn demo_app(secs: f64, color: bool) -> App {
                 recording: Some("/rec/termvel-20260314-074210-replay.tvrec".into()),
                 record_failures: 0,
                 events_fed: 0,
+                snapshots: s.t_ns.saturating_sub(t0) as u64 / 100_000_000,
+                recorded_to_ns: Some(s.t_ns),
             };
             app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status }));
         }

@@ -94,7 +94,9 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
             if c.parse_errors > 0 { t.doubtful() } else { t.value() },
         ),
         Line::styled(format!(" time jumps   {}", c.time_jumps), t.value()),
-        Line::styled(format!(" snapshots    {} received", app.snapshots_seen), t.label()),
+        // The stream's count to its position (after a seek: a straight run's
+        // to there), not the frames this screen happened to receive.
+        Line::styled(format!(" snapshots    {}", app.status().map_or(0, |st| st.snapshots)), t.label()),
         Line::styled(format!(" bus load     {:.1} % worst case", load.worst * 100.0), t.label()),
         Line::styled(
             format!("              at {:.0} frames/s, {} kbit/s", load.frames_per_s, load.bitrate / 1000),
@@ -119,7 +121,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         Span::styled(format!("{} µs", l.p99_us), t.value()),
         Span::styled("  max ", t.label()),
         Span::styled(format!("{} µs", l.max_us), t.value()),
-        Span::styled(format!("  ({} events)", l.count), t.dim()),
+        Span::styled(format!("  ({} events paced since the start or last seek)", l.count), t.dim()),
     ])];
     let most = l.buckets.iter().map(|b| b.1).max().unwrap_or(0).max(1);
     let width = inner.width.saturating_sub(16) as u64;
