@@ -99,3 +99,52 @@ impl EventSource for FileSource {
         Ok(self.reader.resume(&pos.0)?)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn repo(p: &str) -> PathBuf {
+        Path::new(env!("CARGO_MANIFEST_DIR")).join(p)
+    }
+
+    // Issue 15, item 4: `replay config/vehicle.toml` waited for data
+    // forever and `replay README.md` replayed 5 events picked out of 604
+    // lines; a file that is mostly not events is refused at once.
+    #[test]
+    fn files_that_are_not_events_are_refused_and_logs_are_not() {
+        for f in ["config/vehicle.toml", "README.md"] {
+            let e = FileSource::probe(&repo(f)).unwrap_err().to_string();
+            assert!(e.contains("not a termvel recording or a CAN log"), "{f}: {e}");
+            assert!(e.contains(f), "{f}: names the file: {e}");
+        }
+        FileSource::probe(&repo("replays/demo.tvrec")).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let log = dir.path().join("a.log");
+        // A candump log with a few bad lines among many good ones is fine.
+        let mut text = String::from("garbage\n\n");
+        for i in 0..70 {
+            text.push_str(&format!("(1.{i:06}) can0 123#00\n"));
+        }
+        std::fs::write(&log, &text).unwrap();
+        FileSource::probe(&log).unwrap();
+        // A recording with only its header holds nothing to replay.
+        let header_only = dir.path().join("h.tvrec");
+        let src = FileSource::open(&repo("replays/demo.tvrec")).unwrap();
+        let cfg = src.header().config_set(&[], &repo("replays/demo.tvrec")).unwrap().0;
+        let (w, p) = crate::record::create_recording(dir.path(), "t", &cfg, src.sources()).unwrap();
+        drop(w);
+        std::fs::rename(&p, &header_only).unwrap();
+        let e = FileSource::probe(&header_only).unwrap_err().to_string();
+        assert!(e.contains("no event in it"), "{e}");
+        // Half bad, half good: refused below half only.
+        let mut text = String::new();
+        for i in 0..40 {
+            text.push_str(&format!("(1.{i:06}) can0 123#00\nnot a frame\n"));
+        }
+        std::fs::write(&log, &text).unwrap();
+        FileSource::probe(&log).unwrap();
+        std::fs::write(&log, text.replacen("(1.000000) can0 123#00", "x", 1)).unwrap();
+        assert!(FileSource::probe(&log).is_err());
+    }
+}

@@ -530,7 +530,8 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
             }
             Playback::Step => {
                 let every = NS_PER_S / 10;
-                let from = status.position_ns.unwrap_or(0);
+                // A step asked for while one is under way adds to it.
+                let from = self.step_until.or(status.position_ns).unwrap_or(0);
                 self.step_until = Some((from.div_euclid(every) + 1) * every);
                 status.paused = true;
             }
@@ -708,5 +709,116 @@ mod tests {
         let straight = recorded(vec![]);
         let events = |ls: &[String]| ls.iter().filter(|l| !l.contains(" op ") && !l.contains(" session note ")).count();
         assert_eq!(events(&lines), events(&straight));
+    }
+
+    /// The demo played with `controls` queued first, starting paused or
+    /// not, not recorded: what the sink got, in order (snapshot time, its
+    /// acknowledged alerts, marks, the status's position and pause).
+    fn shown(start_paused: bool, controls: Vec<Control>) -> Vec<(TimeNs, usize, usize, Option<TimeNs>, bool)> {
+        let src = FileSource::open(&demo()).unwrap();
+        let cfg = Arc::new(src.header().config_set(&[], &demo()).unwrap().0);
+        let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
+        let (tx, rx) = mpsc::channel(16);
+        for c in controls {
+            tx.try_send(c).unwrap();
+        }
+        drop(tx);
+        let opts = PlayerOptions {
+            speed: 1.0,
+            start_paused,
+            hold_at_end: false,
+            recorder: None,
+            latency: None,
+            history: None,
+        };
+        let make = move || Engine::new(cfg.clone(), EngineOptions::default());
+        let mut got = Vec::new();
+        let mut sink = |s: Arc<Snapshot>, st: &StreamStatus| {
+            got.push((s.t_ns, s.alerts.iter().filter(|a| a.acked).count(), s.marks, st.position_ns, st.paused))
+        };
+        rt.block_on(play(src, make, opts, rx, &mut sink)).unwrap();
+        got
+    }
+
+    // Issue 15, item 3: `--paused` waited at "waiting for the first
+    // snapshot" and the seek and step keys did nothing until Space.
+    // Issue 15, item 2: while paused, an acknowledgement or a mark showed
+    // nothing until the next step, and a seek landing on the start left
+    // the old frame.
+    #[test]
+    fn starting_paused_shows_the_first_snapshot_and_every_paused_key_shows_its_outcome() {
+        let t0 = FileSource::open(&demo()).unwrap().next_event().unwrap().t_ns;
+        let got = shown(
+            true,
+            vec![
+                Control::Playback(Playback::SeekBy(60 * NS_PER_S)),
+                Control::Operator(Operator::Ack("*".into())),
+                Control::Operator(Operator::Mark("here".into())),
+                Control::Playback(Playback::SeekBy(-90 * NS_PER_S)),
+                Control::Playback(Playback::Step),
+                Control::Playback(Playback::Step),
+            ],
+        );
+        // The first snapshot, at once, paused.
+        let first = got[0];
+        assert!(first.0 <= t0 + NS_PER_S / 10 + NS_PER_S / 10, "{} after the start", first.0 - t0);
+        assert!(first.4, "paused");
+        let n0 = got.len();
+        assert_eq!(n0, 6 + 1, "one frame per key: {got:?}");
+        // The seek forward from the first snapshot landed near 60 s in.
+        assert!(got[1].3.unwrap() - t0 >= 59 * NS_PER_S, "{:?}", got[1]);
+        let acks_before = got[1].1;
+        // The acknowledgement shows at once; so does the mark.
+        assert!(got[2].1 > acks_before, "acknowledged at once: {got:?}");
+        assert_eq!(got[3].2, got[2].2 + 1, "the mark shows at once");
+        // Back to the start: the frame is at the start, not at 60 s.
+        assert_eq!(got[4].3, Some(t0), "{got:?}");
+        assert!(got[4].0 - t0 < NS_PER_S);
+        // Steps move on a tenth of a second each.
+        assert!(got[5].0 > got[4].0 && got[6].0 == got[5].0 + NS_PER_S / 10, "{got:?}");
+        assert!(got.iter().all(|g| g.4), "still paused");
+    }
+
+    // Issue 15, item 19: a mark made after a seek back went into the
+    // replay's copy behind later events, out of time order. It is shown
+    // but not written, and the outcome lists it.
+    #[test]
+    fn a_mark_behind_the_recording_keeps_the_copy_in_time_order() {
+        let t0 = FileSource::open(&demo()).unwrap().next_event().unwrap().t_ns;
+        let src = FileSource::open(&demo()).unwrap();
+        let cfg = Arc::new(src.header().config_set(&[], &demo()).unwrap().0);
+        let dir = tempfile::tempdir().unwrap();
+        let rec = crate::record::create_recording(dir.path(), "test", &cfg, src.sources()).unwrap();
+        let path = rec.1.clone();
+        let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
+        let (tx, rx) = mpsc::channel(16);
+        for c in [
+            Control::Playback(Playback::SeekTo(t0 + 60 * NS_PER_S)),
+            Control::Operator(Operator::Mark("at 60".into())),
+            Control::Playback(Playback::SeekTo(t0 + 20 * NS_PER_S)),
+            Control::Operator(Operator::Mark("at 20".into())),
+        ] {
+            tx.try_send(c).unwrap();
+        }
+        drop(tx);
+        let opts = PlayerOptions {
+            speed: f64::INFINITY,
+            start_paused: false,
+            hold_at_end: false,
+            recorder: Some(rec),
+            latency: None,
+            history: None,
+        };
+        let make = move || Engine::new(cfg.clone(), EngineOptions::default());
+        let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
+        assert_eq!(out.unrecorded.len(), 1);
+        assert_eq!(out.unrecorded[0].payload, crate::event::Payload::Mark("at 20".into()));
+        assert_eq!(out.engine.marks().len(), 2, "both marks were applied in the session");
+        let mut r = RecordingReader::open(&path).unwrap();
+        let marks: Vec<_> = std::iter::from_fn(|| r.next_event())
+            .filter_map(|e| matches!(e.payload, crate::event::Payload::Mark(_)).then_some(e.payload))
+            .collect();
+        assert_eq!(marks, vec![crate::event::Payload::Mark("at 60".into())]);
+        assert_eq!(r.stats.time_reversals, 0, "the copy is in time order");
     }
 }

@@ -522,4 +522,37 @@ mod tests {
         a.on_key(key(KeyCode::Esc));
         assert!(a.filter.is_empty());
     }
+
+    // Issue 15, item 19: under --no-record, `m` said `marked:` though
+    // nothing was stored.
+    #[test]
+    fn a_mark_says_when_it_is_not_recorded() {
+        let frame = |recording: Option<&str>, position_ns, recorded_to_ns| {
+            Arc::new(UiFrame {
+                snapshot: Arc::new(
+                    crate::engine::Engine::new(Arc::new(ConfigSet::embedded()), Default::default())
+                        .snapshot_at(0, &Default::default()),
+                ),
+                status: StreamStatus {
+                    recording: recording.map(Into::into),
+                    position_ns,
+                    recorded_to_ns,
+                    ..StreamStatus::default()
+                },
+            })
+        };
+        let said = |f: Arc<UiFrame>| {
+            let mut a = app();
+            a.on_frame(f);
+            a.on_key(key(KeyCode::Char('m')));
+            a.on_key(key(KeyCode::Char('x')));
+            a.on_key(key(KeyCode::Enter));
+            a.message.unwrap().0
+        };
+        assert_eq!(said(frame(Some("r.tvrec"), Some(5), Some(5))), "marked: x");
+        let m = said(frame(None, Some(5), Some(5)));
+        assert!(m.contains("not recorded") && !m.starts_with("marked"), "{m}");
+        let m = said(frame(Some("r.tvrec"), Some(5), Some(9)));
+        assert!(m.contains("not recorded") && m.contains("past this place"), "{m}");
+    }
 }
