@@ -129,9 +129,9 @@ fn finish(spec: &PlaySpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
         // Made after a seek back, behind the end of the recording: said
         // here, since the recording could not take it in time order.
         let what = match &ev.payload {
-            crate::event::Payload::Mark(m) => format!("mark \"{m}\""),
+            crate::event::Payload::Ack(k) if k == "*" => "acknowledgement of every alert".to_string(),
             crate::event::Payload::Ack(k) => format!("acknowledgement of {k}"),
-            _ => "operator event".into(),
+            _ => "operator event".to_string(),
         };
         crate::say!(
             "termvel: {what} at stream time {:.1} s was not recorded: the recording had already passed that place",

@@ -100,6 +100,12 @@ pub type SharedHistory = Arc<Mutex<ChartHistory>>;
 
 /// What the charts draw over time, from every snapshot of the stream in
 /// order: the same whatever was shown, skipped or sought over.
+///
+/// It is a straight run's history as far as the stream has been played.
+/// Since the engine is deterministic, that never changes: after a seek
+/// back the points ahead stay, and feeding forward again walks over them
+/// ([`ChartHistory::push`] at `at`) rather than adding them twice. A reader
+/// takes the points up to the time of the snapshot it shows.
 #[derive(Clone, Debug, Default, PartialEq)]
 pub struct ChartHistory {
     /// (stream time, distance m, speed m/s): a point every 5 m, or sooner
@@ -110,17 +116,28 @@ pub struct ChartHistory {
     pub derating: Vec<(TimeNs, f64, f64)>,
     /// Where in `derating` each boost starts.
     pub boost_starts: Vec<usize>,
-    /// Counts the times the history was cut back (a seek back), so a reader
-    /// that copies it piece by piece knows to copy it whole again.
-    pub generation: u64,
+    /// How much of the history the stream's position has reached.
+    at: HistoryMark,
 }
 
-/// The lengths of a [`ChartHistory`] at a checkpoint.
-#[derive(Clone, Copy, Debug, Default)]
+/// Lengths of a [`ChartHistory`]'s parts at a place of the stream.
+#[derive(Clone, Copy, Debug, Default, PartialEq)]
 struct HistoryMark {
     trace: usize,
     derating: usize,
     boost_starts: usize,
+}
+
+/// Appends `x` at `*at`, or walks over it when the history already holds
+/// it (fed again after a seek back: the same value, the engine being
+/// deterministic).
+fn put<T: PartialEq + std::fmt::Debug>(v: &mut Vec<T>, at: &mut usize, x: T) {
+    if *at == v.len() {
+        v.push(x);
+    } else {
+        debug_assert_eq!(v[*at], x, "a stream fed again gives the same history");
+    }
+    *at += 1;
 }
 
 impl ChartHistory {
@@ -129,22 +146,22 @@ impl ChartHistory {
         let d = &s.derived;
         if let Some(v) = d.speed_mps {
             let x = d.distance_m;
-            if self.trace.last().is_none_or(|p| x - p.1 >= 5.0 || (v - p.2).abs() > 2.0) {
-                self.trace.push((s.t_ns, x, v));
+            if self.trace[..self.at.trace].last().is_none_or(|p| x - p.1 >= 5.0 || (v - p.2).abs() > 2.0) {
+                put(&mut self.trace, &mut self.at.trace, (s.t_ns, x, v));
             }
         }
         let b = &d.battery;
         if b.boosting
             && let Some(r) = b.derating_ratio
         {
-            let current = self.boost_starts.last().map_or(&self.derating[..0], |&i| &self.derating[i..]);
-            let last = current.last().copied();
+            let start = self.boost_starts[..self.at.boost_starts].last().copied();
+            let last = start.and_then(|i| self.derating[i..self.at.derating].last().copied());
             if last.is_none() || last.is_some_and(|p| b.time_in_boost_s < p.1 - 0.5) {
                 // A new boost (time in boost went back).
-                self.boost_starts.push(self.derating.len());
-                self.derating.push((s.t_ns, b.time_in_boost_s, r));
+                put(&mut self.boost_starts, &mut self.at.boost_starts, self.at.derating);
+                put(&mut self.derating, &mut self.at.derating, (s.t_ns, b.time_in_boost_s, r));
             } else if last.is_some_and(|p| b.time_in_boost_s - p.1 >= 0.25) {
-                self.derating.push((s.t_ns, b.time_in_boost_s, r));
+                put(&mut self.derating, &mut self.at.derating, (s.t_ns, b.time_in_boost_s, r));
             }
         }
     }
@@ -160,17 +177,6 @@ impl ChartHistory {
         let end = self.derating.partition_point(|p| p.0 <= t_ns);
         let start = self.boost_starts.iter().rev().find(|&&i| i < end).copied().unwrap_or(end);
         self.derating[start..end].iter().map(|p| (p.1, p.2)).collect()
-    }
-
-    fn mark(&self) -> HistoryMark {
-        HistoryMark { trace: self.trace.len(), derating: self.derating.len(), boost_starts: self.boost_starts.len() }
-    }
-
-    fn cut_to(&mut self, m: HistoryMark) {
-        self.trace.truncate(m.trace);
-        self.derating.truncate(m.derating);
-        self.boost_starts.truncate(m.boost_starts);
-        self.generation += 1;
     }
 }
 
@@ -440,7 +446,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
             return;
         }
         let Some(source) = self.src.position() else { return };
-        let history = self.history.lock().unwrap_or_else(|e| e.into_inner()).mark();
+        let history = self.history.lock().unwrap_or_else(|e| e.into_inner()).at;
         self.checkpoints.insert(
             i,
             Checkpoint {
@@ -530,8 +536,11 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
             }
             Playback::Step => {
                 let every = NS_PER_S / 10;
-                // A step asked for while one is under way adds to it.
-                let from = self.step_until.or(status.position_ns).unwrap_or(0);
+                // From the snapshot on the screen (the position may be an
+                // event already past the next one's time), or from where a
+                // step under way ends: two quick steps are two steps.
+                let shown = self.last_snapshot.as_ref().map(|s| s.t_ns);
+                let from = self.step_until.or(shown).or(status.position_ns).unwrap_or(0);
                 self.step_until = Some((from.div_euclid(every) + 1) * every);
                 status.paused = true;
             }
@@ -540,9 +549,12 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
     }
 
     /// A mark or acknowledgement at the current stream time: fed to the
-    /// engine, and recorded at once unless the recording is already past
-    /// this place (after a seek back), which would put it out of time
-    /// order: then it is kept as unrecorded and said at the end.
+    /// engine and recorded at once. After a seek back the recording is
+    /// already past this place, and a file in time order cannot take it
+    /// here: a mark is then written where the recording has reached, its
+    /// text saying where it was made; an acknowledgement (which would
+    /// acknowledge other alerts there) is not written, and is said at the
+    /// end ([`PlayerOutcome::unrecorded`]).
     fn operator(&mut self, action: Operator) {
         let Some(now) = self.pipe.engine.now_ns() else { return };
         let ev = action.event(now);
@@ -551,7 +563,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         let mut out = std::mem::take(&mut self.out);
         self.pipe.step(&ev, self.src.sources(), pass, &mut out);
         if behind && self.pipe.status.recording.is_some() {
-            self.unrecorded.push(ev.clone());
+            self.record_behind(&ev);
         }
         // Checkpoints further on were taken without this event.
         let seq = self.seq;
@@ -559,6 +571,32 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.operator_events.push((self.seq, ev));
         self.produced(&mut out, true);
         self.out = out;
+    }
+
+    /// Records an operator event made behind the end of the recording.
+    fn record_behind(&mut self, ev: &Event) {
+        let crate::event::Payload::Mark(text) = &ev.payload else {
+            self.unrecorded.push(ev.clone());
+            return;
+        };
+        let status = &self.pipe.status;
+        let at_ns = status.recorded_to_ns.unwrap_or(ev.t_ns).max(ev.t_ns);
+        let since_s = (ev.t_ns - status.start_ns.unwrap_or(ev.t_ns)) as f64 * 1e-9;
+        let stamped = Event::new(
+            at_ns,
+            ev.source,
+            crate::event::Payload::Mark(format!(
+                "{text} (made at {}:{:04.1} after a seek back)",
+                (since_s / 60.0).floor(),
+                since_s % 60.0
+            )),
+        );
+        // Written through the one step, with a scratch engine so the
+        // session's engine sees the mark once, at its own place.
+        let engine = std::mem::replace(&mut self.pipe.engine, (self.make_engine)());
+        let mut scratch = Vec::new();
+        self.pipe.step(&stamped, self.src.sources(), Pass::First, &mut scratch);
+        self.pipe.engine = engine;
     }
 
     /// Goes to stream time `target`: from the latest checkpoint at or
@@ -604,7 +642,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.pipe.engine = c.engine.clone();
         self.seq = c.seq;
         self.last_snapshot = c.last_snapshot.clone();
-        self.history.lock().unwrap_or_else(|e| e.into_inner()).cut_to(c.history);
+        self.history.lock().unwrap_or_else(|e| e.into_inner()).at = c.history;
         let status = &mut self.pipe.status;
         status.events_fed = c.seq;
         status.snapshots = c.snapshots;
@@ -629,7 +667,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.seq = 0;
         self.pending = None;
         self.last_snapshot = None;
-        self.history.lock().unwrap_or_else(|e| e.into_inner()).cut_to(HistoryMark::default());
+        self.history.lock().unwrap_or_else(|e| e.into_inner()).at = HistoryMark::default();
         let status = &mut self.pipe.status;
         status.snapshots = 0;
         status.events_fed = 0;
@@ -780,8 +818,9 @@ mod tests {
     }
 
     // Issue 15, item 19: a mark made after a seek back went into the
-    // replay's copy behind later events, out of time order. It is shown
-    // but not written, and the outcome lists it.
+    // replay's copy behind later events, out of time order. It goes in
+    // where the copy has reached, saying where it was made; an
+    // acknowledgement there is listed as not recorded.
     #[test]
     fn a_mark_behind_the_recording_keeps_the_copy_in_time_order() {
         let t0 = FileSource::open(&demo()).unwrap().next_event().unwrap().t_ns;
@@ -797,6 +836,7 @@ mod tests {
             Control::Operator(Operator::Mark("at 60".into())),
             Control::Playback(Playback::SeekTo(t0 + 20 * NS_PER_S)),
             Control::Operator(Operator::Mark("at 20".into())),
+            Control::Operator(Operator::Ack("*".into())),
         ] {
             tx.try_send(c).unwrap();
         }
@@ -811,14 +851,22 @@ mod tests {
         };
         let make = move || Engine::new(cfg.clone(), EngineOptions::default());
         let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
-        assert_eq!(out.unrecorded.len(), 1);
-        assert_eq!(out.unrecorded[0].payload, crate::event::Payload::Mark("at 20".into()));
-        assert_eq!(out.engine.marks().len(), 2, "both marks were applied in the session");
+        assert_eq!(out.unrecorded.len(), 1, "the acknowledgement behind the recording");
+        assert_eq!(out.unrecorded[0].payload, crate::event::Payload::Ack("*".into()));
+        let marks = out.engine.marks();
+        assert_eq!(marks.len(), 2, "both marks were applied in the session, each at its place");
+        assert!(marks[1].0 < marks[0].0);
         let mut r = RecordingReader::open(&path).unwrap();
         let marks: Vec<_> = std::iter::from_fn(|| r.next_event())
-            .filter_map(|e| matches!(e.payload, crate::event::Payload::Mark(_)).then_some(e.payload))
+            .filter_map(|e| match e.payload {
+                crate::event::Payload::Mark(m) => Some((e.t_ns, m)),
+                _ => None,
+            })
             .collect();
-        assert_eq!(marks, vec![crate::event::Payload::Mark("at 60".into())]);
+        assert_eq!(marks.len(), 2);
+        assert_eq!(marks[0].1, "at 60");
+        assert_eq!(marks[1].1, "at 20 (made at 0:20.0 after a seek back)");
+        assert!(marks[1].0 >= marks[0].0);
         assert_eq!(r.stats.time_reversals, 0, "the copy is in time order");
     }
 }

@@ -127,8 +127,6 @@ pub struct App {
     /// live, where the app keeps its own from the frames it sees.
     pub history: Option<SharedHistory>,
     own_history: ChartHistory,
-    /// The history's generation `trace` was copied from.
-    history_generation: u64,
     /// The CAN bus load of the signal map (config alone), for the feed screen.
     pub bus_load: crate::decode::busload::BusLoad,
 }
@@ -154,7 +152,6 @@ impl App {
             latency: LatencyView::default(),
             history: None,
             own_history: ChartHistory::default(),
-            history_generation: 0,
         }
     }
 
@@ -173,32 +170,26 @@ impl App {
         match &self.history {
             Some(shared) => {
                 let h = shared.lock().unwrap_or_else(|e| e.into_inner());
-                Self::take_history(&h, t_ns, &mut self.trace, &mut self.derating, &mut self.history_generation);
+                Self::take_history(&h, t_ns, &mut self.trace, &mut self.derating);
             }
             None => {
                 if self.frame.as_ref().is_none_or(|old| !Arc::ptr_eq(&old.snapshot, &f.snapshot)) {
                     self.own_history.push(&f.snapshot);
                 }
                 let h = &self.own_history;
-                Self::take_history(h, t_ns, &mut self.trace, &mut self.derating, &mut self.history_generation);
+                Self::take_history(h, t_ns, &mut self.trace, &mut self.derating);
             }
         }
         self.frame = Some(f);
     }
 
-    /// Copies the history up to `t_ns`: only what is new, unless it was
-    /// cut back or the copy runs past `t_ns` (a seek back).
-    fn take_history(
-        h: &ChartHistory,
-        t_ns: TimeNs,
-        trace: &mut Vec<(f64, f64)>,
-        derating: &mut Vec<(f64, f64)>,
-        generation: &mut u64,
-    ) {
+    /// Copies the history up to `t_ns`: only what is new, unless the
+    /// copy runs past `t_ns` (a seek back). The history only ever grows
+    /// (it is a straight run's), so what was copied stays right.
+    fn take_history(h: &ChartHistory, t_ns: TimeNs, trace: &mut Vec<(f64, f64)>, derating: &mut Vec<(f64, f64)>) {
         let upto = h.trace.partition_point(|p| p.0 <= t_ns);
-        if *generation != h.generation || trace.len() > upto {
-            trace.clear();
-            *generation = h.generation;
+        if trace.len() > upto {
+            trace.truncate(upto);
         }
         let from = trace.len();
         trace.extend(h.trace[from..upto].iter().map(|p| (p.1, p.2)));
@@ -246,7 +237,7 @@ impl App {
                             format!("mark shown, not recorded (no recording is being written): {text}")
                         }
                         Some(st) if st.recorded_to_ns.is_some_and(|r| st.position_ns.is_some_and(|p| p < r)) => {
-                            format!("mark shown, not recorded (the recording is past this place): {text}")
+                            format!("marked: {text} (recorded where the recording has reached, with this place)")
                         }
                         _ => format!("marked: {text}"),
                     };
@@ -553,6 +544,6 @@ mod tests {
         let m = said(frame(None, Some(5), Some(5)));
         assert!(m.contains("not recorded") && !m.starts_with("marked"), "{m}");
         let m = said(frame(Some("r.tvrec"), Some(5), Some(9)));
-        assert!(m.contains("not recorded") && m.contains("past this place"), "{m}");
+        assert!(m.starts_with("marked: x") && m.contains("where the recording has reached"), "{m}");
     }
 }

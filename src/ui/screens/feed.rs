@@ -121,7 +121,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         Span::styled(format!("{} µs", l.p99_us), t.value()),
         Span::styled("  max ", t.label()),
         Span::styled(format!("{} µs", l.max_us), t.value()),
-        Span::styled(format!("  ({} events paced since the start or last seek)", l.count), t.dim()),
+        Span::styled(format!("  ({} events)", l.count), t.dim()),
     ])];
     let most = l.buckets.iter().map(|b| b.1).max().unwrap_or(0).max(1);
     let width = inner.width.saturating_sub(16) as u64;
