@@ -855,7 +855,7 @@ mod tests {
         assert_eq!(out.unrecorded[0].payload, crate::event::Payload::Ack("*".into()));
         let marks = out.engine.marks();
         assert_eq!(marks.len(), 2, "both marks were applied in the session, each at its place");
-        assert!(marks[1].0 < marks[0].0);
+        assert!(marks[0].1 == "at 20" && marks[1].1 == "at 60" && marks[0].0 < marks[1].0, "{marks:?}");
         let mut r = RecordingReader::open(&path).unwrap();
         let marks: Vec<_> = std::iter::from_fn(|| r.next_event())
             .filter_map(|e| match e.payload {
