@@ -11,8 +11,8 @@
 //!
 //! Seeking lands exactly where a straight run would be: the player keeps
 //! checkpoints as it plays (a clone of the engine, the source's position
-//! and the chart history, one every [`CHECKPOINT_EVERY_NS`] of stream time,
-//! at most [`MAX_CHECKPOINTS`] of them), goes back to the latest one at or
+//! and where the chart history stands, one every [`CHECKPOINT_EVERY_NS`]
+//! of stream time, at most [`MAX_CHECKPOINTS`] of them), goes back to the latest one at or
 //! before the target and feeds forward from there without showing. A
 //! source that cannot resume at a position (the simulator) starts again
 //! from its first event instead.
@@ -41,15 +41,16 @@ use crate::sources::{EventSource, RewindError, SourcePosition};
 
 /// Stream time between two checkpoints at first. Feeding forward runs at
 /// about 2.6 million events a second (release build), so from a
-/// checkpoint 10 s back on a saturated bus (about 9 000 events a second)
-/// a seek costs about 35 ms.
+/// checkpoint at most 10 s back on a saturated bus (about 8 400 events a
+/// second) a seek feeds at most 84 000 events: about 35 ms.
 pub const CHECKPOINT_EVERY_NS: TimeNs = 10 * NS_PER_S;
 /// Most checkpoints kept. When full, every other one is dropped and the
-/// spacing doubles, so memory stays bounded whatever the stream's length
-/// (each holds an engine, a few tens of kilobytes, and a snapshot): a
-/// one-hour stream keeps at most 128, 28 s apart, so a seek feeds at most
-/// 28 s of stream forward.
-pub const MAX_CHECKPOINTS: usize = 128;
+/// spacing doubles, so memory stays bounded whatever the stream's length.
+/// Each holds a clone of the engine, the latest snapshot and the reader's
+/// position: about 52 KB with the demo's signal map (measured on the
+/// saturated-bus recording of `benches/seek.rs`), so at most about 27 MB.
+/// A one-hour stream keeps 360, 10 s apart; a two-hour one 360, 20 s apart.
+pub const MAX_CHECKPOINTS: usize = 512;
 
 /// Why a paced run stopped short.
 #[derive(Debug, thiserror::Error)]
@@ -71,6 +72,8 @@ pub struct PlayerOutcome {
     /// The recording written, how many events went into it, and whether it
     /// stopped on a failed write.
     pub recording: RecordingOutcome,
+    /// Checkpoints held at the end (at most [`MAX_CHECKPOINTS`]).
+    pub checkpoints: usize,
     /// Marks and acknowledgements made behind the end of the recording
     /// (after a seek back): applied on the screens but not written, since
     /// the recording is in time order and had already passed them.
@@ -679,7 +682,15 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         let read_stats = self.src.read_stats();
         let sources = self.src.sources().clone();
         let (engine, recording) = self.pipe.close();
-        PlayerOutcome { recording, read_stats, sources, engine, snapshots: self.snapshots, unrecorded: self.unrecorded }
+        PlayerOutcome {
+            recording,
+            read_stats,
+            sources,
+            engine,
+            snapshots: self.snapshots,
+            checkpoints: self.checkpoints.len(),
+            unrecorded: self.unrecorded,
+        }
     }
 }
 
@@ -868,5 +879,30 @@ mod tests {
         assert_eq!(marks[1].1, "at 20 (made at 0:20.0 after a seek back)");
         assert!(marks[1].0 >= marks[0].0);
         assert_eq!(r.stats.time_reversals, 0, "the copy is in time order");
+    }
+
+    // Issue 15, item 23: the checkpoints' memory is bounded whatever the
+    // stream's length: past MAX_CHECKPOINTS they thin out.
+    #[test]
+    fn checkpoints_stay_bounded_in_a_long_stream() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("long.log");
+        // Three hours, a frame every 5 s: 1 080 slots of 10 s.
+        let text: String = (0..2160).map(|i| format!("({}.000000) can0 123#00\n", 1_000 + i * 5)).collect();
+        std::fs::write(&path, text).unwrap();
+        let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
+        let (_tx, rx) = mpsc::channel(1);
+        let opts = PlayerOptions {
+            speed: f64::INFINITY,
+            start_paused: false,
+            hold_at_end: false,
+            recorder: None,
+            latency: None,
+            history: None,
+        };
+        let make = || Engine::new(Arc::new(crate::config::ConfigSet::embedded()), EngineOptions::default());
+        let src = FileSource::open(&path).unwrap();
+        let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
+        assert!(out.checkpoints <= MAX_CHECKPOINTS && out.checkpoints > MAX_CHECKPOINTS / 4, "{}", out.checkpoints);
     }
 }
