@@ -905,4 +905,47 @@ mod tests {
         let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
         assert!(out.checkpoints <= MAX_CHECKPOINTS && out.checkpoints > MAX_CHECKPOINTS / 4, "{}", out.checkpoints);
     }
+
+    // Issue 15, item 11: the feed screen's latency count ran on across
+    // seeks (32 807 measured against 29 303 events). A seek starts it again.
+    #[test]
+    fn a_seek_starts_the_latency_count_again() {
+        let t0 = FileSource::open(&demo()).unwrap().next_event().unwrap().t_ns;
+        let src = FileSource::open(&demo()).unwrap();
+        let cfg = Arc::new(src.header().config_set(&[], &demo()).unwrap().0);
+        let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
+        let (tx, rx) = mpsc::channel(4);
+        let latency = crate::stream::latency_histogram();
+        let opts = PlayerOptions {
+            speed: 64.0,
+            start_paused: false,
+            hold_at_end: false,
+            recorder: None,
+            latency: Some(latency.clone()),
+            history: None,
+        };
+        let make = move || Engine::new(cfg.clone(), EngineOptions::default());
+        // After a second at x64 (about 64 s of stream), back to 10 s in.
+        let mut landed_fed = None;
+        let mut prev = None;
+        let mut sink = |_: Arc<Snapshot>, st: &StreamStatus| {
+            if prev.is_some_and(|p| st.position_ns < Some(p)) {
+                landed_fed.get_or_insert(st.events_fed);
+            }
+            prev = st.position_ns;
+        };
+        let out = rt
+            .block_on(async {
+                tokio::spawn(async move {
+                    tokio::time::sleep(Duration::from_secs(1)).await;
+                    tx.send(Control::Playback(Playback::SeekTo(t0 + 10 * NS_PER_S))).await.unwrap();
+                });
+                play(src, make, opts, rx, &mut sink).await
+            })
+            .unwrap();
+        let measured = latency.lock().unwrap().len();
+        let landed_fed = landed_fed.expect("the seek back happened");
+        assert!(landed_fed < out.read_stats.events / 4, "{landed_fed}");
+        assert_eq!(measured, out.read_stats.events - landed_fed, "only the events paced after the seek");
+    }
 }
