@@ -42,6 +42,9 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     if let Some(f) = &spec.file
         && let Err(e) = crate::sources::FileSource::probe(f)
     {
+        if let Some(st) = e.read_stats() {
+            report_read_stats(f, st, false);
+        }
         return super::unusable(e);
     }
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
@@ -155,21 +158,7 @@ pub fn summarise(o: &PlayerOutcome) -> Summary {
 
 /// Tells the user, on stderr, what was skipped and where.
 pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
-    let st = &o.read_stats;
-    for e in st.errors.iter().take(10) {
-        crate::say!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
-    }
-    if st.malformed > 10 {
-        crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
-    }
-    if let Some((line, back)) = st.first_reversal {
-        crate::say!(
-            "termvel: {}:{line}: time goes back {:.3} s from the event before ({} such events in all); events are applied in file order",
-            file.display(),
-            back as f64 * 1e-9,
-            st.time_reversals
-        );
-    }
+    report_read_stats(file, &o.read_stats, true);
     // Lines a source sent that did not parse (counted, alerted, kept in
     // the recording) and derived values that were not finite.
     for (id, s) in o.sources.iter() {
@@ -191,12 +180,33 @@ pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
             o.engine.counters.rejected_values
         );
     }
+}
+
+/// Tells the user, on stderr, which lines of `file` were skipped and where,
+/// whether time went back, and whether the last line is torn (`replayed`:
+/// whether what came before was played, or the file refused).
+fn report_read_stats(file: &Path, st: &crate::record::ReadStats, replayed: bool) {
+    for e in st.errors.iter().take(10) {
+        crate::say!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
+    }
+    if st.malformed > 10 {
+        crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
+    }
+    if let Some((line, back)) = st.first_reversal {
+        crate::say!(
+            "termvel: {}:{line}: time goes back {:.3} s from the event before ({} such events in all); events are applied in file order",
+            file.display(),
+            back as f64 * 1e-9,
+            st.time_reversals
+        );
+    }
     if let Some(t) = &st.torn_tail {
         crate::say!(
-            "termvel: {}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss); everything before it was replayed",
+            "termvel: {}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss){}",
             file.display(),
             t.line,
-            t.bytes
+            t.bytes,
+            if replayed { "; everything before it was replayed" } else { "" }
         );
     }
 }

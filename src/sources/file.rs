@@ -27,9 +27,10 @@ impl FileSource {
         &self.reader
     }
 
-    /// Whether the file is mostly events: of its first
-    /// [`PROBE_LINES`] lines that are not blank or declarations, at least
-    /// half must be events, and there must be one. A config file, a README
+    /// Whether the file is mostly events: of its first lines that are not
+    /// blank or declarations (at least [`PROBE_LINES`], read up to the
+    /// event that reaches that count), at least half must be events, and
+    /// there must be one. A config file, a README
     /// or a binary file is refused before anything is played or recorded,
     /// rather than replayed as a handful of lucky lines among hundreds of
     /// skipped ones.
@@ -37,19 +38,18 @@ impl FileSource {
         let mut r = RecordingReader::open(path).map_err(NotEvents::Open)?;
         while r.stats.events + r.stats.malformed < PROBE_LINES && r.next_event().is_some() {}
         let (events, bad) = (r.stats.events, r.stats.malformed);
-        let first = r.stats.errors.first().map(|e| r.describe(e));
+        if events > 0 && events >= bad {
+            return Ok(());
+        }
+        // Refused: read on to the end, so the skipped lines can be said
+        // with their places (a file given by mistake is small).
+        r.drain();
+        let path = path.display().to_string();
+        let stats = Box::new(r.stats.clone());
         if events == 0 {
-            return Err(NotEvents::NoEvents { path: path.display().to_string(), first_bad: first });
+            return Err(NotEvents::NoEvents { path, stats });
         }
-        if events < bad {
-            return Err(NotEvents::MostlyNotEvents {
-                path: path.display().to_string(),
-                events,
-                lines: events + bad,
-                first_bad: first.unwrap_or_default(),
-            });
-        }
-        Ok(())
+        Err(NotEvents::MostlyNotEvents { path, events, lines: events + bad, stats })
     }
 }
 
@@ -63,14 +63,26 @@ pub enum NotEvents {
     #[error(transparent)]
     Open(RecordingError),
     /// Not one event in the file's first lines (an empty file, a
-    /// recording with only its header, a text that is not a log).
-    #[error("{path}: not a termvel recording or a CAN log: no event in it{}", first_bad.as_ref().map(|f| format!(" (first line refused: {f})")).unwrap_or_default())]
-    NoEvents { path: String, first_bad: Option<String> },
-    /// Fewer than half of the first lines are events.
+    /// recording with only its header, a text that is not a log); what
+    /// reading the whole file found.
+    #[error("{path}: no valid event in the file: not a termvel recording or candump log")]
+    NoEvents { path: String, stats: Box<ReadStats> },
+    /// Fewer than half of the first lines are events; what reading the
+    /// whole file found.
     #[error(
-        "{path}: not a termvel recording or a CAN log: only {events} of its first {lines} lines are events (first refused: {first_bad})"
+        "{path}: only {events} of its first {lines} lines are events: not a termvel recording or candump log, refused"
     )]
-    MostlyNotEvents { path: String, events: u64, lines: u64, first_bad: String },
+    MostlyNotEvents { path: String, events: u64, lines: u64, stats: Box<ReadStats> },
+}
+
+impl NotEvents {
+    /// What reading found, when the file was read.
+    pub fn read_stats(&self) -> Option<&ReadStats> {
+        match self {
+            NotEvents::Open(_) => None,
+            NotEvents::NoEvents { stats, .. } | NotEvents::MostlyNotEvents { stats, .. } => Some(stats),
+        }
+    }
 }
 
 impl EventSource for FileSource {
@@ -115,7 +127,7 @@ mod tests {
     fn files_that_are_not_events_are_refused_and_logs_are_not() {
         for f in ["config/vehicle.toml", "README.md"] {
             let e = FileSource::probe(&repo(f)).unwrap_err().to_string();
-            assert!(e.contains("not a termvel recording or a CAN log"), "{f}: {e}");
+            assert!(e.contains("not a termvel recording or candump log"), "{f}: {e}");
             assert!(e.contains(f), "{f}: names the file: {e}");
         }
         FileSource::probe(&repo("replays/demo.tvrec")).unwrap();
@@ -136,7 +148,7 @@ mod tests {
         drop(w);
         std::fs::rename(&p, &header_only).unwrap();
         let e = FileSource::probe(&header_only).unwrap_err().to_string();
-        assert!(e.contains("no event in it"), "{e}");
+        assert!(e.contains("no valid event in the file"), "{e}");
         // Half bad, half good: refused below half only.
         let mut text = String::new();
         for i in 0..40 {

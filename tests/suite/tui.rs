@@ -277,7 +277,10 @@ fn a_wrong_file_is_refused_at_once() {
     let t = Tmux::start("wrong", &cmd, 100, 30);
     let end = t.wait(5.0, "the exit", |s| s.contains("[exited"));
     assert!(end.contains("[exited 2 ]"), "{end}");
-    assert!(end.contains("config/vehicle.toml: not a termvel recording or a CAN log"), "{end}");
+    assert!(
+        end.contains("config/vehicle.toml: no valid event in the file: not a termvel recording or candump log"),
+        "{end}"
+    );
     assert!(!t.alternate_on());
     assert!(recordings(dir.path()).is_empty(), "no recording is left behind");
     let out = Command::new(bin())
@@ -289,6 +292,6 @@ fn a_wrong_file_is_refused_at_once() {
     assert_eq!(out.status.code(), Some(2));
     assert!(out.stdout.is_empty(), "nothing replayed");
     let err = String::from_utf8_lossy(&out.stderr);
-    assert!(err.contains("README.md: not a termvel recording or a CAN log"), "{err}");
+    assert!(err.contains("README.md: only 1 of its first") && err.contains("lines are events"), "{err}");
     assert!(recordings(dir.path()).is_empty(), "no recording is left behind");
 }
