@@ -15,7 +15,7 @@ use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
 use crate::headless::Summary;
 use crate::sources::EventSource;
-use crate::stream::paced::{self, PlayerOptions, PlayerOutcome};
+use crate::stream::paced::{self, PlayerOptions, PlayerOutcome, SharedHistory};
 use crate::stream::{JsonPrinter, latency_histogram};
 use crate::ui;
 use crate::ui::app::{App, Mode, SessionInfo};
@@ -37,6 +37,16 @@ pub struct PlaySpec {
 
 /// Runs `src` to its end (headless) or until the user quits (screens).
 pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<ExitCode> {
+    // A file that is not events is refused before anything starts: no
+    // screen waiting for data that never comes, no empty recording.
+    if let Some(f) = &spec.file
+        && let Err(e) = crate::sources::FileSource::probe(f)
+    {
+        if let Some(st) = e.read_stats() {
+            report_read_stats(f, st, false);
+        }
+        return super::unusable(e);
+    }
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(r) => r,
         Err(reason) => return super::unusable(reason),
@@ -53,6 +63,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
             hold_at_end: false,
             recorder,
             latency: None,
+            history: None,
         };
         let stdout = std::io::stdout();
         let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
@@ -72,21 +83,24 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     // On the screens: the player in its own task, the UI on this one.
     let _log = init_log_file();
     let latency = latency_histogram();
+    let history = SharedHistory::default();
     let popts = PlayerOptions {
         speed: spec.speed.unwrap_or(1.0),
         start_paused: spec.paused,
         hold_at_end: true,
         recorder,
         latency: Some(latency.clone()),
+        history: Some(history.clone()),
     };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
     let (frames_tx, frames_rx) = watch::channel(None);
     let (ctl_tx, ctl_rx) = mpsc::channel(64);
     let (done_tx, done_rx) = oneshot::channel();
-    let app = App::new(
+    let mut app = App::new(
         SessionInfo { mode: spec.mode.clone(), config: spec.config.clone() },
         crate::ui::theme::Theme::from_env(),
     );
+    app.history = Some(history);
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
             let mut sink = UiSink::new(frames_tx);
@@ -118,7 +132,21 @@ fn finish(spec: &PlaySpec, o: &PlayerOutcome) -> anyhow::Result<ExitCode> {
             ));
         }
     }
-    Ok(super::code(report_recording(&o.recording)))
+    let code = super::code(report_recording(&o.recording));
+    for ev in &o.unrecorded {
+        // Made after a seek back, behind the end of the recording: said
+        // here, since the recording could not take it in time order.
+        let what = match &ev.payload {
+            crate::event::Payload::Ack(k) if k == "*" => "acknowledgement of every alert".to_string(),
+            crate::event::Payload::Ack(k) => format!("acknowledgement of {k}"),
+            _ => "operator event".to_string(),
+        };
+        crate::say!(
+            "termvel: {what} at stream time {:.1} s was not recorded: the recording had already passed that place",
+            ev.t_ns as f64 * 1e-9
+        );
+    }
+    Ok(code)
 }
 
 /// The closing summary of a played stream.
@@ -144,18 +172,9 @@ pub fn summary_json(o: &PlayerOutcome) -> serde_json::Value {
 
 /// Tells the user, on stderr, what was skipped and where.
 pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
-    let st = &o.read_stats;
+    report_read_stats(file, &o.read_stats, true);
     let file_s = crate::printable::printable(&file.display().to_string()).into_owned();
     let file = std::path::Path::new(&file_s);
-    for e in st.errors.iter().take(10) {
-        crate::say!("termvel: {}:{}: skipped: {}", file.display(), e.line, e.message);
-    }
-    if st.malformed > 10 {
-        crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
-    }
-    for line in st.time.describe(&file_s) {
-        crate::say!("termvel: {line}");
-    }
     // Lines a source sent that did not parse (counted, alerted, kept in
     // the recording) and derived values that were not finite.
     for (id, s) in o.sources.iter() {
@@ -177,12 +196,28 @@ pub fn report_read_problems(file: &Path, o: &PlayerOutcome) {
             o.engine.counters.rejected_values
         );
     }
+}
+
+/// Tells the user, on stderr, which lines of `file` were skipped and where,
+/// whether time went back, and whether the last line is torn (`replayed`:
+/// whether what came before was played, or the file refused).
+fn report_read_stats(file: &Path, st: &crate::record::ReadStats, replayed: bool) {
+    let file_s = crate::printable::printable(&file.display().to_string()).into_owned();
+    for e in st.errors.iter().take(10) {
+        crate::say!("termvel: {file_s}:{}: skipped: {}", e.line, e.message);
+    }
+    if st.malformed > 10 {
+        crate::say!("termvel: … and {} more malformed lines", st.malformed - 10);
+    }
+    for line in st.time.describe(&file_s) {
+        crate::say!("termvel: {line}");
+    }
     if let Some(t) = &st.torn_tail {
         crate::say!(
-            "termvel: {}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss); everything before it was replayed",
-            file.display(),
+            "termvel: {file_s}:{}: the last line is torn ({} bytes without a line end, e.g. a power loss){}",
             t.line,
-            t.bytes
+            t.bytes,
+            if replayed { "; everything before it was replayed" } else { "" }
         );
     }
 }

@@ -45,7 +45,7 @@ pub mod writer;
 
 pub use config_choice::ConfigChoiceError;
 pub use files::{create_recording, default_record_dir};
-pub use reader::{BodyError, LineError, ReadStats, RecordingError, RecordingReader, SourceDeclError};
+pub use reader::{BodyError, LineError, ReadStats, ReaderPosition, RecordingError, RecordingReader, SourceDeclError};
 pub use time_order::{TimeOrderStats, TimeStep};
 pub use writer::RecordingWriter;
 

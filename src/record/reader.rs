@@ -14,7 +14,7 @@
 
 use std::fmt;
 use std::fs::File;
-use std::io::{self, Read};
+use std::io::{self, Read, Seek, SeekFrom};
 use std::path::Path;
 
 use super::time_order::{TimeOrder, TimeOrderStats};
@@ -219,10 +219,27 @@ pub struct RecordingReader<R: Read> {
     skipping: bool,
     /// No line end seen yet, anywhere in the input.
     no_line_yet: bool,
-    /// Bytes read so far.
-    bytes_read: usize,
     /// The source of the previous CAN line as written (logs rarely switch
     /// interface).
+    last_can_source: Option<(Vec<u8>, crate::event::SourceId)>,
+    /// Bytes taken from `src` so far (the no-lines check, and
+    /// [`RecordingReader::position`]).
+    read_bytes: u64,
+}
+
+/// Where a reader stands between two events: everything it needs to go on
+/// from there in a fresh pass over the same file (a player's checkpoint),
+/// the events the time-order stage still holds included.
+#[derive(Clone, Debug)]
+pub struct ReaderPosition {
+    /// Byte offset of the next line.
+    offset: u64,
+    line_no: u64,
+    /// The sources declared up to here (a log's interfaces are added as met).
+    sources: SourceTable,
+    stats: ReadStats,
+    order: TimeOrder,
+    done: bool,
     last_can_source: Option<(Vec<u8>, crate::event::SourceId)>,
 }
 
@@ -260,8 +277,8 @@ impl<R: Read> RecordingReader<R> {
             done: false,
             skipping: false,
             no_line_yet: true,
-            bytes_read: 0,
             last_can_source: None,
+            read_bytes: 0,
         };
         r.read_header()?;
         Ok(r)
@@ -301,7 +318,7 @@ impl<R: Read> RecordingReader<R> {
                 }
                 Ok(n) => {
                     self.end += n;
-                    self.bytes_read += n;
+                    self.read_bytes += n as u64;
                     return Ok(true);
                 }
                 Err(e) if e.kind() == io::ErrorKind::Interrupted => continue,
@@ -327,7 +344,7 @@ impl<R: Read> RecordingReader<R> {
                 }
                 return Ok(Next::Line(s, e));
             }
-            if self.no_line_yet && self.bytes_read > NO_LINES_AFTER {
+            if self.no_line_yet && self.read_bytes > NO_LINES_AFTER as u64 {
                 return Ok(Next::NoLines);
             }
             if self.end - self.start > MAX_LINE {
@@ -694,9 +711,48 @@ impl<R: Read> RecordingReader<R> {
         while self.next_event().is_some() {}
     }
 
+    /// Where the reader stands: after the last event returned, before the
+    /// next line. `None` in the middle of skipping an over-long line.
+    pub fn position(&self) -> Option<ReaderPosition> {
+        if self.skipping {
+            return None;
+        }
+        Some(ReaderPosition {
+            offset: self.read_bytes - (self.end - self.start) as u64,
+            line_no: self.line_no,
+            sources: self.header.sources.clone(),
+            stats: self.stats.clone(),
+            order: self.order.clone(),
+            done: self.done,
+            last_can_source: self.last_can_source.clone(),
+        })
+    }
+
     /// Formats a line error with the file name: `file:line: message`.
     pub fn describe(&self, e: &LineError) -> String {
         format!("{}:{}: {}", self.name, e.line, e.message)
+    }
+}
+
+impl<R: Read + Seek> RecordingReader<R> {
+    /// Goes on from `pos` (taken by [`RecordingReader::position`] on a
+    /// reader of the same file): the events that follow are those that
+    /// followed it then, and the statistics are those it had.
+    pub fn resume(&mut self, pos: &ReaderPosition) -> Result<(), RecordingError> {
+        self.src.seek(SeekFrom::Start(pos.offset)).map_err(|e| self.io_err(e))?;
+        self.read_bytes = pos.offset;
+        self.start = 0;
+        self.end = 0;
+        self.eof = false;
+        self.skipping = false;
+        self.line_no = pos.line_no;
+        self.header.sources = pos.sources.clone();
+        self.stats = pos.stats.clone();
+        self.order = pos.order.clone();
+        self.done = pos.done;
+        self.no_line_yet = false;
+        self.last_can_source = pos.last_can_source.clone();
+        Ok(())
     }
 }
 
@@ -741,6 +797,30 @@ mod tests {
             n += 1;
         }
         (n, r.stats.errors.iter().map(|e| e.message.clone()).collect())
+    }
+
+    // Issue 15, item 23: seeking back re-read the file from its start; a
+    // reader now goes on from a position taken earlier, exactly as it went
+    // on then (events, line numbers, statistics, a log's interfaces).
+    #[test]
+    fn a_reader_resumes_at_a_position_as_it_went_on_then() {
+        let text = format!(
+            "{MAGIC} {VERSION}\n%source can0 can\n%source op operator\n%end-header\n{}",
+            "(1.000000) can0 123#00\nbad\n(2.000000) vcan1 124#01\n[3.000000] op mark m\n(2.500000) vcan1 125#02\n"
+        );
+        let mut r = RecordingReader::new(std::io::Cursor::new(text.as_bytes().to_vec()), "t").unwrap();
+        r.next_event().unwrap();
+        r.next_event().unwrap();
+        let pos = r.position().unwrap();
+        let rest: Vec<Event> = std::iter::from_fn(|| r.next_event()).collect();
+        let end_stats = r.stats.clone();
+        let mut again = RecordingReader::new(std::io::Cursor::new(text.as_bytes().to_vec()), "t").unwrap();
+        again.resume(&pos).unwrap();
+        let rest_again: Vec<Event> = std::iter::from_fn(|| again.next_event()).collect();
+        assert_eq!(rest.len(), 2);
+        assert_eq!(rest, rest_again);
+        assert_eq!(end_stats, again.stats, "line numbers, the bad line and the time reversal as before");
+        assert!(again.header.sources.find("vcan1").is_some());
     }
 
     #[test]

@@ -115,7 +115,7 @@ impl TimeOrderStats {
 }
 
 /// The ordering stage: events in with their line, events out in order.
-#[derive(Debug, Default)]
+#[derive(Clone, Debug, Default)]
 pub struct TimeOrder {
     /// Time of the last event accepted (file order, jumps put right).
     clock: Option<TimeNs>,

@@ -13,7 +13,7 @@ pub mod link;
 pub mod serial_port;
 pub mod socketcan;
 
-pub use file::FileSource;
+pub use file::{FileSource, NotEvents};
 
 use crate::event::{Event, SourceTable};
 use crate::record::{ReadStats, RecordingError};
@@ -30,7 +30,21 @@ pub trait EventSource: Send {
     fn read_stats(&self) -> ReadStats {
         ReadStats::default()
     }
+    /// Where the stream stands between two events, for a player's
+    /// checkpoint; `None` when this source can only start again.
+    fn position(&self) -> Option<SourcePosition> {
+        None
+    }
+    /// Goes on from a position this source gave.
+    fn resume(&mut self, _pos: &SourcePosition) -> Result<(), RewindError> {
+        Err(RewindError::NoPositions)
+    }
 }
+
+/// A place in a finite stream to go on from (a file's byte offset and the
+/// reader's state there).
+#[derive(Clone, Debug)]
+pub struct SourcePosition(pub(crate) crate::record::ReaderPosition);
 
 /// A finite stream that cannot start again from its first event.
 #[derive(Debug, thiserror::Error)]
@@ -39,4 +53,7 @@ pub enum RewindError {
     /// unreadable since it was first read).
     #[error(transparent)]
     Reopen(#[from] RecordingError),
+    /// Asked to go on from a position, by a source that gives none.
+    #[error("this stream cannot go on from a position, only start again")]
+    NoPositions,
 }

@@ -78,6 +78,7 @@ impl<K: SnapshotSink> State<'_, K> {
 
     fn emit(&mut self) {
         for s in self.snaps.drain(..) {
+            self.pipe.status.snapshots += 1;
             self.sink.snapshot(Arc::new(s), &self.pipe.status);
         }
     }

@@ -32,6 +32,12 @@ pub struct StreamStatus {
     /// Events dropped because the memory buffer was full.
     pub record_dropped: u64,
     pub events_fed: u64,
+    /// Snapshots the stream has produced up to its position (after a seek:
+    /// as many as a straight run to there).
+    pub snapshots: u64,
+    /// How far (stream time) the recording of a replayed stream reaches: a
+    /// mark made behind it cannot go into the copy in time order.
+    pub recorded_to_ns: Option<TimeNs>,
 }
 
 impl Default for StreamStatus {
@@ -48,6 +54,8 @@ impl Default for StreamStatus {
             record_held: 0,
             record_dropped: 0,
             events_fed: 0,
+            snapshots: 0,
+            recorded_to_ns: None,
         }
     }
 }

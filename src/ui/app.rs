@@ -11,6 +11,7 @@ use super::theme::Theme;
 use crate::config::ConfigSet;
 use crate::engine::Snapshot;
 use crate::event::{NS_PER_S, TimeNs};
+use crate::stream::paced::{ChartHistory, SharedHistory};
 use crate::stream::{Control, Operator, Playback, StreamStatus};
 
 /// The screens.
@@ -121,8 +122,11 @@ pub struct App {
     /// (time in boost s, deliverable/rated) measured while boosting.
     pub derating: Vec<(f64, f64)>,
     pub latency: LatencyView,
-    /// Snapshots seen and drawn frames, for the feed screen.
-    pub snapshots_seen: u64,
+    /// The stream's chart history, kept by a finite stream's player from
+    /// every snapshot (so it is a straight run's after any seek); `None`
+    /// live, where the app keeps its own from the frames it sees.
+    pub history: Option<SharedHistory>,
+    own_history: ChartHistory,
     /// The CAN bus load of the signal map (config alone), for the feed screen.
     pub bus_load: crate::decode::busload::BusLoad,
 }
@@ -146,7 +150,8 @@ impl App {
             trace: Vec::new(),
             derating: Vec::new(),
             latency: LatencyView::default(),
-            snapshots_seen: 0,
+            history: None,
+            own_history: ChartHistory::default(),
         }
     }
 
@@ -158,33 +163,37 @@ impl App {
         self.frame.as_deref().map(|f| &f.status)
     }
 
-    /// A new snapshot: keep it and extend the histories the charts draw.
+    /// A new snapshot: keep it and take the histories the charts draw up
+    /// to its time.
     pub fn on_frame(&mut self, f: Arc<UiFrame>) {
-        self.snapshots_seen += 1;
-        let d = &f.snapshot.derived;
-        if let Some(v) = d.speed_mps {
-            let x = d.distance_m;
-            // Back in distance: a seek backwards; drop what is now ahead.
-            if self.trace.last().is_some_and(|p| x < p.0 - 1.0) {
-                self.trace.retain(|p| p.0 <= x);
-                self.derating.clear();
+        let t_ns = f.snapshot.t_ns;
+        match &self.history {
+            Some(shared) => {
+                let h = shared.lock().unwrap_or_else(|e| e.into_inner());
+                Self::take_history(&h, t_ns, &mut self.trace, &mut self.derating);
             }
-            if self.trace.last().is_none_or(|p| x - p.0 >= 5.0 || (v - p.1).abs() > 2.0) {
-                self.trace.push((x, v));
-            }
-        }
-        let b = &d.battery;
-        if b.boosting
-            && let Some(r) = b.derating_ratio
-        {
-            if self.derating.last().is_some_and(|p| b.time_in_boost_s < p.0 - 0.5) {
-                self.derating.clear();
-            }
-            if self.derating.last().is_none_or(|p| b.time_in_boost_s - p.0 >= 0.25) {
-                self.derating.push((b.time_in_boost_s, r));
+            None => {
+                if self.frame.as_ref().is_none_or(|old| !Arc::ptr_eq(&old.snapshot, &f.snapshot)) {
+                    self.own_history.push(&f.snapshot);
+                }
+                let h = &self.own_history;
+                Self::take_history(h, t_ns, &mut self.trace, &mut self.derating);
             }
         }
         self.frame = Some(f);
+    }
+
+    /// Copies the history up to `t_ns`: only what is new, unless the
+    /// copy runs past `t_ns` (a seek back). The history only ever grows
+    /// (it is a straight run's), so what was copied stays right.
+    fn take_history(h: &ChartHistory, t_ns: TimeNs, trace: &mut Vec<(f64, f64)>, derating: &mut Vec<(f64, f64)>) {
+        let upto = h.trace.partition_point(|p| p.0 <= t_ns);
+        if trace.len() > upto {
+            trace.truncate(upto);
+        }
+        let from = trace.len();
+        trace.extend(h.trace[from..upto].iter().map(|p| (p.1, p.2)));
+        *derating = h.derating_until(t_ns);
     }
 
     /// A clock tick (the frame rate): age the transient state.
@@ -222,7 +231,17 @@ impl App {
                     } else {
                         text.trim().to_string()
                     };
-                    self.say(format!("marked: {text}"));
+                    let status = self.status();
+                    let said = match status {
+                        Some(st) if st.recording.is_none() => {
+                            format!("mark shown, not recorded (no recording is being written): {text}")
+                        }
+                        Some(st) if st.recorded_to_ns.is_some_and(|r| st.position_ns.is_some_and(|p| p < r)) => {
+                            format!("marked: {text} (recorded where the recording has reached, with this place)")
+                        }
+                        _ => format!("marked: {text}"),
+                    };
+                    self.say(said);
                     return vec![Action::Player(Control::Operator(Operator::Mark(text)))];
                 }
                 KeyCode::Esc => {
@@ -493,5 +512,38 @@ mod tests {
         assert!(!a.filtering);
         a.on_key(key(KeyCode::Esc));
         assert!(a.filter.is_empty());
+    }
+
+    // Issue 15, item 19: under --no-record, `m` said `marked:` though
+    // nothing was stored.
+    #[test]
+    fn a_mark_says_when_it_is_not_recorded() {
+        let frame = |recording: Option<&str>, position_ns, recorded_to_ns| {
+            Arc::new(UiFrame {
+                snapshot: Arc::new(
+                    crate::engine::Engine::new(Arc::new(ConfigSet::embedded()), Default::default())
+                        .snapshot_at(0, &Default::default()),
+                ),
+                status: StreamStatus {
+                    recording: recording.map(Into::into),
+                    position_ns,
+                    recorded_to_ns,
+                    ..StreamStatus::default()
+                },
+            })
+        };
+        let said = |f: Arc<UiFrame>| {
+            let mut a = app();
+            a.on_frame(f);
+            a.on_key(key(KeyCode::Char('m')));
+            a.on_key(key(KeyCode::Char('x')));
+            a.on_key(key(KeyCode::Enter));
+            a.message.unwrap().0
+        };
+        assert_eq!(said(frame(Some("r.tvrec"), Some(5), Some(5))), "marked: x");
+        let m = said(frame(None, Some(5), Some(5)));
+        assert!(m.contains("not recorded") && !m.starts_with("marked"), "{m}");
+        let m = said(frame(Some("r.tvrec"), Some(5), Some(9)));
+        assert!(m.starts_with("marked: x") && m.contains("where the recording has reached"), "{m}");
     }
 }

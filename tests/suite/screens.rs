@@ -28,6 +28,7 @@ pub fn demo_app(secs: f64, color: bool) -> App {
     let mut engine = Engine::new(cfg, EngineOptions::default());
     let mut start = None;
     let mut snaps = Vec::new();
+    let mut snapshots = 0;
     while let Some(ev) = src.next_event() {
         let t0 = *start.get_or_insert(ev.t_ns);
         if (ev.t_ns - t0) as f64 * 1e-9 > secs {
@@ -35,6 +36,7 @@ pub fn demo_app(secs: f64, color: bool) -> App {
         }
         engine.feed(&ev, src.sources(), &mut |s| snaps.push(s));
         for s in snaps.drain(..) {
+            snapshots += 1;
             let status = StreamStatus {
                 start_ns: Some(t0),
                 position_ns: Some(s.t_ns),
@@ -44,6 +46,8 @@ pub fn demo_app(secs: f64, color: bool) -> App {
                 recording: Some("/rec/termvel-20260314-074210-replay.tvrec".into()),
                 record_failures: 0,
                 events_fed: 0,
+                snapshots,
+                recorded_to_ns: Some(s.t_ns),
                 ..StreamStatus::default()
             };
             app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status }));

@@ -64,7 +64,8 @@ fn an_engineer_walks_through_the_screens() {
     t.wait(5.0, "the prompt", |s| s.contains("mark: boost felt late"));
     t.keys(&["Enter"]);
     t.wait(5.0, "the confirmation", |s| s.contains("marked: boost felt late"));
-    // Acknowledge, units, and quit with q twice.
+    // Acknowledge (behind the end of the recording, after the seek back:
+    // not recorded, and said on exit), units, and quit with q twice.
     t.keys(&["a"]);
     t.wait(5.0, "the acknowledgement", |s| s.contains("acknowledged"));
     t.keys(&["u"]);
@@ -79,8 +80,13 @@ fn an_engineer_walks_through_the_screens() {
     let rec = recordings(dir.path());
     assert_eq!(rec.len(), 1);
     let text = std::fs::read_to_string(&rec[0]).unwrap();
-    assert!(text.contains(" op mark boost felt late\n"), "the mark is in the recording");
-    assert!(text.contains(" op ack *\n"), "the acknowledgement is in the recording");
+    // Made 5 s back from where the recording had reached, the mark goes in
+    // where it had reached, in time order, saying where it was made.
+    assert!(text.contains(" op mark boost felt late (made at "), "the mark is in the recording");
+    let mut r = termvel::record::RecordingReader::open(&rec[0]).unwrap();
+    r.drain();
+    assert_eq!(r.stats.time.time_reversals, 0, "the recording is in time order");
+    assert!(end.contains("acknowledgement of every alert at stream time"), "{end}");
     assert!(text.ends_with('\n'), "the recording ends with a whole line");
 }
 
@@ -204,4 +210,88 @@ fn live_on_the_screens_with_a_receiver_unplugged() {
     assert!(text.contains(" op mark receiver lost\n"));
     assert!(text.contains(" gnss link down "), "the unplug is in the recording");
     assert!(text.lines().filter(|l| l.contains(" pt 0C4#")).count() >= 10);
+}
+
+/// The screen without its last two lines (the caution and the status line
+/// with its transient messages).
+fn body(screen: &str) -> String {
+    let lines: Vec<&str> = screen.lines().collect();
+    lines[..lines.len().saturating_sub(2)].join("\n")
+}
+
+/// Starts the demo paused at 120×40, steps once (so the position sits on
+/// the snapshot grid), presses `keys`, steps once more and returns the
+/// screen once it has settled on the step's position.
+fn paused_then(name: &str, keys: &[&str]) -> (String, u64) {
+    let cmd = format!("{} replay {} --no-record --paused", bin(), demo().display());
+    let t = Tmux::start(name, &cmd, 120, 40);
+    let first = t.wait(15.0, "the first snapshot, paused", |s| s.contains("PAUSED") && position(s).is_some());
+    assert!(!first.contains("waiting for"), "{first}");
+    let p0 = position(&first).unwrap();
+    t.keys(&["s"]);
+    let stepped = t.wait(5.0, "a step", |s| position(s).is_some_and(|p| p == p0 + 1));
+    let p1 = position(&stepped).unwrap();
+    t.keys(keys);
+    // Until every seek is done: the position stays put for a second.
+    let mut last = None;
+    for _ in 0..40 {
+        let s = t.wait(20.0, "the seeks", |s| position(s).is_some_and(|p| p + 2 > p1 + 600 && p < p1 + 600));
+        if last.is_some() && last == position(&s) {
+            break;
+        }
+        last = position(&s);
+        std::thread::sleep(Duration::from_millis(1000));
+    }
+    t.keys(&["s"]);
+    let landed =
+        t.wait(10.0, &format!("{name}: the last step from {p0} {p1} {last:?}"), |s| position(s) == Some(p1 + 600));
+    std::thread::sleep(Duration::from_millis(400));
+    let settled = t.screen();
+    assert_eq!(position(&settled), position(&landed));
+    t.keys(&["C-c"]);
+    t.wait(10.0, "the exit", |s| s.contains("[exited 0 ]"));
+    (settled, p1 + 600)
+}
+
+// Issue 15, item 3: `--paused` waited at "waiting for the first snapshot"
+// and only Space started. Item 1: after `<` then `>` the same position
+// showed another speed trace (the skipped stretch drawn as a straight line).
+// Started paused, seeking back and forth to a place and stepping there
+// draws exactly the screen (trace included) of going there directly.
+#[test]
+fn paused_start_and_seeks_draw_the_straight_replays_screen() {
+    let (direct, at) = paused_then("direct", &[">", ">"]);
+    let (sought, at2) = paused_then("sought", &[">", ">", ">", "<", "<", "Left", ">", "Right"]);
+    assert_eq!(at, at2);
+    assert!(direct.contains("speed over distance"), "{direct}");
+    assert_eq!(body(&sought), body(&direct), "the screens differ after the seeks");
+}
+
+// Issue 15, item 4: a file that is not a recording or a CAN log sat on
+// "waiting for data" and left a header-only recording; headless, a README
+// was replayed as 5 events among 599 skipped lines.
+#[test]
+fn a_wrong_file_is_refused_at_once() {
+    let dir = tempfile::tempdir().unwrap();
+    let cmd = format!("{} replay config/vehicle.toml --record-dir {}", bin(), dir.path().display());
+    let t = Tmux::start("wrong", &cmd, 100, 30);
+    let end = t.wait(5.0, "the exit", |s| s.contains("[exited"));
+    assert!(end.contains("[exited 2 ]"), "{end}");
+    assert!(
+        end.contains("config/vehicle.toml: no valid event in the file: not a termvel recording or candump log"),
+        "{end}"
+    );
+    assert!(!t.alternate_on());
+    assert!(recordings(dir.path()).is_empty(), "no recording is left behind");
+    let out = Command::new(bin())
+        .args(["replay", "--headless", "README.md", "--record-dir"])
+        .arg(dir.path())
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(out.stdout.is_empty(), "nothing replayed");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(err.contains("README.md: only 1 of its first") && err.contains("lines are events"), "{err}");
+    assert!(recordings(dir.path()).is_empty(), "no recording is left behind");
 }

@@ -97,7 +97,9 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
             if c.parse_errors > 0 { t.doubtful() } else { t.value() },
         ),
         Line::styled(format!(" time jumps   {}", c.time_jumps), t.value()),
-        Line::styled(format!(" snapshots    {} received", app.snapshots_seen), t.label()),
+        // The stream's count to its position (after a seek: a straight run's
+        // to there), not the frames this screen happened to receive.
+        Line::styled(format!(" snapshots    {}", app.status().map_or(0, |st| st.snapshots)), t.label()),
         Line::styled(format!(" bus load     {:.1} % worst case", load.worst * 100.0), t.label()),
         Line::styled(
             format!("              at {:.0} frames/s, {} kbit/s", load.frames_per_s, load.bitrate / 1000),
