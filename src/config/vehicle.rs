@@ -76,6 +76,7 @@ struct RawBattery {
     heat_capacity_kj_per_k: F,
     derate_time_constant_s: F,
     derate_floor: F,
+    auxiliary_current_a: Option<F>,
 }
 
 #[derive(Deserialize)]
@@ -151,9 +152,16 @@ pub struct Battery {
     pub derate_tau_s: f64,
     /// Prior of the derating curve's floor, fraction of rated power.
     pub derate_floor: f64,
+    /// Current the auxiliaries (pumps, fans, electronics) draw from the
+    /// pack whatever the motor does, A.
+    pub auxiliary_current_a: f64,
 }
 
 impl Battery {
+    /// Auxiliary current when the vehicle file does not say, A (a few
+    /// hundred watts of pumps, fans and electronics on a high-voltage pack).
+    pub const DEFAULT_AUXILIARY_CURRENT_A: f64 = 3.0;
+
     pub fn pack_min_v(&self) -> f64 {
         self.cell_min_v * self.cells_in_series as f64
     }
@@ -331,6 +339,9 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     let tau =
         ctx.range(&b.derate_time_constant_s, "battery.derate_time_constant_s", 1.0, 3600.0, "a time constant in s");
     let floor = ctx.range(&b.derate_floor, "battery.derate_floor", 0.0, 1.0, "a fraction of rated power");
+    let aux_a = b.auxiliary_current_a.as_ref().map_or(Battery::DEFAULT_AUXILIARY_CURRENT_A, |a| {
+        ctx.range(a, "battery.auxiliary_current_a", 0.0, 500.0, "a current in A")
+    });
 
     let t = &raw.tyre;
     let symbol = t.speed_symbol.as_ref().map(|s| s.get_ref().trim().to_string());
@@ -421,6 +432,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
             heat_capacity_j_per_k: heat_cap * 1e3,
             derate_tau_s: tau,
             derate_floor: floor,
+            auxiliary_current_a: aux_a,
         },
         tyre_rated_mps: rated_kmh / 3.6,
         tyre_symbol: symbol,
