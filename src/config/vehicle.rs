@@ -133,6 +133,12 @@ impl Combustion {
     }
 }
 
+/// The range of drag area a vehicle file may give, m²: outside it a value
+/// is not a car's (the engine uses an estimate only inside it too).
+pub const CDA_RANGE_M2: (f64, f64) = (0.05, 5.0);
+/// The range of rolling-resistance coefficient a vehicle file may give.
+pub const CRR_RANGE: (f64, f64) = (0.0, 0.1);
+
 /// Traction battery.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Battery {
@@ -265,8 +271,10 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     let c = &raw.chassis;
     let mass_kg = ctx.range(&c.mass_kg, "chassis.mass_kg", 100.0, 20_000.0, "a mass in kg");
     let rotating_mass_factor = ctx.range(&c.rotating_mass_factor, "chassis.rotating_mass_factor", 1.0, 1.5, "a factor");
-    let cda_m2 = ctx.range(&c.drag_area_m2, "chassis.drag_area_m2", 0.05, 5.0, "a drag area in m²");
-    let crr0 = ctx.range(&c.rolling_crr, "chassis.rolling_crr", 0.0, 0.1, "a rolling-resistance coefficient");
+    let (cda_lo, cda_hi) = CDA_RANGE_M2;
+    let cda_m2 = ctx.range(&c.drag_area_m2, "chassis.drag_area_m2", cda_lo, cda_hi, "a drag area in m²");
+    let (crr_lo, crr_hi) = CRR_RANGE;
+    let crr0 = ctx.range(&c.rolling_crr, "chassis.rolling_crr", crr_lo, crr_hi, "a rolling-resistance coefficient");
     let crr2 = ctx.range(
         &c.rolling_crr_speed2_s2_per_m2,
         "chassis.rolling_crr_speed2_s2_per_m2",
