@@ -362,6 +362,9 @@ pub enum CoefficientSource {
     /// The vehicle file's value: the estimate is outside the range the
     /// vehicle schema allows (not a car's).
     PriorUnphysical,
+    /// The vehicle file's value: this estimate would do, but the other
+    /// coefficient's would not, and the two are fitted together.
+    PriorWithOther,
 }
 
 impl CoefficientSource {
@@ -370,6 +373,7 @@ impl CoefficientSource {
             CoefficientSource::Estimate => "estimate",
             CoefficientSource::PriorUncertain => "prior_uncertain",
             CoefficientSource::PriorUnphysical => "prior_unphysical",
+            CoefficientSource::PriorWithOther => "prior_with_other",
         }
     }
 }
@@ -408,7 +412,17 @@ pub fn coefficients_step(veh: &Vehicle, estimate: &RoadLoadEstimate) -> Coeffici
     };
     let (cda_m2, cda_source) = pick(estimate.cda_m2, CDA_RANGE_M2, MAX_REL_SD_CDA, veh.cda_m2);
     let (crr, crr_source) = pick(estimate.crr, CRR_RANGE, MAX_REL_SD_CRR, veh.crr0);
-    Coefficients { cda_m2, crr, cda_source, crr_source }
+    // The two are fitted together and their errors are strongly
+    // correlated (a drag area too high goes with a rolling coefficient too
+    // low): one is not used with the other's prior. Each source still
+    // says why its own estimate would or would not do.
+    if cda_source == CoefficientSource::Estimate && crr_source == CoefficientSource::Estimate {
+        Coefficients { cda_m2, crr, cda_source, crr_source }
+    } else {
+        let held =
+            |s: CoefficientSource| if s == CoefficientSource::Estimate { CoefficientSource::PriorWithOther } else { s };
+        Coefficients { cda_m2: veh.cda_m2, crr: veh.crr0, cda_source: held(cda_source), crr_source: held(crr_source) }
+    }
 }
 
 /// The battery now: terminal power P = V·I, the discharge rate, energy
@@ -784,8 +798,9 @@ mod tests {
             crr: Estimated { value: 0.013, sd: 0.5 },
             ..RoadLoadEstimate::default()
         };
-        // CdA tight, Crr's sd far over 30 % of itself: CdA from the data, Crr from the file.
-        assert_eq!(pair(coefficients_step(veh, &tight)), (0.91, veh.crr0, Estimate, PriorUncertain));
+        // CdA tight, Crr's sd far over 30 % of itself: both from the file
+        // (they are fitted together), and each says why.
+        assert_eq!(pair(coefficients_step(veh, &tight)), (veh.cda_m2, veh.crr0, PriorWithOther, PriorUncertain));
         let both = RoadLoadEstimate {
             cda_m2: Estimated { value: 0.91, sd: 0.01 },
             crr: Estimated { value: 0.013, sd: 0.002 },

@@ -168,13 +168,13 @@ pub static QUANTITIES: &[Quantity] = &[
     q(
         "derived.road_load.cda_source",
         "",
-        "where the drag area in use came from: `estimate`, `prior_uncertain` or `prior_unphysical`",
+        "where the drag area in use came from: `estimate`, `prior_uncertain`, `prior_unphysical` or `prior_with_other` (the two are used together)",
         |d| Text(d.road_load.map(|r| r.cda_source.as_str())),
     ),
     q(
         "derived.road_load.crr_source",
         "",
-        "where the rolling coefficient in use came from: `estimate`, `prior_uncertain` or `prior_unphysical`",
+        "where the rolling coefficient in use came from: `estimate`, `prior_uncertain`, `prior_unphysical` or `prior_with_other`",
         |d| Text(d.road_load.map(|r| r.crr_source.as_str())),
     ),
     q("derived.estimate.cda_m2", "m²", "online drag-area estimate", |d| Num(Some(d.estimate.cda_m2.value))),

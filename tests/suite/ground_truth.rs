@@ -86,6 +86,15 @@ fn projected_peak_within_1_percent_after_5_s_of_full_throttle() {
     let t = estimator_start(&r) + 5.0;
     let s = snapshot_at(&r, t);
     let at_lift = projected_at(s, lift_x).expect("the projection reaches the driver's lift point");
+    let rl = s.derived.road_load.unwrap();
+    println!(
+        "in use: CdA {:.4} ({}), Crr {:.5} ({}); estimate {:?}",
+        rl.cda_m2,
+        rl.cda_source.as_str(),
+        rl.crr,
+        rl.crr_source.as_str(),
+        s.derived.estimate
+    );
     let err = at_lift / peak - 1.0;
     println!(
         "projected speed at the lift point ({lift_x:.0} m) after 5 s of full-throttle data: {:.2} km/h, simulated peak {:.2} km/h: {:+.2} %",
