@@ -178,10 +178,10 @@ impl ScoreBlocks {
     fn push(&mut self, phi: [f64; 2], e: f64, lambda: f64) {
         self.samples += 1;
         let rate = (1.0 / self.samples as f64).max(1.0 - lambda);
-        for i in 0..2 {
-            let g = phi[i] * e;
-            self.sample_m2[i] += rate * (g * g - self.sample_m2[i]);
-            self.sum[i] += g;
+        for ((m2, sum), x) in self.sample_m2.iter_mut().zip(&mut self.sum).zip(phi) {
+            let g = x * e;
+            *m2 += rate * (g * g - *m2);
+            *sum += g;
         }
         self.in_block += 1;
         if self.in_block == Self::BLOCK {

@@ -53,7 +53,7 @@ fn case(k: usize) -> (ConfigSet, Plan) {
     plan.car.crr0 = Some(veh.crr0 * rng.range(0.85, 1.15));
     let a = &mut plan.ambient;
     a.headwind_mps = rng.range(-3.0, 3.0);
-    a.gust_mps = if k % 3 == 0 { 0.0 } else { rng.range(0.0, 1.5) };
+    a.gust_mps = if k.is_multiple_of(3) { 0.0 } else { rng.range(0.0, 1.5) };
     a.gust_period_s = rng.range(6.0, 15.0);
     let noise = rng.range(0.5, 2.0);
     let s = &mut plan.sensors;

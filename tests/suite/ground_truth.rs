@@ -231,10 +231,14 @@ fn a_short_pull_and_a_coast_never_drive_the_projection_with_an_unphysical_drag_a
     let mut sim = termvel::sim::Simulator::new(cfg.clone(), Arc::new(plan));
     let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
     let (mut checked, mut failures) = (0, Vec::new());
+    let mut lowest = (f64::INFINITY, 0.0);
     let mut check = |s: Snapshot| {
         let (Some(rl), Some(p)) = (s.derived.road_load, s.derived.projection.as_ref()) else { return };
         checked += 1;
         let e = s.derived.estimate;
+        if e.cda_m2.value < lowest.0 {
+            lowest = (e.cda_m2.value, e.cda_m2.sd);
+        }
         if !(0.05..=5.0).contains(&rl.cda_m2) {
             failures.push(format!("CdA in use {} outside the schema's range", rl.cda_m2));
         }
@@ -252,6 +256,7 @@ fn a_short_pull_and_a_coast_never_drive_the_projection_with_an_unphysical_drag_a
         engine.feed(&ev, sim.sources(), &mut check);
     }
     engine.finish(sim.sources(), &mut check);
+    println!("lowest drag-area estimate seen: {:.4} ± {:.4} m²", lowest.0, lowest.1);
     assert!(checked > 50, "{checked} snapshots with a projection");
     assert!(failures.is_empty(), "{} bad snapshots, first: {:?}", failures.len(), failures.first());
 }
