@@ -6,6 +6,8 @@
 //!   paced or as fast as possible, in-process and through the binary.
 //! - `bad_input`: the corpus in tests/bad-input (malformed recordings,
 //!   candump logs, an NMEA stream): a message with a location, no panic.
+//! - `calibration`: the road-load estimate's standard deviations against
+//!   the truth over seeded rehearsals of varied cars, winds and noise.
 //! - `cli`: the commands as a user runs them: exit codes and messages.
 //! - `output_faults`: outputs under faults: the recorder on a full disk
 //!   (a small tmpfs), exports and plots that leave no partial file or
@@ -45,6 +47,8 @@ mod util;
 
 #[path = "suite/bad_input.rs"]
 mod bad_input;
+#[path = "suite/calibration.rs"]
+mod calibration;
 #[path = "suite/cli.rs"]
 mod cli;
 #[path = "suite/config_errors.rs"]

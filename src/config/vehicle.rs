@@ -76,6 +76,7 @@ struct RawBattery {
     heat_capacity_kj_per_k: F,
     derate_time_constant_s: F,
     derate_floor: F,
+    auxiliary_current_a: Option<F>,
 }
 
 #[derive(Deserialize)]
@@ -132,6 +133,12 @@ impl Combustion {
     }
 }
 
+/// The range of drag area a vehicle file may give, m²: outside it a value
+/// is not a car's (the engine uses an estimate only inside it too).
+pub const CDA_RANGE_M2: (f64, f64) = (0.05, 5.0);
+/// The range of rolling-resistance coefficient a vehicle file may give.
+pub const CRR_RANGE: (f64, f64) = (0.0, 0.1);
+
 /// Traction battery.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Battery {
@@ -151,9 +158,16 @@ pub struct Battery {
     pub derate_tau_s: f64,
     /// Prior of the derating curve's floor, fraction of rated power.
     pub derate_floor: f64,
+    /// Current the auxiliaries (pumps, fans, electronics) draw from the
+    /// pack whatever the motor does, A.
+    pub auxiliary_current_a: f64,
 }
 
 impl Battery {
+    /// Auxiliary current when the vehicle file does not say, A (a few
+    /// hundred watts of pumps, fans and electronics on a high-voltage pack).
+    pub const DEFAULT_AUXILIARY_CURRENT_A: f64 = 3.0;
+
     pub fn pack_min_v(&self) -> f64 {
         self.cell_min_v * self.cells_in_series as f64
     }
@@ -257,8 +271,10 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     let c = &raw.chassis;
     let mass_kg = ctx.range(&c.mass_kg, "chassis.mass_kg", 100.0, 20_000.0, "a mass in kg");
     let rotating_mass_factor = ctx.range(&c.rotating_mass_factor, "chassis.rotating_mass_factor", 1.0, 1.5, "a factor");
-    let cda_m2 = ctx.range(&c.drag_area_m2, "chassis.drag_area_m2", 0.05, 5.0, "a drag area in m²");
-    let crr0 = ctx.range(&c.rolling_crr, "chassis.rolling_crr", 0.0, 0.1, "a rolling-resistance coefficient");
+    let (cda_lo, cda_hi) = CDA_RANGE_M2;
+    let cda_m2 = ctx.range(&c.drag_area_m2, "chassis.drag_area_m2", cda_lo, cda_hi, "a drag area in m²");
+    let (crr_lo, crr_hi) = CRR_RANGE;
+    let crr0 = ctx.range(&c.rolling_crr, "chassis.rolling_crr", crr_lo, crr_hi, "a rolling-resistance coefficient");
     let crr2 = ctx.range(
         &c.rolling_crr_speed2_s2_per_m2,
         "chassis.rolling_crr_speed2_s2_per_m2",
@@ -331,6 +347,9 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
     let tau =
         ctx.range(&b.derate_time_constant_s, "battery.derate_time_constant_s", 1.0, 3600.0, "a time constant in s");
     let floor = ctx.range(&b.derate_floor, "battery.derate_floor", 0.0, 1.0, "a fraction of rated power");
+    let aux_a = b.auxiliary_current_a.as_ref().map_or(Battery::DEFAULT_AUXILIARY_CURRENT_A, |a| {
+        ctx.range(a, "battery.auxiliary_current_a", 0.0, 500.0, "a current in A")
+    });
 
     let t = &raw.tyre;
     let symbol = t.speed_symbol.as_ref().map(|s| s.get_ref().trim().to_string());
@@ -421,6 +440,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Vehicle> {
             heat_capacity_j_per_k: heat_cap * 1e3,
             derate_tau_s: tau,
             derate_floor: floor,
+            auxiliary_current_a: aux_a,
         },
         tyre_rated_mps: rated_kmh / 3.6,
         tyre_symbol: symbol,

@@ -1,13 +1,11 @@
 //! The derived quantities a snapshot carries, and their computation at each
 //! snapshot tick from the channel store and the estimators.
 
-use super::estimators::{
-    DeratingFit, Estimated, PackEstimate, RoadLoadEstimate, RoadLoadEstimator as RoadLoadEstimatorPrior,
-};
+use super::estimators::{DeratingFit, Estimated, PackEstimate, RoadLoadEstimate};
 use super::physics::{air, braking, pack as bat, roadload};
 use super::power_curve::{self, PowerPoint};
 use super::projection::{BoostModel, ProjectionInputs, project};
-use crate::config::vehicle::Battery;
+use crate::config::vehicle::{Battery, CDA_RANGE_M2, CRR_RANGE};
 use crate::config::{ConfigSet, Track, Vehicle};
 
 /// Where the air density came from.
@@ -60,6 +58,10 @@ pub struct RoadLoadView {
     pub cda_m2: f64,
     pub crr: f64,
     pub estimate_converged: bool,
+    /// Where the CdA and the Crr in use came from (the estimate, or the
+    /// vehicle file's value and why).
+    pub cda_source: CoefficientSource,
+    pub crr_source: CoefficientSource,
 }
 
 /// The battery now.
@@ -112,8 +114,11 @@ pub struct ProjectionView {
     pub peak_high_mps: f64,
     pub peak_at_m: f64,
     pub peak_in_s: f64,
-    pub terminal_mps: f64,
-    pub terminal_no_boost_mps: f64,
+    /// Terminal speeds, m/s; `None` when above `terminal_bound_mps` (the
+    /// root finder's bracket, never reported as a root).
+    pub terminal_mps: Option<f64>,
+    pub terminal_no_boost_mps: Option<f64>,
+    pub terminal_bound_mps: f64,
     pub target_mps: f64,
     pub target_reachable: bool,
     pub target_in_s: Option<f64>,
@@ -205,8 +210,11 @@ pub struct RoadModel {
     pub wind_mps: f64,
     pub cda_m2: f64,
     pub crr: f64,
-    /// Whether the road-load estimate has converged.
+    /// Whether the road-load estimate has converged (and is in use).
     pub converged: bool,
+    /// Where the CdA and the Crr came from.
+    pub cda_source: CoefficientSource,
+    pub crr_source: CoefficientSource,
 }
 
 impl RoadModel {
@@ -272,8 +280,20 @@ pub fn compute(
         d.accel_mps2 = Some(a);
         d.accel_source = src;
     }
-    let (cda_m2, crr) = coefficients_step(veh, estimate);
-    let model = RoadModel { rho, wind_mps: inp.wind_mps.unwrap_or(0.0), cda_m2, crr, converged: estimate.converged };
+    let coefficients = coefficients_step(veh, estimate);
+    let (cda_m2, crr) = (coefficients.cda_m2, coefficients.crr);
+    // Converged only when the converged estimate is what is in use.
+    let from_estimate = coefficients.cda_source == CoefficientSource::Estimate
+        && coefficients.crr_source == CoefficientSource::Estimate;
+    let model = RoadModel {
+        rho,
+        wind_mps: inp.wind_mps.unwrap_or(0.0),
+        cda_m2,
+        crr,
+        converged: estimate.converged && from_estimate,
+        cda_source: coefficients.cda_source,
+        crr_source: coefficients.crr_source,
+    };
 
     let bv = battery_step(b, inp, pack, time_in_boost_s, fit, heating);
     if bv.deliverable_w.is_none() {
@@ -351,21 +371,79 @@ pub fn air_step(weather: Option<(f64, f64, Option<f64>, f64)>, elevation_m: f64)
     }
 }
 
-/// The CdA (m²) and Crr the road load uses: the estimator's current values
-/// (its prior, the vehicle file's, blended with the data so far) once the
-/// data has told it something, each coefficient's standard deviation under
-/// half its prior's; before that the vehicle file's, since the first seconds
-/// of data can mislead more than the file does.
-pub fn coefficients_step(veh: &Vehicle, estimate: &RoadLoadEstimate) -> (f64, f64) {
-    let informative = |e: Estimated, prior_sd: f64| e.sd < 0.5 * prior_sd && e.value > 0.0;
-    let cda = if informative(estimate.cda_m2, RoadLoadEstimatorPrior::cda_sd(veh)) {
-        estimate.cda_m2.value
-    } else {
-        veh.cda_m2
+/// Where a road-load coefficient in use came from.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Default)]
+pub enum CoefficientSource {
+    /// The online estimate: inside the physical bounds and certain enough.
+    Estimate,
+    /// The vehicle file's value: the estimate is more uncertain than
+    /// [`MAX_REL_SD_CDA`] / [`MAX_REL_SD_CRR`] of itself.
+    #[default]
+    PriorUncertain,
+    /// The vehicle file's value: the estimate is outside the range the
+    /// vehicle schema allows (not a car's).
+    PriorUnphysical,
+    /// The vehicle file's value: this estimate would do, but the other
+    /// coefficient's would not, and the two are fitted together.
+    PriorWithOther,
+}
+
+impl CoefficientSource {
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CoefficientSource::Estimate => "estimate",
+            CoefficientSource::PriorUncertain => "prior_uncertain",
+            CoefficientSource::PriorUnphysical => "prior_unphysical",
+            CoefficientSource::PriorWithOther => "prior_with_other",
+        }
+    }
+}
+
+/// Largest relative standard deviation at which the drag-area estimate is
+/// used (10 %: the peak speed goes as CdA^(−1/3), so some 3 % of speed).
+pub const MAX_REL_SD_CDA: f64 = 0.10;
+/// Largest relative standard deviation at which the rolling-coefficient
+/// estimate is used (Crr is the weaker-identified of the two; 30 % of it is
+/// under 10 % of the road load at speed).
+pub const MAX_REL_SD_CRR: f64 = 0.30;
+
+/// The road-load coefficients in use and where each came from.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Coefficients {
+    pub cda_m2: f64,
+    pub crr: f64,
+    pub cda_source: CoefficientSource,
+    pub crr_source: CoefficientSource,
+}
+
+/// The CdA (m²) and Crr the road load uses: each estimate only inside the
+/// vehicle schema's own range and with its standard deviation below a stated
+/// fraction of itself; otherwise the vehicle file's value, and which one is
+/// said. (An unconverged estimate once drove the projection with CdA
+/// 0.0077 ± 0.061 m², below the schema's minimum, to a 727 km/h peak.)
+pub fn coefficients_step(veh: &Vehicle, estimate: &RoadLoadEstimate) -> Coefficients {
+    let pick = |e: Estimated, (lo, hi): (f64, f64), max_rel: f64, prior: f64| {
+        if !(e.value.is_finite() && e.sd.is_finite()) || e.value < lo || e.value > hi {
+            (prior, CoefficientSource::PriorUnphysical)
+        } else if e.sd > max_rel * e.value.abs() || e.value <= 0.0 {
+            (prior, CoefficientSource::PriorUncertain)
+        } else {
+            (e.value, CoefficientSource::Estimate)
+        }
     };
-    let crr =
-        if informative(estimate.crr, RoadLoadEstimatorPrior::crr_sd(veh)) { estimate.crr.value } else { veh.crr0 };
-    (cda, crr)
+    let (cda_m2, cda_source) = pick(estimate.cda_m2, CDA_RANGE_M2, MAX_REL_SD_CDA, veh.cda_m2);
+    let (crr, crr_source) = pick(estimate.crr, CRR_RANGE, MAX_REL_SD_CRR, veh.crr0);
+    // The two are fitted together and their errors are strongly
+    // correlated (a drag area too high goes with a rolling coefficient too
+    // low): one is not used with the other's prior. Each source still
+    // says why its own estimate would or would not do.
+    if cda_source == CoefficientSource::Estimate && crr_source == CoefficientSource::Estimate {
+        Coefficients { cda_m2, crr, cda_source, crr_source }
+    } else {
+        let held =
+            |s: CoefficientSource| if s == CoefficientSource::Estimate { CoefficientSource::PriorWithOther } else { s };
+        Coefficients { cda_m2: veh.cda_m2, crr: veh.crr0, cda_source: held(cda_source), crr_source: held(crr_source) }
+    }
 }
 
 /// The battery now: terminal power P = V·I, the discharge rate, energy
@@ -484,6 +562,8 @@ pub fn road_load_step(
         cda_m2: model.cda_m2,
         crr: model.crr,
         estimate_converged: model.converged,
+        cda_source: model.cda_source,
+        crr_source: model.crr_source,
     }
 }
 
@@ -621,6 +701,7 @@ pub fn projection_step(
         peak_in_s: p.peak_in_s,
         terminal_mps: p.terminal_mps,
         terminal_no_boost_mps: p.terminal_no_boost_mps,
+        terminal_bound_mps: super::projection::TERMINAL_BOUND_MPS,
         target_mps: base.track.target_speed_mps,
         target_reachable: p.target.is_some(),
         target_in_s: p.target.map(|t| t.0),
@@ -704,24 +785,76 @@ mod tests {
 
     #[test]
     fn coefficients_come_from_the_estimate_once_it_is_informative() {
+        use CoefficientSource::*;
         let cfg = cfg();
         let veh = &cfg.vehicle;
+        let pair = |c: Coefficients| (c.cda_m2, c.crr, c.cda_source, c.crr_source);
         let prior = RoadLoadEstimate::default();
-        assert_eq!(coefficients_step(veh, &prior), (veh.cda_m2, veh.crr0), "sd 0 but value 0: not informative");
+        assert_eq!(
+            pair(coefficients_step(veh, &prior)),
+            (veh.cda_m2, veh.crr0, PriorUnphysical, PriorUncertain),
+            "sd 0 but CdA 0 (below the schema's 0.05 m²) and Crr 0: not informative"
+        );
         let tight = RoadLoadEstimate {
             cda_m2: Estimated { value: 0.91, sd: 0.01 },
             crr: Estimated { value: 0.013, sd: 0.5 },
             ..RoadLoadEstimate::default()
         };
-        // CdA tight, Crr's sd far over half its prior's: CdA from the data, Crr from the file.
-        assert_eq!(coefficients_step(veh, &tight), (0.91, veh.crr0));
+        // CdA tight, Crr's sd far over 30 % of itself: both from the file
+        // (they are fitted together), and each says why.
+        assert_eq!(pair(coefficients_step(veh, &tight)), (veh.cda_m2, veh.crr0, PriorWithOther, PriorUncertain));
+        let both = RoadLoadEstimate {
+            cda_m2: Estimated { value: 0.91, sd: 0.01 },
+            crr: Estimated { value: 0.013, sd: 0.002 },
+            ..RoadLoadEstimate::default()
+        };
+        assert_eq!(pair(coefficients_step(veh, &both)), (0.91, 0.013, Estimate, Estimate));
+    }
+
+    #[test]
+    fn an_unphysical_or_uncertain_estimate_is_not_used() {
+        // Issue 14, item 2: CdA 0.0077 ± 0.061 m² (below the schema's
+        // minimum of 0.05 and uncertain by 800 %) was used because the gate
+        // was only "sd below half the prior's and value above 0"; the
+        // projected peak became 727 km/h.
+        use CoefficientSource::*;
+        let cfg = cfg();
+        let veh = &cfg.vehicle;
+        let e = |cda: f64, cda_sd: f64| RoadLoadEstimate {
+            cda_m2: Estimated { value: cda, sd: cda_sd },
+            crr: Estimated { value: 0.012, sd: 0.001 },
+            converged: true,
+            ..RoadLoadEstimate::default()
+        };
+        let c = coefficients_step(veh, &e(0.0077, 0.061));
+        assert_eq!((c.cda_m2, c.cda_source), (veh.cda_m2, PriorUnphysical));
+        // Inside the bounds but uncertain by 12 %: the prior, said as such.
+        let c = coefficients_step(veh, &e(0.5, 0.06));
+        assert_eq!((c.cda_m2, c.cda_source), (veh.cda_m2, PriorUncertain));
+        // Above the schema's 5 m², however certain: the prior.
+        let c = coefficients_step(veh, &e(6.0, 0.01));
+        assert_eq!((c.cda_m2, c.cda_source), (veh.cda_m2, PriorUnphysical));
+        // A Crr above the schema's 0.1: the prior.
+        let mut wild = e(0.8, 0.01);
+        wild.crr = Estimated { value: 0.2, sd: 0.001 };
+        assert_eq!(coefficients_step(veh, &wild).crr_source, PriorUnphysical);
+        // The whole tick: the road load says where its CdA came from, and
+        // a converged estimate not in use is not shown as converged.
+        let inp = TickInputs { speed: Some((60.0, "vehicle.speed", 0.0)), ..TickInputs::default() };
+        let d = compute(&cfg, &inp, &e(0.0077, 0.061), None, 0.0, None, None);
+        let rl = d.road_load.unwrap();
+        assert_eq!((rl.cda_m2, rl.cda_source, rl.estimate_converged), (veh.cda_m2, PriorUnphysical, false));
+        let p = d.projection.expect("a projection");
+        assert!(!p.converged);
+        assert!(p.terminal_mps.is_none_or(|v| v < p.terminal_bound_mps), "{:?}", p.terminal_mps);
     }
 
     #[test]
     fn road_load_aero_term_is_half_rho_cda_vair_squared_v() {
         let cfg = cfg();
         let veh = &cfg.vehicle;
-        let model = RoadModel { rho: 1.2, wind_mps: 5.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let model =
+            RoadModel { rho: 1.2, wind_mps: 5.0, cda_m2: 0.8, crr: 0.012, converged: false, ..RoadModel::default() };
         let inp = TickInputs { accel: Some((0.5, "channel")), ..TickInputs::default() };
         let boost = BoostModel {
             available: false,
@@ -865,7 +998,8 @@ mod tests {
     fn boost_need_is_the_road_load_the_engine_cannot_cover() {
         let cfg = cfg();
         let veh = &cfg.vehicle;
-        let model = RoadModel { rho: 1.2, wind_mps: 0.0, cda_m2: 0.8, crr: 0.012, converged: false };
+        let model =
+            RoadModel { rho: 1.2, wind_mps: 0.0, cda_m2: 0.8, crr: 0.012, converged: false, ..RoadModel::default() };
         let vt = 100.0;
         let rl = roadload::road_load(&roadload::RoadLoadInputs {
             v_mps: vt,

@@ -70,14 +70,142 @@ pub struct BalanceSample {
 /// κ if the installation is better or worse than assumed. Testing without
 /// the weights showed Crr biased by 4 % on data with coasting phases, and
 /// its reported uncertainty twenty times too small.
+///
+/// The standard deviations account for model mismatch. The recursion's own
+/// covariance, scaled by the residuals' variance, is right only for
+/// residuals independent from sample to sample; a mismatch (a power signal
+/// a message behind the speed, a gust the wind vane lags, a gear change
+/// straddled by two messages) leaves residuals that run in one direction for
+/// many samples and average out far more slowly. [`ScoreBlocks`] measures
+/// how much more slowly, from blocks of the residuals times the regressors
+/// (batch means of the score), and the reported variances are inflated by
+/// that factor (never deflated). Without it, rehearsals ended "converged"
+/// with the truth 10 standard deviations away (issue 14).
+///
+/// Some mismatch never shows in the residuals: a bias the fit absorbs (a
+/// power signal reading 1 % high, an accelerometer a hundredth of a m/s²
+/// off, a wind vane that sees another wind than the car) moves the
+/// coefficients without leaving a trace. [`Systematic`] carries the budget
+/// of such biases through the same least squares (the sensitivity of each
+/// coefficient to each bias) and adds their effect to the variances.
 #[derive(Clone, Debug)]
 pub struct RoadLoadEstimator {
     all: Rls2,
     coast: Rls2,
+    all_blocks: ScoreBlocks,
+    coast_blocks: ScoreBlocks,
+    all_sys: Systematic,
+    coast_sys: Systematic,
+
     samples: u64,
     coast_samples: u64,
     v_lo: f64,
     v_hi: f64,
+}
+
+/// The systematic-error budget of the force balance, one standard
+/// deviation each (common practice for instrumented test cars, not a
+/// datasheet): the powertrain power signals' calibration, the
+/// accelerometer's offset (a few hundredths of a degree of pitch), the
+/// difference between the measured wind and the wind the car meets, and
+/// the effective mass (the rotating inertia is rarely known better). The
+/// budget was set so that rehearsals with varied cars, winds and noise are
+/// calibrated (tests/suite/calibration.rs).
+pub const POWER_CAL_REL: f64 = 0.003;
+pub const ACCEL_OFFSET_MPS2: f64 = 0.005;
+pub const WIND_OFFSET_MPS: f64 = 0.2;
+pub const MASS_REL: f64 = 0.005;
+
+/// The sensitivities of the two coefficients to each systematic bias of the
+/// budget, propagated through the least squares exactly as the data is
+/// (the fit is linear in y: a bias δ on every sample moves θ by the fit of
+/// δ alone, with the same gains).
+#[derive(Clone, Debug, Default)]
+pub struct Systematic {
+    /// s[source][parameter]: the coefficient's shift for a one-sigma bias.
+    s: [[f64; 2]; 4],
+}
+
+impl Systematic {
+    fn push(&mut self, k: [f64; 2], phi: [f64; 2], deltas: [f64; 4]) {
+        for (s, d) in self.s.iter_mut().zip(deltas) {
+            let e = d - (phi[0] * s[0] + phi[1] * s[1]);
+            s[0] += k[0] * e;
+            s[1] += k[1] * e;
+        }
+    }
+
+    /// The variance the budget adds to each coefficient (sources independent).
+    fn var(&self) -> [f64; 2] {
+        let mut v = [0.0; 2];
+        for s in &self.s {
+            v[0] += s[0] * s[0];
+            v[1] += s[1] * s[1];
+        }
+        v
+    }
+}
+
+/// How much more slowly than independent residuals the residuals of a
+/// least-squares fit average out, per parameter: the score g = φ·e (e the
+/// normalised a-priori residual) summed over blocks of [`Self::BLOCK`]
+/// samples has second moment B·E[g²] when the residuals are independent,
+/// more when they are correlated (the batch-means estimate of the long-run
+/// variance; Flegal and Jones, Annals of Statistics 38, 2010). Moments are
+/// taken about zero, not the mean: a residual that keeps one sign is the
+/// mismatch this is meant to see. Both moments are averaged over the
+/// estimator's memory.
+#[derive(Clone, Debug, Default)]
+pub struct ScoreBlocks {
+    sample_m2: [f64; 2],
+    block_m2: [f64; 2],
+    sum: [f64; 2],
+    in_block: u32,
+    samples: u64,
+    blocks: u64,
+}
+
+impl ScoreBlocks {
+    /// Samples in a block (about 2 s at 100 updates a second: longer than
+    /// a gear change or a message's lag, shorter than a run).
+    pub const BLOCK: u32 = 200;
+    /// Blocks needed before the factor is trusted; before that it is the
+    /// largest of what has been seen and [`Self::EARLY_FACTOR`].
+    pub const MIN_BLOCKS: u64 = 3;
+    /// The variance factor assumed before [`Self::MIN_BLOCKS`] blocks.
+    pub const EARLY_FACTOR: f64 = 4.0;
+
+    fn push(&mut self, phi: [f64; 2], e: f64, lambda: f64) {
+        self.samples += 1;
+        let rate = (1.0 / self.samples as f64).max(1.0 - lambda);
+        for ((m2, sum), x) in self.sample_m2.iter_mut().zip(&mut self.sum).zip(phi) {
+            let g = x * e;
+            *m2 += rate * (g * g - *m2);
+            *sum += g;
+        }
+        self.in_block += 1;
+        if self.in_block == Self::BLOCK {
+            self.blocks += 1;
+            let rate = (1.0 / self.blocks as f64).max(1.0 - lambda.powi(Self::BLOCK as i32));
+            for i in 0..2 {
+                self.block_m2[i] += rate * (self.sum[i] * self.sum[i] - self.block_m2[i]);
+            }
+            self.sum = [0.0; 2];
+            self.in_block = 0;
+        }
+    }
+
+    /// The variance factor per parameter, at least 1.
+    pub fn factor(&self) -> [f64; 2] {
+        let mut f = [1.0; 2];
+        for (i, fi) in f.iter_mut().enumerate() {
+            let naive = Self::BLOCK as f64 * self.sample_m2[i];
+            let measured = if naive > 0.0 && self.blocks > 0 { self.block_m2[i] / naive } else { 1.0 };
+            *fi = if self.blocks >= Self::MIN_BLOCKS { measured } else { measured.max(Self::EARLY_FACTOR) };
+            *fi = fi.max(1.0);
+        }
+        f
+    }
 }
 
 impl RoadLoadEstimator {
@@ -89,6 +217,9 @@ impl RoadLoadEstimator {
     pub const SIGMA0_N: f64 = 50.0;
     /// Expected relative noise of the drive force (the power signals).
     pub const KAPPA: f64 = 0.01;
+    /// A sample's residual is clipped at this many of its expected
+    /// standard deviations (see [`super::rls::Rls::update_robust`]).
+    pub const CLIP_SIGMAS: f64 = 4.0;
 
     /// Prior standard deviations: the vehicle file's values are held loosely.
     pub fn cda_sd(vehicle: &Vehicle) -> f64 {
@@ -107,6 +238,11 @@ impl RoadLoadEstimator {
         RoadLoadEstimator {
             all: Rls2::new(prior, sd, 1.0, Self::LAMBDA),
             coast: Rls2::new(prior, sd, 1.0, Self::LAMBDA),
+            all_blocks: ScoreBlocks::default(),
+            coast_blocks: ScoreBlocks::default(),
+            all_sys: Systematic::default(),
+            coast_sys: Systematic::default(),
+
             samples: 0,
             coast_samples: 0,
             v_lo: f64::INFINITY,
@@ -130,21 +266,42 @@ impl RoadLoadEstimator {
         let w = 1.0 / (Self::SIGMA0_N * Self::SIGMA0_N + (Self::KAPPA * f_wheel).powi(2)).sqrt();
         let phi = [0.5 * s.rho * v_air * v_air.abs() * w, mg_cos * w];
         let y = y * w;
-        if !self.all.update(phi, y) {
+        // What each bias of the budget would add to this sample's y.
+        let deltas = [
+            POWER_CAL_REL * f_wheel.abs() * w,
+            veh.effective_mass_kg() * ACCEL_OFFSET_MPS2 * w,
+            self.all.theta[0].max(0.0) * s.rho * v_air.abs() * WIND_OFFSET_MPS * w,
+            MASS_REL * veh.effective_mass_kg() * s.a_mps2 * w,
+        ];
+        if !(phi.iter().all(|x| x.is_finite()) && y.is_finite() && deltas.iter().all(|x| x.is_finite())) {
             return false;
         }
+        let k = self.all.gain(phi);
+        let Some(e) = self.all.update_robust(phi, y, Self::CLIP_SIGMAS) else { return false };
+        self.all_sys.push(k, phi, deltas);
+        self.all_blocks.push(phi, e, Self::LAMBDA);
         self.samples += 1;
         self.v_lo = self.v_lo.min(s.v_mps);
         self.v_hi = self.v_hi.max(s.v_mps);
         if s.throttle < 0.02 {
-            self.coast.update(phi, y);
+            let k = self.coast.gain(phi);
+            if let Some(e) = self.coast.update_robust(phi, y, Self::CLIP_SIGMAS) {
+                self.coast_sys.push(k, phi, deltas);
+                self.coast_blocks.push(phi, e, Self::LAMBDA);
+            }
             self.coast_samples += 1;
         }
         true
     }
 
+    /// Standard deviations of `rls`, inflated by the mismatch `blocks` saw.
+    fn honest_sd(rls: &Rls2, blocks: &ScoreBlocks, sys: &Systematic) -> [f64; 2] {
+        let (sd, f, v) = (rls.sd(), blocks.factor(), sys.var());
+        [(sd[0] * sd[0] * f[0] + v[0]).sqrt(), (sd[1] * sd[1] * f[1] + v[1]).sqrt()]
+    }
+
     pub fn estimate(&self) -> RoadLoadEstimate {
-        let sd = self.all.sd();
+        let sd = Self::honest_sd(&self.all, &self.all_blocks, &self.all_sys);
         let cda = Estimated { value: self.all.theta[0], sd: sd[0] };
         let crr = Estimated { value: self.all.theta[1], sd: sd[1] };
         let span = if self.samples > 0 { self.v_hi - self.v_lo } else { 0.0 };
@@ -153,7 +310,7 @@ impl RoadLoadEstimator {
             && crr.sd < 0.3 * crr.value.abs().max(0.003)
             && span >= 10.0;
         let coast = (self.coast_samples >= 200).then(|| {
-            let s = self.coast.sd();
+            let s = Self::honest_sd(&self.coast, &self.coast_blocks, &self.coast_sys);
             (Estimated { value: self.coast.theta[0], sd: s[0] }, Estimated { value: self.coast.theta[1], sd: s[1] })
         });
         RoadLoadEstimate {
@@ -514,7 +671,11 @@ mod tests {
             assert!(e.cda_m2.sd < mid.cda_m2.sd && mid.cda_m2.sd < sd0.cda_m2.sd, "seed {seed}: CdA sd shrinks");
             assert!(e.crr.sd < mid.crr.sd && mid.crr.sd < sd0.crr.sd, "seed {seed}: Crr sd shrinks");
             assert!((e.crr.value - 0.0128).abs() < 3.0 * e.crr.sd, "seed {seed}: {e:?}");
-            assert!(e.converged, "seed {seed}: {e:?}");
+            // Issue 14, item 3: this once also asserted "converged" after
+            // 10 s; with the systematic budget (0.3 % of a 20 kN drive force
+            // is 60 N, as much as the rolling resistance's own uncertainty)
+            // 10 s of full-power data cannot honestly pin CdA to 3 %.
+            assert!((e.cda_m2.value - 0.90).abs() < 2.0 * e.cda_m2.sd, "seed {seed}: {e:?}");
             crr_errors.push((e.crr.value / 0.0128 - 1.0).abs());
         }
         crr_errors.sort_by(f64::total_cmp);

@@ -98,9 +98,10 @@ pub struct Projection {
     /// First crossing of the target speed before braking: (s from now, m).
     pub target: Option<(f64, f64)>,
     /// Terminal speed on an endless straight with boost at the derating
-    /// floor, and with no boost, m/s.
-    pub terminal_mps: f64,
-    pub terminal_no_boost_mps: f64,
+    /// floor, and with no boost, m/s; `None` when above
+    /// [`TERMINAL_BOUND_MPS`].
+    pub terminal_mps: Option<f64>,
+    pub terminal_no_boost_mps: Option<f64>,
     /// (s from now, m, m/s) every step, for drawing.
     pub points: Vec<(f64, f64, f64)>,
 }
@@ -158,19 +159,26 @@ fn road_load_w(inp: &ProjectionInputs<'_>, v: f64, grade: f64) -> f64 {
     .total_w
 }
 
+/// Highest speed the terminal-speed search brackets, m/s (1800 km/h, far
+/// above any tyre's rating). A terminal speed above it is reported as
+/// "above" this bound (`None`), never as a value.
+pub const TERMINAL_BOUND_MPS: f64 = 500.0;
+
 /// The speed at which drive power balances road load on level ground
 /// (bisection: drive power varies with speed through the gears, so this is
 /// not a pure cubic; with constant power it is the Cardano root, tested).
-pub fn terminal_speed(inp: &ProjectionInputs<'_>, boost_w: f64) -> f64 {
+/// `None` when the car still has a surplus at [`TERMINAL_BOUND_MPS`]: the
+/// root is above the bracket, and the bracket is not a root.
+pub fn terminal_speed(inp: &ProjectionInputs<'_>, boost_w: f64) -> Option<f64> {
     let surplus = |v: f64| drive_power_w(inp.vehicle, v, boost_w) - road_load_w(inp, v, 0.0);
-    let (mut lo, mut hi) = (1.0f64, 250.0f64);
+    let (mut lo, mut hi) = (1.0f64, TERMINAL_BOUND_MPS);
     if surplus(hi) > 0.0 {
-        return hi;
+        return None;
     }
     if surplus(lo) <= 0.0 {
-        return 0.0;
+        return Some(0.0);
     }
-    for _ in 0..60 {
+    for _ in 0..64 {
         let mid = 0.5 * (lo + hi);
         if surplus(mid) > 0.0 {
             lo = mid;
@@ -178,7 +186,7 @@ pub fn terminal_speed(inp: &ProjectionInputs<'_>, boost_w: f64) -> f64 {
             hi = mid;
         }
     }
-    0.5 * (lo + hi)
+    Some(0.5 * (lo + hi))
 }
 
 /// Distance to slow from `v` to the exit speed at the track's braking
@@ -307,8 +315,32 @@ mod tests {
         let k = 0.5 * 1.2 * 0.8;
         let c0 = 0.012 * cfg.vehicle.mass_kg * G_MPS2;
         let expected = terminal_speed_mps(p_wheel, k, c0);
-        let got = terminal_speed(&inp, 0.0);
+        let got = terminal_speed(&inp, 0.0).unwrap();
         assert!((got / expected - 1.0).abs() < 1e-6, "{got} vs {expected}");
+    }
+
+    #[test]
+    fn a_terminal_speed_above_the_bracket_is_not_the_bracket() {
+        // Issue 14, item 2: with CdA 0.0077 m² the terminal speed came out
+        // exactly 250.0 m/s, the bisection's upper bound printed as a value.
+        let mut cfg = ConfigSet::embedded();
+        // No speed-squared rolling term: only the air limits the speed.
+        cfg.vehicle.crr2_s2_m2 = 0.0;
+        let mut inp = inputs(&cfg, 50.0);
+        inp.cda_m2 = 0.0077;
+        inp.crr0 = 0.0;
+        // 300 kW of boost against 0.5·1.2·0.0077·v³ (plus the engine):
+        // above the old bound of 250 m/s. Either a true root or "above".
+        let v = terminal_speed(&inp, 300e3);
+        assert_ne!(v, Some(250.0));
+        if let Some(v) = v {
+            assert!(v < TERMINAL_BOUND_MPS * (1.0 - 1e-9) && v > 250.0, "{v}");
+            let surplus = drive_power_w(inp.vehicle, v, 300e3) - road_load_w(&inp, v, 0.0);
+            assert!(surplus.abs() < 1.0, "a root: surplus {surplus} W at {v} m/s");
+        }
+        // Less drag still: above the bound, said as such.
+        inp.cda_m2 = 1e-5;
+        assert_eq!(terminal_speed(&inp, 300e3), None);
     }
 
     #[test]

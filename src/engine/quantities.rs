@@ -165,6 +165,18 @@ pub static QUANTITIES: &[Quantity] = &[
     q("derived.road_load.estimate_converged", "", "whether the estimate in use has converged", |d| {
         Flag(d.road_load.is_some_and(|r| r.estimate_converged))
     }),
+    q(
+        "derived.road_load.cda_source",
+        "",
+        "where the drag area in use came from: `estimate`, `prior_uncertain`, `prior_unphysical` or `prior_with_other` (the two are used together)",
+        |d| Text(d.road_load.map(|r| r.cda_source.as_str())),
+    ),
+    q(
+        "derived.road_load.crr_source",
+        "",
+        "where the rolling coefficient in use came from: `estimate`, `prior_uncertain`, `prior_unphysical` or `prior_with_other`",
+        |d| Text(d.road_load.map(|r| r.crr_source.as_str())),
+    ),
     q("derived.estimate.cda_m2", "m²", "online drag-area estimate", |d| Num(Some(d.estimate.cda_m2.value))),
     q("derived.estimate.cda_sd_m2", "m²", "its standard deviation", |d| Num(Some(d.estimate.cda_m2.sd))),
     q("derived.estimate.crr", "1", "online rolling-coefficient estimate", |d| Num(Some(d.estimate.crr.value))),
@@ -265,11 +277,23 @@ pub static QUANTITIES: &[Quantity] = &[
         "derived.projection.terminal_mps",
         "m/s",
         "terminal speed on an endless straight, boost at the derating floor",
-        |d| Num(d.projection.as_ref().map(|p| p.terminal_mps)),
+        |d| Num(d.projection.as_ref().and_then(|p| p.terminal_mps)),
     ),
     q("derived.projection.terminal_no_boost_mps", "m/s", "terminal speed without boost", |d| {
-        Num(d.projection.as_ref().map(|p| p.terminal_no_boost_mps))
+        Num(d.projection.as_ref().and_then(|p| p.terminal_no_boost_mps))
     }),
+    q(
+        "derived.projection.terminal_above_mps",
+        "m/s",
+        "when a terminal speed is null: the search bound it lies above",
+        |d| {
+            Num(d
+                .projection
+                .as_ref()
+                .filter(|p| p.terminal_mps.is_none() || p.terminal_no_boost_mps.is_none())
+                .map(|p| p.terminal_bound_mps))
+        },
+    ),
     q("derived.projection.target_mps", "m/s", "the track's target speed", |d| {
         Num(d.projection.as_ref().map(|p| p.target_mps))
     }),

@@ -48,8 +48,19 @@ impl<const N: usize> Rls<N> {
 
     /// One measurement. Non-finite inputs are ignored (returns false).
     pub fn update(&mut self, phi: [f64; N], y: f64) -> bool {
+        self.update_robust(phi, y, f64::INFINITY).is_some()
+    }
+
+    /// One measurement with its a-priori residual clipped at `clip` of its
+    /// expected standard deviation √(r·(1 + φᵀPφ)) (Huber's M-estimator in
+    /// recursive form): a sample far off the model, such as one taken while
+    /// the signals of two messages straddle a gear change, moves the
+    /// estimate and the noise estimate no more than a `clip`-sigma one.
+    /// Returns the normalised residual used, e/√(1 + φᵀPφ), or `None` for
+    /// non-finite inputs (ignored).
+    pub fn update_robust(&mut self, phi: [f64; N], y: f64, clip: f64) -> Option<f64> {
         if !(phi.iter().all(|v| v.is_finite()) && y.is_finite()) {
-            return false;
+            return None;
         }
         let p = &self.p;
         let mut pphi = [0.0; N];
@@ -58,6 +69,8 @@ impl<const N: usize> Rls<N> {
         }
         let s: f64 = (0..N).map(|i| phi[i] * pphi[i]).sum();
         let e = y - (0..N).map(|i| phi[i] * self.theta[i]).sum::<f64>();
+        let bound = clip * (self.r * (1.0 + s)).sqrt();
+        let e = if bound.is_finite() && bound > 0.0 { e.clamp(-bound, bound) } else { e };
         // Noise variance from the a-priori residuals, averaged over the same
         // memory as the estimate (a running mean at first): a shorter memory
         // would report the noise of the last few samples as the
@@ -102,7 +115,19 @@ impl<const N: usize> Rls<N> {
         }
         self.p = np;
         self.n += 1;
-        true
+        Some(e / denom.sqrt())
+    }
+
+    /// The gain k = P·φ / (1 + φᵀ·P·φ) the next update at `phi` will use
+    /// (unclipped): a caller propagating a bias through the same least
+    /// squares updates its sensitivity s ← s + k·(δ − φᵀ·s).
+    pub fn gain(&self, phi: [f64; N]) -> [f64; N] {
+        let mut pphi = [0.0; N];
+        for i in 0..N {
+            pphi[i] = (0..N).map(|j| self.p[i][j] * phi[j]).sum();
+        }
+        let s: f64 = (0..N).map(|i| phi[i] * pphi[i]).sum();
+        pphi.map(|v| v / (1.0 + s))
     }
 
     /// Standard deviations of the parameters.

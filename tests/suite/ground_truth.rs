@@ -86,6 +86,15 @@ fn projected_peak_within_1_percent_after_5_s_of_full_throttle() {
     let t = estimator_start(&r) + 5.0;
     let s = snapshot_at(&r, t);
     let at_lift = projected_at(s, lift_x).expect("the projection reaches the driver's lift point");
+    let rl = s.derived.road_load.unwrap();
+    println!(
+        "in use: CdA {:.4} ({}), Crr {:.5} ({}); estimate {:?}",
+        rl.cda_m2,
+        rl.cda_source.as_str(),
+        rl.crr,
+        rl.crr_source.as_str(),
+        s.derived.estimate
+    );
     let err = at_lift / peak - 1.0;
     println!(
         "projected speed at the lift point ({lift_x:.0} m) after 5 s of full-throttle data: {:.2} km/h, simulated peak {:.2} km/h: {:+.2} %",
@@ -188,4 +197,66 @@ fn the_planner_model_agrees_with_the_simulator_given_the_truth() {
         err * 100.0
     );
     assert!(err.abs() < 0.01, "{err}");
+}
+
+#[test]
+fn a_short_pull_and_a_coast_never_drive_the_projection_with_an_unphysical_drag_area() {
+    // Issue 14, item 2: a car run at full throttle to 140 m and then
+    // coasting (300 kW motor, CdA 0.653 m², 1 500 kg, 1.25 m/s headwind)
+    // reached CdA 0.0077 ± 0.061 m², which was used: a projected peak of
+    // 727 km/h and a terminal speed of exactly 250.0 m/s (the root
+    // finder's bound printed as a value).
+    use std::sync::Arc;
+    use termvel::config::ConfigSet;
+    use termvel::config::run_plan::BoostStart;
+    use termvel::engine::derived::CoefficientSource;
+    use termvel::engine::{Engine, EngineOptions};
+    use termvel::sources::EventSource;
+
+    let (mut plan, mut cfg): (_, ConfigSet) = config::load_plan(None, &[]).unwrap();
+    cfg.vehicle.motor_rated_power_w = 300e3;
+    cfg.vehicle.mass_kg = 1500.0;
+    cfg.vehicle.cda_m2 = 0.653;
+    plan.faults.clear();
+    plan.car.cda_m2 = Some(0.653);
+    plan.car.mass_kg = None;
+    plan.ambient.headwind_mps = 1.25;
+    plan.driver.hold_s = 1.0;
+    plan.driver.throttle_at_m = vec![0.0, 140.0];
+    plan.driver.throttle = vec![1.0, 0.0];
+    plan.driver.boost_start = BoostStart::AtDistance(0.0);
+    plan.driver.brake_at_m = 1200.0;
+    plan.driver.tail_s = 1.0;
+    let cfg = Arc::new(cfg);
+    let mut sim = termvel::sim::Simulator::new(cfg.clone(), Arc::new(plan));
+    let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
+    let (mut checked, mut failures) = (0, Vec::new());
+    let mut lowest = (f64::INFINITY, 0.0);
+    let mut check = |s: Snapshot| {
+        let (Some(rl), Some(p)) = (s.derived.road_load, s.derived.projection.as_ref()) else { return };
+        checked += 1;
+        let e = s.derived.estimate;
+        if e.cda_m2.value < lowest.0 {
+            lowest = (e.cda_m2.value, e.cda_m2.sd);
+        }
+        if !(0.05..=5.0).contains(&rl.cda_m2) {
+            failures.push(format!("CdA in use {} outside the schema's range", rl.cda_m2));
+        }
+        if rl.cda_source == CoefficientSource::Estimate && e.cda_m2.sd > 0.1 * e.cda_m2.value {
+            failures.push(format!("an estimate uncertain by more than 10 % used: {:?}", e.cda_m2));
+        }
+        if p.terminal_mps == Some(250.0) || p.terminal_mps == Some(p.terminal_bound_mps) {
+            failures.push(format!("a bracket reported as a root: {:?}", p.terminal_mps));
+        }
+        if p.peak_mps > 500.0 / 3.6 {
+            failures.push(format!("projected peak {:.0} km/h with CdA {} in use", p.peak_mps * 3.6, rl.cda_m2));
+        }
+    };
+    while let Some(ev) = sim.next_event() {
+        engine.feed(&ev, sim.sources(), &mut check);
+    }
+    engine.finish(sim.sources(), &mut check);
+    println!("lowest drag-area estimate seen: {:.4} ± {:.4} m²", lowest.0, lowest.1);
+    assert!(checked > 50, "{checked} snapshots with a projection");
+    assert!(failures.is_empty(), "{} bad snapshots, first: {:?}", failures.len(), failures.first());
 }
