@@ -706,6 +706,12 @@ impl<R: Read> RecordingReader<R> {
         }
     }
 
+    /// Events parsed so far: those handed out and those the time-order
+    /// stage still holds.
+    pub fn events_parsed(&self) -> u64 {
+        self.stats.events + self.order.held() as u64
+    }
+
     /// Reads the rest of the stream, discarding events (for counting).
     pub fn drain(&mut self) {
         while self.next_event().is_some() {}

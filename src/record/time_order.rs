@@ -138,6 +138,11 @@ fn agree(a: TimeNs, b: TimeNs) -> bool {
 }
 
 impl TimeOrder {
+    /// Events taken and not yet handed out.
+    pub fn held(&self) -> usize {
+        self.suspects.len() + self.window.len() + self.ready.len()
+    }
+
     /// Takes the next event of the file (at `line`).
     pub fn push(&mut self, ev: Event, line: u64) {
         let t = ev.t_ns;

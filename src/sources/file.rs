@@ -36,8 +36,11 @@ impl FileSource {
     /// skipped ones.
     pub fn probe(path: &Path) -> Result<(), NotEvents> {
         let mut r = RecordingReader::open(path).map_err(NotEvents::Open)?;
-        while r.stats.events + r.stats.malformed < PROBE_LINES && r.next_event().is_some() {}
-        let (events, bad) = (r.stats.events, r.stats.malformed);
+        // The time-order stage may hold some of the events read (a log's
+        // first events all within its reordering window): count those too.
+        while r.events_parsed() + r.stats.malformed < PROBE_LINES && r.next_event().is_some() {}
+        let (events, bad) = (r.events_parsed(), r.stats.malformed);
+        let read = events + bad;
         if events > 0 && events >= bad {
             return Ok(());
         }
@@ -49,7 +52,7 @@ impl FileSource {
         if events == 0 {
             return Err(NotEvents::NoEvents { path, stats });
         }
-        Err(NotEvents::MostlyNotEvents { path, events, lines: events + bad, stats })
+        Err(NotEvents::MostlyNotEvents { path, events, lines: read, stats })
     }
 }
 
