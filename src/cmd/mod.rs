@@ -5,12 +5,14 @@
 pub mod check;
 pub mod envelope;
 pub mod export;
+pub mod follow;
 pub mod live;
 pub mod plan;
 pub mod play;
 pub mod rehearse;
 pub mod replay;
 pub mod report;
+pub mod sharing;
 
 use std::fs::File;
 use std::path::PathBuf;
@@ -36,6 +38,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Export(a)) => export::run(a),
         Some(Command::Plan(a)) => plan::run(a),
         Some(Command::Envelope(a)) => envelope::run(a),
+        Some(Command::Follow(a)) => follow::run(a),
     };
     match result {
         Ok(code) => code,

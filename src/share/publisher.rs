@@ -1,0 +1,523 @@
+//! Publishing a running stream: the sink the driver feeds, and the thread
+//! that talks to the broker.
+//!
+//! The driver never waits on the network. [`ShareSink`] wraps the
+//! stream's own sink (the screens, the headless printer): after passing a
+//! snapshot on, it offers it to a [`DropOldest`] queue of
+//! [`SNAPSHOT_QUEUE`] (when the broker is slow, the oldest waiting snapshot
+//! is dropped and counted), and the few other messages (alert changes, the
+//! alert state, marks, health) to a bounded channel of [`MESSAGE_QUEUE`]
+//! with `try_send` (full: counted as not shared). The publisher runs on its
+//! own thread with its own runtime, so even a stream run as fast as
+//! possible on one thread never polls a socket. While the link is down,
+//! snapshots are dropped (a follower wants the latest, not the past) and
+//! messages wait up to [`HOLD_FOR`] (at most [`HOLD_MAX`] of them), then
+//! are counted as not shared.
+
+use std::collections::VecDeque;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::sync::{Arc, Mutex};
+use std::time::{Duration, Instant};
+
+use rumqttc::{AsyncClient, ConnectionError, Event, LastWill, Outgoing, Packet, QoS};
+use serde_json::{Value, json};
+use tokio::sync::{mpsc, watch};
+
+use super::broker::{BrokerError, BrokerUrl};
+use super::credentials::Credentials;
+use super::payload;
+use super::queue::DropOldest;
+use super::topics::Topics;
+use crate::engine::snapshot::SourceView;
+use crate::engine::{Alert, Snapshot};
+use crate::event::{LinkState, NS_PER_S, TimeNs};
+use crate::stream::{SnapshotSink, StreamStatus};
+
+/// Snapshots waiting for the broker (at 10 per second of stream time, a
+/// second and a half at x1; latest wins).
+pub const SNAPSHOT_QUEUE: usize = 16;
+/// Alert changes, alert states, marks and health waiting for the publisher.
+pub const MESSAGE_QUEUE: usize = 1024;
+/// How long a message waits for a link that is down before it is counted
+/// as not shared.
+pub const HOLD_FOR: Duration = Duration::from_secs(10);
+/// The most messages held while the link is down.
+pub const HOLD_MAX: usize = 1000;
+/// Source health is published once a second of stream time, and at once
+/// when a link changes.
+pub const HEALTH_EVERY_NS: TimeNs = NS_PER_S;
+/// How long the end of a run waits for the last messages to go out.
+pub const DRAIN_FOR: Duration = Duration::from_secs(2);
+/// Back-off between reconnection attempts: from the first to the most.
+pub const BACKOFF_FIRST: Duration = Duration::from_millis(100);
+pub const BACKOFF_MAX: Duration = Duration::from_secs(2);
+
+/// Why sharing could not start.
+#[derive(Debug, thiserror::Error)]
+pub enum ShareError {
+    /// The broker's options (URL, TLS files).
+    #[error(transparent)]
+    Broker(#[from] BrokerError),
+    /// The publisher's thread or runtime could not start.
+    #[error("cannot start the publisher: {0}")]
+    Start(#[from] std::io::Error),
+}
+
+/// Everything the publisher needs.
+pub struct ShareSettings {
+    pub url: BrokerUrl,
+    pub topics: Topics,
+    pub credentials: Option<Credentials>,
+    /// CA certificate (PEM) for `mqtts://`; default the system's roots.
+    pub ca: Option<std::path::PathBuf>,
+    /// The retained run description ([`payload::description`]).
+    pub description: Value,
+    /// Say link changes on stderr (headless); on the screens they go to the log.
+    pub say_on_stderr: bool,
+}
+
+/// What the publisher did, counted while it runs (read at the end, or by a
+/// screen while running).
+#[derive(Debug, Default)]
+pub struct ShareStats {
+    /// Snapshots the stream made.
+    pub snapshots: AtomicU64,
+    /// Snapshots handed to the MQTT client while the link was up.
+    pub snapshots_published: AtomicU64,
+    /// Snapshots dropped because newer ones were waiting (broker slow).
+    pub snapshots_dropped_slow: AtomicU64,
+    /// Snapshots dropped because the link was down.
+    pub snapshots_dropped_down: AtomicU64,
+    /// Other messages handed to the client.
+    pub messages_published: AtomicU64,
+    /// Other messages not shared (queue full, or held past [`HOLD_FOR`]).
+    pub messages_not_shared: AtomicU64,
+    /// Whether the link to the broker is up now (at the end: whether it was
+    /// up when the stream ended).
+    pub link_up: AtomicBool,
+    /// Times the link was lost (or failed to come up).
+    pub link_losses: AtomicU64,
+    /// Connections made (the first and every reconnection).
+    pub connections: AtomicU64,
+    /// The latest link error, for the user.
+    pub last_error: Mutex<Option<String>>,
+}
+
+impl ShareStats {
+    /// The `share` block of a summary.
+    pub fn json(&self, url: &BrokerUrl, topics: &Topics) -> Value {
+        let n = |a: &AtomicU64| a.load(Ordering::Relaxed);
+        json!({
+            "broker": url.display(),
+            "topic": topics.prefix(),
+            "snapshots": n(&self.snapshots),
+            "snapshots_published": n(&self.snapshots_published),
+            "snapshots_dropped_slow": n(&self.snapshots_dropped_slow),
+            "snapshots_dropped_down": n(&self.snapshots_dropped_down),
+            "messages_published": n(&self.messages_published),
+            "messages_not_shared": n(&self.messages_not_shared),
+            "link": if self.link_up.load(Ordering::Relaxed) { "up" } else { "down" },
+            "connections": n(&self.connections),
+            "link_losses": n(&self.link_losses),
+            "last_error": self.last_error.lock().map(|e| e.clone()).unwrap_or(None),
+        })
+    }
+
+    /// One line for stderr at the end of a run.
+    pub fn line(&self, url: &BrokerUrl) -> String {
+        let n = |a: &AtomicU64| a.load(Ordering::Relaxed);
+        let not_shared = n(&self.snapshots) - n(&self.snapshots_published).min(n(&self.snapshots));
+        let mut s = format!(
+            "termvel: shared to {}: {} of {} snapshots published ({} not shared), {} other messages ({} not shared)",
+            url.display(),
+            n(&self.snapshots_published),
+            n(&self.snapshots),
+            not_shared,
+            n(&self.messages_published),
+            n(&self.messages_not_shared),
+        );
+        if n(&self.connections) == 0 {
+            s.push_str("; the broker was never reached");
+            if let Ok(Some(e)) = self.last_error.lock().as_deref() {
+                s.push_str(&format!(" ({e})"));
+            }
+        }
+        s
+    }
+}
+
+/// A message other than a snapshot, built into JSON on the publisher's thread.
+enum Message {
+    Alerts(TimeNs, Vec<Alert>),
+    AlertChange(TimeNs, &'static str, Alert),
+    Mark(TimeNs, usize),
+    Health(TimeNs, Vec<SourceView>),
+}
+
+/// The driver's end of the publisher: fed by [`ShareSink`]. Dropping it
+/// closes the queues, and the publisher drains and ends.
+pub struct ShareTap {
+    snapshots: Arc<DropOldest<Arc<Snapshot>>>,
+    messages: mpsc::Sender<Message>,
+    stats: Arc<ShareStats>,
+    /// The alerts of the previous snapshot, to find changes.
+    alerts: Vec<Alert>,
+    marks: usize,
+    health_at: Option<TimeNs>,
+    links: Vec<Option<LinkState>>,
+}
+
+impl Drop for ShareTap {
+    fn drop(&mut self) {
+        self.snapshots.close();
+    }
+}
+
+impl ShareTap {
+    fn offer(&mut self, snap: &Arc<Snapshot>) {
+        self.stats.snapshots.fetch_add(1, Ordering::Relaxed);
+        if self.snapshots.push(snap.clone()).is_some() {
+            self.stats.snapshots_dropped_slow.fetch_add(1, Ordering::Relaxed);
+        }
+        let t = snap.t_ns;
+        // Alert changes: a handful of alerts, compared by key.
+        if snap.alerts != self.alerts {
+            for a in &snap.alerts {
+                let before = self.alerts.iter().find(|b| b.key == a.key);
+                let change = match before {
+                    None => Some(if a.active { "raised" } else { "cleared" }),
+                    Some(b) if a.raised_ns != b.raised_ns || (a.active && !b.active) => Some("raised"),
+                    Some(b) if !a.active && b.active => Some("cleared"),
+                    Some(b) if a.acked && !b.acked => Some("acked"),
+                    _ => None,
+                };
+                if let Some(c) = change {
+                    self.send(Message::AlertChange(t, c, a.clone()));
+                }
+            }
+            for b in &self.alerts {
+                if !snap.alerts.iter().any(|a| a.key == b.key) {
+                    self.send(Message::AlertChange(t, "gone", b.clone()));
+                }
+            }
+            self.alerts = snap.alerts.clone();
+            self.send(Message::Alerts(t, snap.alerts.clone()));
+        }
+        if snap.marks != self.marks {
+            self.marks = snap.marks;
+            self.send(Message::Mark(t, snap.marks));
+        }
+        let links_changed =
+            snap.sources.len() != self.links.len() || snap.sources.iter().zip(&self.links).any(|(s, l)| s.link != *l);
+        if links_changed || self.health_at.is_none_or(|h| t - h >= HEALTH_EVERY_NS) {
+            self.health_at = Some(t);
+            self.links = snap.sources.iter().map(|s| s.link).collect();
+            self.send(Message::Health(t, snap.sources.clone()));
+        }
+    }
+
+    fn send(&self, m: Message) {
+        if self.messages.try_send(m).is_err() {
+            self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
+        }
+    }
+}
+
+/// Wraps a stream's sink; with a tap, also offers every snapshot to the
+/// publisher (without one, it only passes snapshots on: sharing off).
+pub struct ShareSink<'k, K> {
+    inner: &'k mut K,
+    tap: Option<ShareTap>,
+}
+
+impl<'k, K: SnapshotSink> ShareSink<'k, K> {
+    pub fn new(inner: &'k mut K, tap: Option<ShareTap>) -> ShareSink<'k, K> {
+        ShareSink { inner, tap }
+    }
+}
+
+impl<K: SnapshotSink> SnapshotSink for ShareSink<'_, K> {
+    fn snapshot(&mut self, snap: Arc<Snapshot>, status: &StreamStatus) {
+        if let Some(tap) = &mut self.tap {
+            tap.offer(&snap);
+        }
+        self.inner.snapshot(snap, status);
+    }
+
+    fn status(&mut self, status: &StreamStatus) {
+        self.inner.status(status);
+    }
+}
+
+/// The publisher's thread, to wait for at the end.
+pub struct Publisher {
+    thread: std::thread::JoinHandle<()>,
+    pub stats: Arc<ShareStats>,
+    pub url: BrokerUrl,
+    pub topics: Topics,
+}
+
+impl Publisher {
+    /// Starts the publisher's thread; it connects in the background (an
+    /// absent broker is a link down, not an error). Returns the tap for
+    /// the [`ShareSink`].
+    pub fn start(settings: ShareSettings) -> Result<(ShareTap, Publisher), ShareError> {
+        let client_id = format!("termvel-{}-{}", std::process::id(), settings.topics.prefix().replace('/', "-"));
+        let mut options = settings.url.options(&client_id, settings.credentials.as_ref(), settings.ca.as_deref())?;
+        options.set_last_will(LastWill::new(
+            settings.topics.status(),
+            serde_json::to_vec(&payload::status("offline")).unwrap_or_default(),
+            QoS::AtLeastOnce,
+            true,
+        ));
+        let stats = Arc::new(ShareStats::default());
+        let snapshots = DropOldest::new(SNAPSHOT_QUEUE);
+        let (tx, rx) = mpsc::channel(MESSAGE_QUEUE);
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build()?;
+        let work = Work {
+            topics: settings.topics.clone(),
+            url: settings.url.clone(),
+            description: serde_json::to_vec(&settings.description).unwrap_or_default(),
+            say: settings.say_on_stderr,
+            stats: stats.clone(),
+        };
+        let queue = snapshots.clone();
+        let thread = std::thread::Builder::new()
+            .name("termvel-share".into())
+            .spawn(move || rt.block_on(work.run(options, queue, rx)))?;
+        let tap = ShareTap {
+            snapshots,
+            messages: tx,
+            stats: stats.clone(),
+            alerts: Vec::new(),
+            marks: 0,
+            health_at: None,
+            links: Vec::new(),
+        };
+        Ok((tap, Publisher { thread, stats, url: settings.url, topics: settings.topics }))
+    }
+
+    /// Waits for the publisher to drain and end (the tap must be dropped
+    /// first), at most [`DRAIN_FOR`] and a little more.
+    pub fn finish(self) -> Arc<ShareStats> {
+        let until = Instant::now() + DRAIN_FOR + Duration::from_secs(1);
+        while !self.thread.is_finished() && Instant::now() < until {
+            std::thread::sleep(Duration::from_millis(10));
+        }
+        if self.thread.is_finished() {
+            let _ = self.thread.join();
+        }
+        self.stats
+    }
+}
+
+/// The publisher's side.
+struct Work {
+    topics: Topics,
+    url: BrokerUrl,
+    description: Vec<u8>,
+    say: bool,
+    stats: Arc<ShareStats>,
+}
+
+impl Work {
+    fn tell(&self, line: String) {
+        if self.say {
+            crate::say!("{line}");
+        }
+        tracing::warn!("{line}");
+    }
+
+    async fn run(
+        self,
+        options: rumqttc::MqttOptions,
+        snapshots: Arc<DropOldest<Arc<Snapshot>>>,
+        mut messages: mpsc::Receiver<Message>,
+    ) {
+        let (client, mut eventloop) = AsyncClient::new(options, 64);
+        eventloop.set_network_options(super::broker::network_options());
+        let (link_tx, mut link_rx) = watch::channel(false);
+        // The connection: polled on its own task; on an error the link is
+        // down, and the next poll reconnects after a growing pause.
+        let conn = {
+            let stats = self.stats.clone();
+            let url = self.url.display();
+            let say = self.say;
+            tokio::spawn(async move {
+                let mut backoff = BACKOFF_FIRST;
+                let mut told_down = false;
+                // The disconnect went out: the broker closing the socket is the
+                // sign that everything before it was written.
+                let mut leaving = false;
+                loop {
+                    match eventloop.poll().await {
+                        Ok(Event::Incoming(Packet::ConnAck(_))) => {
+                            backoff = BACKOFF_FIRST;
+                            told_down = false;
+                            stats.connections.fetch_add(1, Ordering::Relaxed);
+                            stats.link_up.store(true, Ordering::Relaxed);
+                            let _ = link_tx.send(true);
+                        }
+                        Ok(Event::Outgoing(Outgoing::Disconnect)) => leaving = true,
+                        Ok(_) => {}
+                        Err(_) if leaving => break,
+                        Err(e) => {
+                            let was_up = stats.link_up.swap(false, Ordering::Relaxed);
+                            let _ = link_tx.send(false);
+                            if was_up || !told_down {
+                                stats.link_losses.fetch_add(1, Ordering::Relaxed);
+                                let why = describe(&e);
+                                let line = format!("termvel: share link down ({url}: {why}); retrying");
+                                if say {
+                                    crate::say!("{line}");
+                                }
+                                tracing::warn!("{line}");
+                                if let Ok(mut l) = stats.last_error.lock() {
+                                    *l = Some(why);
+                                }
+                                told_down = true;
+                            }
+                            if matches!(e, ConnectionError::RequestsDone) {
+                                break;
+                            }
+                            tokio::time::sleep(backoff).await;
+                            backoff = (backoff * 2).min(BACKOFF_MAX);
+                        }
+                    }
+                }
+            })
+        };
+
+        let mut up = false;
+        let mut held: VecDeque<(Instant, Message)> = VecDeque::new();
+        // The latest alert state, republished (retained) on every connection.
+        let mut alert_state: Option<Vec<u8>> = None;
+        let mut snapshot_seq = 0u64;
+        let mut snapshots_open = true;
+        let mut messages_open = true;
+        let mut tick = tokio::time::interval(Duration::from_millis(100));
+        while snapshots_open || messages_open {
+            tokio::select! {
+                changed = link_rx.changed() => {
+                    if changed.is_err() {
+                        break;
+                    }
+                    let now_up = *link_rx.borrow_and_update();
+                    if now_up && !up {
+                        if self.stats.connections.load(Ordering::Relaxed) > 1 {
+                            self.tell(format!("termvel: share link up again ({})", self.url.display()));
+                        }
+                        self.retained(&client, &self.topics.description(), self.description.clone());
+                        self.retained(&client, &self.topics.status(), to_vec(&payload::status("online")));
+                        if let Some(a) = &alert_state {
+                            self.retained(&client, &self.topics.alerts(), a.clone());
+                        }
+                    }
+                    up = now_up;
+                    if up {
+                        while let Some((_, m)) = held.pop_front() {
+                            self.publish(&client, m, &mut alert_state);
+                        }
+                    }
+                }
+                s = snapshots.pop(), if snapshots_open => match s {
+                    Some(s) => {
+                        snapshot_seq += 1;
+                        if up {
+                            let mut body = payload::snapshot(snapshot_seq, &s);
+                            body["sent_unix_ns"] = json!(unix_ns());
+                            match client.try_publish(self.topics.snapshot(), QoS::AtMostOnce, false, to_vec(&body)) {
+                                Ok(()) => self.stats.snapshots_published.fetch_add(1, Ordering::Relaxed),
+                                Err(_) => self.stats.snapshots_dropped_slow.fetch_add(1, Ordering::Relaxed),
+                            };
+                        } else {
+                            self.stats.snapshots_dropped_down.fetch_add(1, Ordering::Relaxed);
+                        }
+                    }
+                    None => snapshots_open = false,
+                },
+                m = messages.recv(), if messages_open => match m {
+                    Some(m) if up => self.publish(&client, m, &mut alert_state),
+                    Some(m) => {
+                        if held.len() >= HOLD_MAX {
+                            held.pop_front();
+                            self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
+                        }
+                        held.push_back((Instant::now(), m));
+                    }
+                    None => messages_open = false,
+                },
+                _ = tick.tick() => {
+                    while held.front().is_some_and(|(at, _)| at.elapsed() > HOLD_FOR) {
+                        held.pop_front();
+                        self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
+                    }
+                }
+            }
+        }
+        // The stream ended: what is still held waits up to DRAIN_FOR for the link.
+        let until = tokio::time::Instant::now() + DRAIN_FOR;
+        while !held.is_empty() && !up && tokio::time::Instant::now() < until {
+            let _ = tokio::time::timeout_at(until, link_rx.changed()).await;
+            up = *link_rx.borrow();
+        }
+        if up {
+            while let Some((_, m)) = held.pop_front() {
+                self.publish(&client, m, &mut alert_state);
+            }
+            self.retained(&client, &self.topics.status(), to_vec(&payload::status("ended")));
+            let _ = client.try_disconnect();
+        }
+        self.stats.messages_not_shared.fetch_add(held.len() as u64, Ordering::Relaxed);
+        // The connection task ends on the disconnect going out; never wait past the bound.
+        let _ = tokio::time::timeout_at(until, conn).await;
+    }
+
+    fn retained(&self, client: &AsyncClient, topic: &str, body: Vec<u8>) {
+        if client.try_publish(topic, QoS::AtLeastOnce, true, body).is_err() {
+            self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
+        }
+    }
+
+    fn publish(&self, client: &AsyncClient, m: Message, alert_state: &mut Option<Vec<u8>>) {
+        let t = &self.topics;
+        let (topic, body, retain) = match m {
+            Message::Alerts(ts, a) => {
+                let body = to_vec(&payload::alerts(ts, &a));
+                *alert_state = Some(body.clone());
+                (t.alerts(), body, true)
+            }
+            Message::AlertChange(ts, c, a) => (t.alert_change(), to_vec(&payload::alert_change(ts, c, &a)), false),
+            Message::Mark(ts, n) => (t.marks(), to_vec(&payload::mark(ts, n)), false),
+            Message::Health(ts, s) => (t.health(), to_vec(&payload::health(ts, &s)), true),
+        };
+        match client.try_publish(topic, QoS::AtLeastOnce, retain, body) {
+            Ok(()) => self.stats.messages_published.fetch_add(1, Ordering::Relaxed),
+            Err(_) => self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed),
+        };
+    }
+}
+
+fn to_vec(v: &Value) -> Vec<u8> {
+    serde_json::to_vec(v).unwrap_or_default()
+}
+
+/// Wall-clock now, Unix ns (for followers to measure latency).
+pub fn unix_ns() -> i64 {
+    std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_nanos() as i64)
+}
+
+/// A link error in the user's words.
+pub fn describe(e: &ConnectionError) -> String {
+    use rumqttc::ConnectReturnCode as C;
+    match e {
+        ConnectionError::ConnectionRefused(C::BadUserNamePassword) => {
+            "the broker refused the username or password".into()
+        }
+        ConnectionError::ConnectionRefused(C::NotAuthorized) => "the broker refused: not authorised".into(),
+        ConnectionError::ConnectionRefused(code) => format!("the broker refused the connection ({code:?})"),
+        ConnectionError::Io(io) => io.to_string(),
+        ConnectionError::Tls(t) => format!("TLS: {t}"),
+        other => other.to_string(),
+    }
+}
