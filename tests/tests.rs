@@ -25,6 +25,8 @@
 //! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
 //! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
 //!   resizing, and the recording afterwards.
+//! - `share`: sharing a run through a real MQTT broker (mosquitto on a
+//!   free loopback port): followers, a late joiner, an absent broker.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //!
 //! Shared helpers live in `suite/util.rs` and `suite/pty.rs`. The load test
@@ -64,6 +66,8 @@ mod rehearsal;
 mod report;
 #[path = "suite/screens.rs"]
 mod screens;
+#[path = "suite/share.rs"]
+mod share;
 #[path = "suite/signals.rs"]
 mod signals;
 #[path = "suite/tui.rs"]

@@ -38,6 +38,9 @@ use crate::stream::{SnapshotSink, StreamStatus};
 pub const SNAPSHOT_QUEUE: usize = 16;
 /// Alert changes, alert states, marks and health waiting for the publisher.
 pub const MESSAGE_QUEUE: usize = 1024;
+/// Requests waiting in the MQTT client for the connection task (a burst
+/// of snapshots and messages while the socket is busy).
+pub const CLIENT_QUEUE: usize = 1024;
 /// How long a message waits for a link that is down before it is counted
 /// as not shared.
 pub const HOLD_FOR: Duration = Duration::from_secs(10);
@@ -273,7 +276,9 @@ impl Publisher {
         let stats = Arc::new(ShareStats::default());
         let snapshots = DropOldest::new(SNAPSHOT_QUEUE);
         let (tx, rx) = mpsc::channel(MESSAGE_QUEUE);
-        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build()?;
+        // Two workers: the connection keeps reading and writing while the
+        // other builds a snapshot's JSON.
+        let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
         let work = Work {
             topics: settings.topics.clone(),
             url: settings.url.clone(),
@@ -334,7 +339,7 @@ impl Work {
         snapshots: Arc<DropOldest<Arc<Snapshot>>>,
         mut messages: mpsc::Receiver<Message>,
     ) {
-        let (client, mut eventloop) = AsyncClient::new(options, 64);
+        let (client, mut eventloop) = AsyncClient::new(options, CLIENT_QUEUE);
         eventloop.set_network_options(super::broker::network_options());
         let (link_tx, mut link_rx) = watch::channel(false);
         // The connection: polled on its own task; on an error the link is
@@ -415,9 +420,7 @@ impl Work {
                     }
                     up = now_up;
                     if up {
-                        while let Some((_, m)) = held.pop_front() {
-                            self.publish(&client, m, &mut alert_state);
-                        }
+                        self.retry(&client, &mut held, &mut alert_state);
                     }
                 }
                 s = snapshots.pop(), if snapshots_open => match s {
@@ -437,8 +440,10 @@ impl Work {
                     None => snapshots_open = false,
                 },
                 m = messages.recv(), if messages_open => match m {
-                    Some(m) if up => self.publish(&client, m, &mut alert_state),
                     Some(m) => {
+                        // Behind what is held, to keep their order.
+                        let m = if up && held.is_empty() { self.publish(&client, m, &mut alert_state) } else { Some(m) };
+                        let Some(m) = m else { continue };
                         if held.len() >= HOLD_MAX {
                             held.pop_front();
                             self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
@@ -448,6 +453,9 @@ impl Work {
                     None => messages_open = false,
                 },
                 _ = tick.tick() => {
+                    if up {
+                        self.retry(&client, &mut held, &mut alert_state);
+                    }
                     while held.front().is_some_and(|(at, _)| at.elapsed() > HOLD_FOR) {
                         held.pop_front();
                         self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
@@ -463,14 +471,36 @@ impl Work {
         }
         if up {
             while let Some((_, m)) = held.pop_front() {
-                self.publish(&client, m, &mut alert_state);
+                if let Some(m) = self.publish(&client, m, &mut alert_state) {
+                    held.push_front((Instant::now(), m));
+                    if tokio::time::timeout_at(until, tokio::time::sleep(Duration::from_millis(10))).await.is_err() {
+                        break;
+                    }
+                }
             }
-            self.retained(&client, &self.topics.status(), to_vec(&payload::status("ended")));
-            let _ = client.try_disconnect();
+            // These two wait (within the bound) for room in the client's
+            // queue: the last snapshots may have filled it, and a follower
+            // ends on this word.
+            let ended = client.publish(self.topics.status(), QoS::AtLeastOnce, true, to_vec(&payload::status("ended")));
+            match tokio::time::timeout_at(until, ended).await {
+                Ok(Ok(())) => self.stats.messages_published.fetch_add(1, Ordering::Relaxed),
+                _ => self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed),
+            };
+            let _ = tokio::time::timeout_at(until, client.disconnect()).await;
         }
         self.stats.messages_not_shared.fetch_add(held.len() as u64, Ordering::Relaxed);
         // The connection task ends on the disconnect going out; never wait past the bound.
         let _ = tokio::time::timeout_at(until, conn).await;
+    }
+
+    /// Publishes what is held, in order, until the client's queue is full.
+    fn retry(&self, client: &AsyncClient, held: &mut VecDeque<(Instant, Message)>, alert_state: &mut Option<Vec<u8>>) {
+        while let Some((at, m)) = held.pop_front() {
+            if let Some(m) = self.publish(client, m, alert_state) {
+                held.push_front((at, m));
+                break;
+            }
+        }
     }
 
     fn retained(&self, client: &AsyncClient, topic: &str, body: Vec<u8>) {
@@ -479,22 +509,27 @@ impl Work {
         }
     }
 
-    fn publish(&self, client: &AsyncClient, m: Message, alert_state: &mut Option<Vec<u8>>) {
+    /// Publishes `m`; when the client's queue is full, gives it back to be
+    /// held and tried again.
+    fn publish(&self, client: &AsyncClient, m: Message, alert_state: &mut Option<Vec<u8>>) -> Option<Message> {
         let t = &self.topics;
-        let (topic, body, retain) = match m {
+        let (topic, body, retain) = match &m {
             Message::Alerts(ts, a) => {
-                let body = to_vec(&payload::alerts(ts, &a));
+                let body = to_vec(&payload::alerts(*ts, a));
                 *alert_state = Some(body.clone());
                 (t.alerts(), body, true)
             }
-            Message::AlertChange(ts, c, a) => (t.alert_change(), to_vec(&payload::alert_change(ts, c, &a)), false),
-            Message::Mark(ts, n) => (t.marks(), to_vec(&payload::mark(ts, n)), false),
-            Message::Health(ts, s) => (t.health(), to_vec(&payload::health(ts, &s)), true),
+            Message::AlertChange(ts, c, a) => (t.alert_change(), to_vec(&payload::alert_change(*ts, c, a)), false),
+            Message::Mark(ts, n) => (t.marks(), to_vec(&payload::mark(*ts, *n)), false),
+            Message::Health(ts, s) => (t.health(), to_vec(&payload::health(*ts, s)), true),
         };
         match client.try_publish(topic, QoS::AtLeastOnce, retain, body) {
-            Ok(()) => self.stats.messages_published.fetch_add(1, Ordering::Relaxed),
-            Err(_) => self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed),
-        };
+            Ok(()) => {
+                self.stats.messages_published.fetch_add(1, Ordering::Relaxed);
+                None
+            }
+            Err(_) => Some(m),
+        }
     }
 }
 

@@ -1,0 +1,240 @@
+//! Sharing a run through a real MQTT broker (issue 16): mosquitto started
+//! on a free loopback port for each test, a headless rehearsal published,
+//! headless followers receiving it, and a broker that is not there.
+//!
+//! Needs Debian's `mosquitto` (scripts/setup.sh installs it).
+
+use std::io::{BufRead, BufReader};
+use std::net::{Ipv4Addr, SocketAddr, TcpListener, TcpStream};
+use std::path::PathBuf;
+use std::process::{Child, Command, Stdio};
+use std::sync::mpsc;
+use std::time::{Duration, Instant};
+
+use serde_json::Value;
+
+use crate::util::{root, stderr, stdout, termvel};
+
+/// A mosquitto on 127.0.0.1 (never another address), with a generated
+/// config, killed when dropped.
+pub struct Broker {
+    child: Child,
+    pub port: u16,
+    _dir: tempfile::TempDir,
+}
+
+impl Broker {
+    pub fn start() -> Broker {
+        let bin = ["/usr/sbin/mosquitto", "/usr/local/sbin/mosquitto"]
+            .into_iter()
+            .map(PathBuf::from)
+            .find(|p| p.exists())
+            .unwrap_or_else(|| PathBuf::from("mosquitto"));
+        let port = free_port();
+        let dir = tempfile::tempdir().unwrap();
+        let conf = dir.path().join("mosquitto.conf");
+        std::fs::write(&conf, format!("listener {port} 127.0.0.1\nallow_anonymous true\npersistence false\n")).unwrap();
+        let child =
+            Command::new(&bin).arg("-c").arg(&conf).stdout(Stdio::null()).stderr(Stdio::null()).spawn().unwrap_or_else(
+                |e| panic!("cannot start {} ({e}): run scripts/setup.sh to install mosquitto", bin.display()),
+            );
+        let broker = Broker { child, port, _dir: dir };
+        let until = Instant::now() + Duration::from_secs(10);
+        while TcpStream::connect(broker.addr()).is_err() {
+            assert!(Instant::now() < until, "mosquitto did not listen on {} within 10 s", broker.port);
+            std::thread::sleep(Duration::from_millis(20));
+        }
+        broker
+    }
+
+    fn addr(&self) -> SocketAddr {
+        SocketAddr::from((Ipv4Addr::LOCALHOST, self.port))
+    }
+
+    pub fn url(&self) -> String {
+        format!("mqtt://127.0.0.1:{}", self.port)
+    }
+}
+
+impl Drop for Broker {
+    fn drop(&mut self) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+    }
+}
+
+/// A loopback port nothing listens on (just now).
+fn free_port() -> u16 {
+    TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).unwrap().local_addr().unwrap().port()
+}
+
+/// A headless follower running in the background.
+struct Follower {
+    child: Child,
+    lines: mpsc::Receiver<String>,
+}
+
+impl Follower {
+    /// Starts `termvel follow` and waits until it is subscribed.
+    fn start(url: &str, topic: &str, extra: &[&str]) -> Follower {
+        let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+            .args(["follow", url, "--topic", topic, "--headless"])
+            .args(extra)
+            .current_dir(root())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped())
+            .spawn()
+            .unwrap();
+        let (tx, lines) = mpsc::channel();
+        let out = child.stdout.take().unwrap();
+        std::thread::spawn(move || {
+            for l in BufReader::new(out).lines().map_while(Result::ok) {
+                let _ = tx.send(l);
+            }
+        });
+        let err = BufReader::new(child.stderr.take().unwrap());
+        let (ready_tx, ready) = mpsc::channel();
+        std::thread::spawn(move || {
+            for l in err.lines().map_while(Result::ok) {
+                if l.contains("termvel: following") {
+                    let _ = ready_tx.send(());
+                }
+            }
+        });
+        ready.recv_timeout(Duration::from_secs(20)).expect("the follower subscribed within 20 s");
+        Follower { child, lines }
+    }
+
+    /// Every line until the follower ends (at most `within`).
+    fn finish(mut self, within: Duration) -> Vec<Value> {
+        let until = Instant::now() + within;
+        let mut out = Vec::new();
+        loop {
+            let left = until.saturating_duration_since(Instant::now());
+            match self.lines.recv_timeout(left) {
+                Ok(l) => out.push(serde_json::from_str(&l).unwrap_or_else(|e| panic!("{e}: {l}"))),
+                Err(mpsc::RecvTimeoutError::Disconnected) => break,
+                Err(mpsc::RecvTimeoutError::Timeout) => {
+                    let _ = self.child.kill();
+                    panic!("the follower did not end within {within:?}");
+                }
+            }
+        }
+        let _ = self.child.wait();
+        out
+    }
+}
+
+fn kind_of(v: &Value) -> &str {
+    v["kind"].as_str().unwrap_or("")
+}
+
+fn parse_lines(s: &str) -> Vec<Value> {
+    s.lines().map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("{e}: {l}"))).collect()
+}
+
+// Issue 16, items 1 and 2: a rehearsal published through a broker reaches
+// a follower (at least 99 % of the snapshots, each the publisher's own
+// headless line), and one that joins after the run still gets the
+// retained description.
+#[test]
+fn a_shared_rehearsal_reaches_a_follower_and_a_late_one_gets_the_description() {
+    let broker = Broker::start();
+    let url = broker.url();
+    let early = Follower::start(&url, "pit/run3", &["--for", "120s"]);
+    let started = Instant::now();
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--no-record",
+        "--speed",
+        "8",
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/run3",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let published = parse_lines(&stdout(&run));
+    let (summary, snaps) = published.split_last().unwrap();
+    let share = &summary["share"];
+    assert_eq!(share["snapshots"].as_u64(), Some(snaps.len() as u64), "{share}");
+    assert_eq!(share["connections"], 1, "{share}");
+    let got = early.finish(Duration::from_secs(30));
+    eprintln!("published in {:?}: {share}; follower: {}", started.elapsed(), got.last().unwrap());
+    let received: Vec<&Value> = got.iter().filter(|v| kind_of(v) == "snapshot").collect();
+    assert!(
+        received.len() as f64 >= 0.99 * snaps.len() as f64,
+        "{} of {} snapshots received",
+        received.len(),
+        snaps.len()
+    );
+    for r in &received {
+        let seq = r["seq"].as_u64().unwrap() as usize;
+        assert_eq!(r["snapshot"], snaps[seq - 1], "snapshot {seq} is the publisher's headless line");
+    }
+    assert_eq!(got.iter().filter(|v| kind_of(v) == "description").count(), 1);
+    let end = got.iter().rev().find(|v| kind_of(v) == "status").unwrap();
+    assert_eq!(end["state"], "ended", "the follower ended on the publisher's word");
+    assert_eq!(got.last().unwrap()["summary"]["follow"]["ended"], true);
+
+    // After the run: the retained messages draw a late screen.
+    let late = Follower::start(&url, "pit/run3", &["--for", "2s"]);
+    let got = late.finish(Duration::from_secs(20));
+    let d = got.iter().find(|v| kind_of(v) == "description").expect("the retained description");
+    assert_eq!(d["schema"], 1);
+    assert_eq!(d["command"], "rehearse");
+    assert_eq!(d["termvel_version"], env!("CARGO_PKG_VERSION"));
+    let config = termvel::config::ConfigSet::embedded();
+    assert_eq!(d["vehicle"], config.vehicle.name.as_str());
+    assert_eq!(d["track"], config.track.name.as_str());
+    assert!(d["signal_map"]["messages"].as_array().is_some_and(|m| !m.is_empty()));
+    let status = got.iter().find(|v| kind_of(v) == "status").expect("the retained status");
+    assert_eq!(status["state"], "ended");
+    assert!(got.iter().any(|v| kind_of(v) == "alerts"), "the retained alert state");
+    assert!(got.iter().any(|v| kind_of(v) == "health"), "the retained source health");
+    assert!(!got.iter().any(|v| kind_of(v) == "snapshot"), "snapshots are not retained");
+}
+
+/// The count in "termvel: recorded N events to …".
+fn recorded_events(err: &str) -> u64 {
+    let l = err.lines().find(|l| l.starts_with("termvel: recorded ")).unwrap_or_else(|| panic!("{err}"));
+    l.split_whitespace().nth(2).unwrap().parse().unwrap()
+}
+
+// Issue 16, item 1: a broker that is not there does not break or change
+// the local run: every event recorded, every snapshot printed, the link
+// said down, exit 0, and what was not shared counted in the summary.
+#[test]
+fn an_absent_broker_loses_nothing_locally() {
+    let dir = tempfile::tempdir().unwrap();
+    let rec = |d: &str| {
+        let p = dir.path().join(d);
+        std::fs::create_dir_all(&p).unwrap();
+        p.to_string_lossy().into_owned()
+    };
+    let (plain_dir, shared_dir) = (rec("plain"), rec("shared"));
+    let plain = termvel(&["rehearse", "--headless", "--as-fast-as-possible", "--record-dir", &plain_dir]);
+    let url = format!("mqtt://127.0.0.1:{}", free_port());
+    let started = Instant::now();
+    let shared =
+        termvel(&["rehearse", "--headless", "--as-fast-as-possible", "--record-dir", &shared_dir, "--share", &url]);
+    let took = started.elapsed();
+    assert!(plain.status.success() && shared.status.success(), "{}", stderr(&shared));
+    let err = stderr(&shared);
+    assert!(err.contains("share link down"), "{err}");
+    assert_eq!(recorded_events(&err), recorded_events(&stderr(&plain)), "every event recorded");
+    let (a, b) = (stdout(&plain), stdout(&shared));
+    let (a_snaps, _) = a.rsplit_once('\n').map(|(s, _)| s.rsplit_once('\n').unwrap()).unwrap();
+    let (b_snaps, _) = b.rsplit_once('\n').map(|(s, _)| s.rsplit_once('\n').unwrap()).unwrap();
+    assert!(a_snaps == b_snaps, "the same snapshots, byte for byte");
+    let summary = parse_lines(&b).pop().unwrap();
+    let share = &summary["share"];
+    assert_eq!(share["connections"], 0, "{share}");
+    assert_eq!(share["snapshots_published"], 0, "{share}");
+    assert_eq!(share["snapshots"], summary["summary"]["snapshots"], "{share}");
+    assert_eq!(share["link"], "down");
+    assert!(err.contains("the broker was never reached"), "{err}");
+    // The end waits at most the stated drain bound for the link.
+    assert!(took < Duration::from_secs(30), "took {took:?}");
+}
