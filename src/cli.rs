@@ -136,6 +136,9 @@ pub struct ShareOpts {
     /// CA certificate (PEM) that signed the broker's, for mqtts:// (default: the system's).
     #[arg(long, value_name = "FILE", requires = "share")]
     pub share_ca: Option<PathBuf>,
+    /// Also share the raw events, in batches every 100 ms of stream time, so another station can keep a full recording.
+    #[arg(long, requires = "share")]
+    pub share_events: bool,
 }
 
 #[derive(Args, Debug)]

@@ -34,6 +34,7 @@ pub fn start(
         ca: run.share.share_ca.clone(),
         description,
         say_on_stderr: run.headless,
+        events: run.share.share_events,
     };
     let (tap, publisher) = Publisher::start(settings).map_err(|e| e.to_string())?;
     crate::say!("termvel: sharing to {} under {}/", url.display(), topics.prefix());

@@ -18,8 +18,8 @@
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
 //!
 //! Imports: `engine`, `stream` (the sink contract), `headless` (the
-//! snapshot JSON), `config` and vocabulary. Nothing here imports `ui` or
-//! `cmd`.
+//! snapshot JSON), `record` (an event as a recording line), `config` and
+//! vocabulary. Nothing here imports `ui` or `cmd`.
 
 pub mod broker;
 pub mod credentials;

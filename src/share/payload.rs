@@ -191,6 +191,32 @@ pub fn health(t_ns: TimeNs, sources: &[SourceView]) -> Value {
     envelope(Kind::Health, object(json!({ "t": t_ns as f64 * 1e-9, "sources": list })))
 }
 
+/// A batch of raw events (`--share-events`): `seq` counts batches from 1
+/// (a gap is a batch lost), `events_before` the events of the batches
+/// before it (so a follower knows how many it missed), and `lines` the
+/// events as recording lines ("The recording format"), joined by line ends.
+pub fn events(
+    seq: u64,
+    events_before: u64,
+    events: &[crate::event::Event],
+    sources: &crate::event::SourceTable,
+) -> Value {
+    let mut bytes = Vec::with_capacity(events.len() * 40);
+    for ev in events {
+        crate::record::writer::format_event(&mut bytes, ev, sources.name(ev.source));
+    }
+    envelope(
+        Kind::Events,
+        object(json!({
+            "seq": seq,
+            "events_before": events_before,
+            "count": events.len(),
+            "first_t_ns": events.first().map(|e| e.t_ns),
+            "lines": String::from_utf8_lossy(&bytes),
+        })),
+    )
+}
+
 /// Why a received payload is refused.
 #[derive(Debug, thiserror::Error, PartialEq)]
 pub enum PayloadError {

@@ -30,12 +30,14 @@ use super::queue::DropOldest;
 use super::topics::Topics;
 use crate::engine::snapshot::SourceView;
 use crate::engine::{Alert, Snapshot};
-use crate::event::{LinkState, NS_PER_S, TimeNs};
+use crate::event::{LinkState, NS_PER_S, SourceTable, TimeNs};
 use crate::stream::{SnapshotSink, StreamStatus};
 
-/// Snapshots waiting for the broker (at 10 per second of stream time, a
-/// second and a half at x1; latest wins).
-pub const SNAPSHOT_QUEUE: usize = 16;
+/// Snapshots waiting for the broker: latest wins beyond this. At 10 a
+/// second of stream time that is 6.4 s at x1, 0.8 s at x8; enough to ride
+/// out a publisher starved of processor time for a moment (the test
+/// machine), small enough that a follower is never shown a stale past.
+pub const SNAPSHOT_QUEUE: usize = 64;
 /// Alert changes, alert states, marks and health waiting for the publisher.
 pub const MESSAGE_QUEUE: usize = 1024;
 /// Requests waiting in the MQTT client for the connection task (a burst
@@ -77,6 +79,8 @@ pub struct ShareSettings {
     pub description: Value,
     /// Say link changes on stderr (headless); on the screens they go to the log.
     pub say_on_stderr: bool,
+    /// Share the raw events in batches (`--share-events`).
+    pub events: bool,
 }
 
 /// What the publisher did, counted while it runs (read at the end, or by a
@@ -91,6 +95,9 @@ pub struct ShareStats {
     pub snapshots_dropped_slow: AtomicU64,
     /// Snapshots dropped because the link was down.
     pub snapshots_dropped_down: AtomicU64,
+    /// Batches of raw events made (`--share-events`); they count among the
+    /// messages below once published or not shared.
+    pub event_batches: AtomicU64,
     /// Other messages handed to the client.
     pub messages_published: AtomicU64,
     /// Other messages not shared (queue full, or held past [`HOLD_FOR`]).
@@ -117,6 +124,7 @@ impl ShareStats {
             "snapshots_published": n(&self.snapshots_published),
             "snapshots_dropped_slow": n(&self.snapshots_dropped_slow),
             "snapshots_dropped_down": n(&self.snapshots_dropped_down),
+            "event_batches": n(&self.event_batches),
             "messages_published": n(&self.messages_published),
             "messages_not_shared": n(&self.messages_not_shared),
             "link": if self.link_up.load(Ordering::Relaxed) { "up" } else { "down" },
@@ -155,7 +163,20 @@ enum Message {
     AlertChange(TimeNs, &'static str, Alert),
     Mark(TimeNs, usize),
     Health(TimeNs, Vec<SourceView>),
+    /// Raw events (`--share-events`): the batch's number, the events sent
+    /// in the batches before it, the events, and their sources' names.
+    Events {
+        seq: u64,
+        before: u64,
+        events: Vec<crate::event::Event>,
+        sources: SourceTable,
+    },
 }
+
+/// Raw events are sent in batches of this much stream time…
+pub const EVENT_BATCH_NS: TimeNs = 100_000_000;
+/// …or of this many events, whichever comes first.
+pub const EVENT_BATCH_MAX: usize = 4096;
 
 /// The driver's end of the publisher: fed by [`ShareSink`]. Dropping it
 /// closes the queues, and the publisher drains and ends.
@@ -168,10 +189,17 @@ pub struct ShareTap {
     marks: usize,
     health_at: Option<TimeNs>,
     links: Vec<Option<LinkState>>,
+    /// Whether raw events are shared, and the batch being filled.
+    events_on: bool,
+    batch: Vec<crate::event::Event>,
+    batch_sources: SourceTable,
+    batches: u64,
+    batched_events: u64,
 }
 
 impl Drop for ShareTap {
     fn drop(&mut self) {
+        self.send_batch();
         self.snapshots.close();
     }
 }
@@ -219,6 +247,33 @@ impl ShareTap {
         }
     }
 
+    fn event(&mut self, ev: &crate::event::Event, sources: &SourceTable) {
+        if !self.events_on || !ev.is_input() {
+            return;
+        }
+        if let Some(first) = self.batch.first()
+            && (ev.t_ns - first.t_ns >= EVENT_BATCH_NS || self.batch.len() >= EVENT_BATCH_MAX)
+        {
+            self.send_batch();
+        }
+        if self.batch.is_empty() && self.batch_sources != *sources {
+            self.batch_sources = sources.clone();
+        }
+        self.batch.push(ev.clone());
+    }
+
+    fn send_batch(&mut self) {
+        if self.batch.is_empty() {
+            return;
+        }
+        let events = std::mem::take(&mut self.batch);
+        self.batches += 1;
+        self.stats.event_batches.fetch_add(1, Ordering::Relaxed);
+        let before = self.batched_events;
+        self.batched_events += events.len() as u64;
+        self.send(Message::Events { seq: self.batches, before, events, sources: self.batch_sources.clone() });
+    }
+
     fn send(&self, m: Message) {
         if self.messages.try_send(m).is_err() {
             self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
@@ -249,6 +304,13 @@ impl<K: SnapshotSink> SnapshotSink for ShareSink<'_, K> {
 
     fn status(&mut self, status: &StreamStatus) {
         self.inner.status(status);
+    }
+
+    fn event(&mut self, ev: &crate::event::Event, sources: &SourceTable) {
+        if let Some(tap) = &mut self.tap {
+            tap.event(ev, sources);
+        }
+        self.inner.event(ev, sources);
     }
 }
 
@@ -298,6 +360,11 @@ impl Publisher {
             marks: 0,
             health_at: None,
             links: Vec::new(),
+            events_on: settings.events,
+            batch: Vec::new(),
+            batch_sources: SourceTable::default(),
+            batches: 0,
+            batched_events: 0,
         };
         Ok((tap, Publisher { thread, stats, url: settings.url, topics: settings.topics }))
     }
@@ -522,6 +589,9 @@ impl Work {
             Message::AlertChange(ts, c, a) => (t.alert_change(), to_vec(&payload::alert_change(*ts, c, a)), false),
             Message::Mark(ts, n) => (t.marks(), to_vec(&payload::mark(*ts, *n)), false),
             Message::Health(ts, s) => (t.health(), to_vec(&payload::health(*ts, s)), true),
+            Message::Events { seq, before, events, sources } => {
+                (t.events(), to_vec(&payload::events(*seq, *before, events, sources)), false)
+            }
         };
         match client.try_publish(topic, QoS::AtLeastOnce, retain, body) {
             Ok(()) => {

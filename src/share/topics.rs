@@ -10,7 +10,7 @@
 //! | `PREFIX/alerts/change` | one alert raised, cleared or acknowledged | 1 | no |
 //! | `PREFIX/marks` | operator marks | 1 | no |
 //! | `PREFIX/health` | source health (links, rates, losses), once a second | 1 | yes |
-//! | `PREFIX/events` | raw event batches every 100 ms (`--share-events`) | 1 | no |
+//! | `PREFIX/events` | raw event batches every 100 ms of stream time (`--share-events`) | 1 | no |
 
 /// Why a topic prefix is refused.
 #[derive(Debug, thiserror::Error, PartialEq)]

@@ -218,6 +218,9 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         };
         let mut out = std::mem::take(&mut self.out);
         self.pipe.step(&ev, self.src.sources(), pass, &mut out);
+        if pass == Pass::First {
+            self.sink.event(&ev, self.src.sources());
+        }
         let seq = self.seq;
         for (_, op) in self.operator_events.iter().filter(|(s, _)| *s == seq) {
             self.pipe.step(op, self.src.sources(), Pass::Again, &mut out);
@@ -311,6 +314,7 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         let ev = action.event(now);
         let mut out = std::mem::take(&mut self.out);
         self.pipe.step(&ev, self.src.sources(), Pass::First, &mut out);
+        self.sink.event(&ev, self.src.sources());
         self.operator_events.push((self.seq, ev));
         self.emit_all(&mut out);
         self.out = out;

@@ -15,6 +15,15 @@ use serde_json::Value;
 
 use crate::util::{root, stderr, stdout, termvel};
 
+/// The tests here take a lock: on a small machine, three paced runs and
+/// their followers at once starve each other of processor time, and the
+/// publisher rightly drops snapshots it cannot send in time.
+static ONE_AT_A_TIME: std::sync::Mutex<()> = std::sync::Mutex::new(());
+
+fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
+    ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner())
+}
+
 /// A mosquitto on 127.0.0.1 (never another address), with a generated
 /// config, killed when dropped.
 pub struct Broker {
@@ -139,6 +148,7 @@ fn parse_lines(s: &str) -> Vec<Value> {
 // retained description.
 #[test]
 fn a_shared_rehearsal_reaches_a_follower_and_a_late_one_gets_the_description() {
+    let _one = one_at_a_time();
     let broker = Broker::start();
     let url = broker.url();
     let early = Follower::start(&url, "pit/run3", &["--for", "120s"]);
@@ -207,6 +217,7 @@ fn recorded_events(err: &str) -> u64 {
 // said down, exit 0, and what was not shared counted in the summary.
 #[test]
 fn an_absent_broker_loses_nothing_locally() {
+    let _one = one_at_a_time();
     let dir = tempfile::tempdir().unwrap();
     let rec = |d: &str| {
         let p = dir.path().join(d);
@@ -237,4 +248,59 @@ fn an_absent_broker_loses_nothing_locally() {
     assert!(err.contains("the broker was never reached"), "{err}");
     // The end waits at most the stated drain bound for the link.
     assert!(took < Duration::from_secs(30), "took {took:?}");
+}
+
+/// The event lines of a recording: its body without the header (`%`),
+/// comments, or this session's own notes (a replay makes them again).
+fn input_lines(recording: &std::path::Path) -> Vec<String> {
+    let text = String::from_utf8_lossy(&std::fs::read(recording).unwrap()).into_owned();
+    text.lines()
+        .filter(|l| !l.is_empty() && !l.starts_with('%') && !l.starts_with('#') && !l.contains(" session note "))
+        .map(str::to_string)
+        .collect()
+}
+
+// Issue 16, item 2: with --share-events a follower receives the raw events
+// in numbered batches that, joined in order, are the publisher's own
+// recording line for line (so it can keep a full recording).
+#[test]
+fn shared_event_batches_are_the_recording_line_for_line() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let dir = tempfile::tempdir().unwrap();
+    let rec_dir = dir.path().to_string_lossy().into_owned();
+    let follower = Follower::start(&url, "pit/events", &["--for", "120s"]);
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--speed",
+        "16",
+        "--record-dir",
+        &rec_dir,
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/events",
+        "--share-events",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let summary = parse_lines(&stdout(&run)).pop().unwrap();
+    assert_eq!(summary["share"]["messages_not_shared"], 0, "{}", summary["share"]);
+    let got = follower.finish(Duration::from_secs(60));
+    let mut batches: Vec<&Value> = got.iter().filter(|v| kind_of(v) == "events").collect();
+    batches.sort_by_key(|b| b["seq"].as_u64());
+    assert_eq!(batches.len() as u64, summary["share"]["event_batches"].as_u64().unwrap());
+    let mut expected_before = 0;
+    for (i, b) in batches.iter().enumerate() {
+        assert_eq!(b["seq"].as_u64(), Some(i as u64 + 1), "no batch missing");
+        assert_eq!(b["events_before"].as_u64(), Some(expected_before));
+        expected_before += b["count"].as_u64().unwrap();
+    }
+    let shared: Vec<String> =
+        batches.iter().flat_map(|b| b["lines"].as_str().unwrap().lines().map(str::to_string)).collect();
+    let recording = std::fs::read_dir(dir.path()).unwrap().next().unwrap().unwrap().path();
+    let recorded = input_lines(&recording);
+    assert_eq!(shared.len(), recorded.len());
+    assert!(shared == recorded, "the shared events are the recording's, in order");
 }
