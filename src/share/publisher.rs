@@ -619,7 +619,10 @@ pub fn describe(e: &ConnectionError) -> String {
         ConnectionError::ConnectionRefused(C::BadUserNamePassword) => {
             "the broker refused the username or password".into()
         }
-        ConnectionError::ConnectionRefused(C::NotAuthorized) => "the broker refused: not authorised".into(),
+        // What mosquitto answers a wrong password with, under MQTT 3.1.1.
+        ConnectionError::ConnectionRefused(C::NotAuthorized) => {
+            "the broker refused the username or password (not authorised)".into()
+        }
         ConnectionError::ConnectionRefused(code) => format!("the broker refused the connection ({code:?})"),
         ConnectionError::Io(io) => io.to_string(),
         ConnectionError::Tls(t) => format!("TLS: {t}"),

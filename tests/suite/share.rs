@@ -34,15 +34,25 @@ pub struct Broker {
 
 impl Broker {
     pub fn start() -> Broker {
+        Broker::start_with(|_| "allow_anonymous true\n".to_string())
+    }
+
+    /// A broker whose config ends with what `extra` writes (given the
+    /// broker's own directory, for password files and ACLs).
+    pub fn start_with(extra: impl FnOnce(&std::path::Path) -> String) -> Broker {
+        let port = free_port();
+        Broker::start_on(port, tempfile::tempdir().unwrap(), extra)
+    }
+
+    fn start_on(port: u16, dir: tempfile::TempDir, extra: impl FnOnce(&std::path::Path) -> String) -> Broker {
         let bin = ["/usr/sbin/mosquitto", "/usr/local/sbin/mosquitto"]
             .into_iter()
             .map(PathBuf::from)
             .find(|p| p.exists())
             .unwrap_or_else(|| PathBuf::from("mosquitto"));
-        let port = free_port();
-        let dir = tempfile::tempdir().unwrap();
         let conf = dir.path().join("mosquitto.conf");
-        std::fs::write(&conf, format!("listener {port} 127.0.0.1\nallow_anonymous true\npersistence false\n")).unwrap();
+        let extra = extra(dir.path());
+        std::fs::write(&conf, format!("listener {port} 127.0.0.1\npersistence false\n{extra}")).unwrap();
         let child =
             Command::new(&bin).arg("-c").arg(&conf).stdout(Stdio::null()).stderr(Stdio::null()).spawn().unwrap_or_else(
                 |e| panic!("cannot start {} ({e}): run scripts/setup.sh to install mosquitto", bin.display()),
@@ -54,6 +64,19 @@ impl Broker {
             std::thread::sleep(Duration::from_millis(20));
         }
         broker
+    }
+
+    /// Stops the broker (SIGKILL: no goodbye to its clients).
+    pub fn kill(mut self) -> (u16, tempfile::TempDir) {
+        let _ = self.child.kill();
+        let _ = self.child.wait();
+        let dir = std::mem::replace(&mut self._dir, tempfile::tempdir().unwrap());
+        (self.port, dir)
+    }
+
+    /// Starts an anonymous broker again on the port and directory of one killed.
+    pub fn restart((port, dir): (u16, tempfile::TempDir)) -> Broker {
+        Broker::start_on(port, dir, |_| "allow_anonymous true\n".to_string())
     }
 
     fn addr(&self) -> SocketAddr {
@@ -303,4 +326,137 @@ fn shared_event_batches_are_the_recording_line_for_line() {
     let recorded = input_lines(&recording);
     assert_eq!(shared.len(), recorded.len());
     assert!(shared == recorded, "the shared events are the recording's, in order");
+}
+
+/// A broker that takes only `pit` with password `right` (mosquitto_passwd).
+fn broker_with_password() -> Broker {
+    Broker::start_with(|dir| {
+        let file = dir.join("passwords");
+        let ok = Command::new("mosquitto_passwd")
+            .args(["-b", "-c"])
+            .arg(&file)
+            .args(["pit", "right"])
+            .status()
+            .expect("mosquitto_passwd runs (mosquitto package)");
+        assert!(ok.success());
+        format!("allow_anonymous false\npassword_file {}\n", file.display())
+    })
+}
+
+/// A credentials file with `mode`.
+fn credentials(dir: &std::path::Path, password: &str, mode: u32) -> String {
+    use std::os::unix::fs::PermissionsExt;
+    let p = dir.join(format!("share-{mode:o}.toml"));
+    std::fs::write(&p, format!("username = \"pit\"\npassword = \"{password}\"\n")).unwrap();
+    std::fs::set_permissions(&p, std::fs::Permissions::from_mode(mode)).unwrap();
+    p.to_string_lossy().into_owned()
+}
+
+// Issue 16, item 4: a wrong password is a clear error for a follower
+// (exit 1) and a link down for the reading station (whose run goes on and
+// ends 0); a credentials file others can read is refused (exit 2) before
+// anything runs; the right password from the environment works.
+#[test]
+fn passwords_right_wrong_and_exposed() {
+    let _one = one_at_a_time();
+    let broker = broker_with_password();
+    let url = broker.url();
+    let dir = tempfile::tempdir().unwrap();
+    let wrong = credentials(dir.path(), "wrong", 0o600);
+    let exposed = credentials(dir.path(), "right", 0o644);
+
+    let f = termvel(&["follow", &url, "--headless", "--for", "5s", "--credentials", &wrong]);
+    assert_eq!(f.status.code(), Some(1), "{}", stderr(&f));
+    assert!(stderr(&f).contains("refused the username or password"), "{}", stderr(&f));
+    assert!(!stderr(&f).contains("wrong"), "the password is not repeated: {}", stderr(&f));
+
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--as-fast-as-possible",
+        "--no-record",
+        "--share",
+        &url,
+        "--share-credentials",
+        &wrong,
+    ]);
+    assert_eq!(run.status.code(), Some(0), "{}", stderr(&run));
+    assert!(stderr(&run).contains("share link down"), "{}", stderr(&run));
+    assert!(stderr(&run).contains("refused the username or password"), "{}", stderr(&run));
+
+    let run = termvel(&["rehearse", "--headless", "--no-record", "--share", &url, "--share-credentials", &exposed]);
+    assert_eq!(run.status.code(), Some(2), "{}", stderr(&run));
+    assert!(stderr(&run).contains("can be read by others"), "{}", stderr(&run));
+    assert!(stdout(&run).is_empty(), "nothing ran");
+
+    let ok = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["rehearse", "--headless", "--as-fast-as-possible", "--no-record", "--share", &url])
+        .env("TERMVEL_SHARE_USERNAME", "pit")
+        .env("TERMVEL_SHARE_PASSWORD", "right")
+        .current_dir(root())
+        .output()
+        .unwrap();
+    assert!(ok.status.success(), "{}", stderr(&ok));
+    let summary = parse_lines(&stdout(&ok)).pop().unwrap();
+    assert_eq!(summary["share"]["connections"], 1, "{}", summary["share"]);
+}
+
+// Issue 16, item 5 (part): the broker killed and started again during a
+// run: the reading station says the link is down, records every event,
+// says it is up again and republishes the retained description, so a
+// follower that joins after the restart can draw.
+#[test]
+fn a_broker_killed_and_restarted_mid_run() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let dir = tempfile::tempdir().unwrap();
+    let rec_dir = dir.path().to_string_lossy().into_owned();
+    let mut run = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["rehearse", "--headless", "--speed", "8", "--record-dir", &rec_dir, "--share", &url])
+        .args(["--share-topic", "pit/restart"])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let err = BufReader::new(run.stderr.take().unwrap());
+    let (tx, err_lines) = mpsc::channel();
+    std::thread::spawn(move || {
+        for l in err.lines().map_while(Result::ok) {
+            let _ = tx.send((Instant::now(), l));
+        }
+    });
+    let out = run.stdout.take().unwrap();
+    let out = std::thread::spawn(move || std::io::read_to_string(out).unwrap());
+    std::thread::sleep(Duration::from_secs(3));
+    let killed_at = Instant::now();
+    let stopped = broker.kill();
+    std::thread::sleep(Duration::from_secs(2));
+    let broker = Broker::restart(stopped);
+    let restarted_at = Instant::now();
+    let late = Follower::start(&url, "pit/restart", &["--for", "3s"]);
+    let got = late.finish(Duration::from_secs(20));
+    assert!(run.wait().unwrap().success());
+    let stdout = out.join().unwrap();
+    let lines: Vec<(Instant, String)> = err_lines.try_iter().collect();
+    let said = |what: &str| lines.iter().find(|(_, l)| l.contains(what)).map(|(t, _)| *t);
+    let down = said("share link down").expect("the link was said down");
+    let up = said("share link up again").expect("the link was said up again");
+    eprintln!(
+        "link down said {:?} after the kill; up again {:?} after the restart",
+        down.saturating_duration_since(killed_at),
+        up.saturating_duration_since(restarted_at)
+    );
+    assert!(down.saturating_duration_since(killed_at) < Duration::from_secs(1), "down within 1 s");
+    assert!(up.saturating_duration_since(restarted_at) < Duration::from_secs(3), "up again within 3 s");
+    assert!(got.iter().any(|v| kind_of(v) == "description"), "the description republished after the restart");
+    let summary = parse_lines(&stdout).pop().unwrap();
+    let share = &summary["share"];
+    assert_eq!(share["connections"], 2, "{share}");
+    assert!(share["snapshots_dropped_down"].as_u64().unwrap() > 0, "{share}");
+    let recording = std::fs::read_dir(dir.path()).unwrap().next().unwrap().unwrap().path();
+    let recorded = input_lines(&recording).len() as u64;
+    assert_eq!(recorded, summary["summary"]["events"].as_u64().unwrap(), "every event recorded");
+    drop(broker);
 }
