@@ -12,6 +12,9 @@ use super::credentials::Credentials;
 pub const MQTT_PORT: u16 = 1883;
 pub const MQTTS_PORT: u16 = 8883;
 
+/// The largest MQTT packet read from the broker (see [`BrokerUrl::options`]).
+pub const MAX_INCOMING_PACKET: usize = 64 << 20;
+
 /// Why a broker URL or its TLS files are not usable.
 #[derive(Debug, thiserror::Error, PartialEq)]
 pub enum BrokerError {
@@ -98,8 +101,10 @@ impl BrokerUrl {
         let mut o = MqttOptions::new(client_id, self.host.clone(), self.port);
         o.set_keep_alive(Duration::from_secs(5));
         o.set_clean_session(true);
-        // Snapshots carry every channel: allow large payloads both ways.
-        o.set_max_packet_size(super::payload::MAX_PAYLOAD_BYTES + 4096, super::payload::MAX_PAYLOAD_BYTES + 4096);
+        // Incoming: far above what termvel accepts, so an oversized message
+        // is refused and counted by the payload check rather than breaking
+        // the connection (a retained one would break every reconnection).
+        o.set_max_packet_size(MAX_INCOMING_PACKET, super::payload::MAX_PAYLOAD_BYTES + 4096);
         o.set_inflight(100);
         o.set_request_channel_capacity(64);
         if let Some(c) = credentials {

@@ -460,3 +460,62 @@ fn a_broker_killed_and_restarted_mid_run() {
     assert_eq!(recorded, summary["summary"]["events"].as_u64().unwrap(), "every event recorded");
     drop(broker);
 }
+
+// Issue 16, item 2: hostile messages on a shared run's topics (not JSON, a
+// wrong schema, an unknown kind, an escape sequence, over the size limit)
+// are refused, counted and named on stderr; the follower neither prints
+// them nor stops, and takes the good message after them.
+#[test]
+fn a_follower_refuses_hostile_messages() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let mut follower = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["follow", &broker.url(), "--topic", "pit/x", "--headless", "--for", "4s"])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let (tx, err_lines) = mpsc::channel();
+    let err = BufReader::new(follower.stderr.take().unwrap());
+    std::thread::spawn(move || {
+        for l in err.lines().map_while(Result::ok) {
+            let _ = tx.send(l);
+        }
+    });
+    let first = err_lines.recv_timeout(Duration::from_secs(20)).expect("the follower subscribed");
+    assert!(first.contains("termvel: following"), "{first}");
+    let dir = tempfile::tempdir().unwrap();
+    let big = dir.path().join("big.json");
+    std::fs::write(&big, format!("{{\"schema\":1,\"kind\":\"status\",\"state\":\"{}\"}}", "x".repeat(2 << 20)))
+        .unwrap();
+    let port = broker.port.to_string();
+    let publish = |args: &[&str]| {
+        let ok = Command::new("mosquitto_pub")
+            .args(["-h", "127.0.0.1", "-p", &port, "-q", "1", "-t", "pit/x/snapshot"])
+            .args(args)
+            .status()
+            .expect("mosquitto_pub runs (mosquitto-clients)");
+        assert!(ok.success());
+    };
+    publish(&["-m", "not json"]);
+    publish(&["-m", r#"{"schema":2,"kind":"status","state":"online"}"#]);
+    publish(&["-m", r#"{"schema":1,"kind":"rm -rf","state":"online"}"#]);
+    publish(&["-m", r#"{"schema":1,"kind":"status","state":"\u001b[2Jowned"}"#]);
+    publish(&["-f", big.to_str().unwrap()]);
+    publish(&["-m", r#"{"schema":1,"kind":"status","state":"online"}"#]);
+    let out = follower.wait_with_output().unwrap();
+    let err: String = err_lines.iter().map(|l| l + "\n").collect();
+    assert!(out.status.success(), "{err}");
+    let lines = parse_lines(&stdout(&out));
+    let (summary, shown) = lines.split_last().unwrap();
+    assert_eq!(shown.len(), 1, "only the good message is shown: {shown:?}");
+    assert_eq!(shown[0]["state"], "online");
+    let f = &summary["summary"]["follow"];
+    assert_eq!(f["refused"], 5, "{f}");
+    assert_eq!(f["link_losses"], 0, "an oversized message does not break the link: {f}");
+    for why in ["not a JSON object", "schema 2", "kind \"rm -rf\"", "control character", "over the limit"] {
+        assert!(err.contains(why), "{why}: {err}");
+    }
+    assert!(!err.contains('\u{1b}'), "no escape reaches the terminal");
+}
