@@ -629,3 +629,125 @@ pub fn describe(e: &ConnectionError) -> String {
         other => other.to_string(),
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::config::alerts::Severity;
+    use crate::engine::{Counters, Derived};
+
+    fn tap(events_on: bool) -> (ShareTap, mpsc::Receiver<Message>, Arc<DropOldest<Arc<Snapshot>>>) {
+        let snapshots = DropOldest::new(2);
+        let (tx, rx) = mpsc::channel(64);
+        let tap = ShareTap {
+            snapshots: snapshots.clone(),
+            messages: tx,
+            stats: Arc::new(ShareStats::default()),
+            alerts: Vec::new(),
+            marks: 0,
+            health_at: None,
+            links: Vec::new(),
+            events_on,
+            batch: Vec::new(),
+            batch_sources: SourceTable::default(),
+            batches: 0,
+            batched_events: 0,
+        };
+        (tap, rx, snapshots)
+    }
+
+    fn snap(t_s: i64, alerts: Vec<Alert>) -> Arc<Snapshot> {
+        Arc::new(Snapshot {
+            t_ns: t_s * NS_PER_S,
+            channels: Vec::new(),
+            sources: Vec::new(),
+            counters: Counters::default(),
+            derived: Derived::default(),
+            alerts,
+            marks: 0,
+        })
+    }
+
+    fn alert(key: &str, raised_s: i64, active: bool, acked: bool) -> Alert {
+        Alert {
+            key: key.into(),
+            severity: Severity::Caution,
+            message: format!("{key} message"),
+            raised_ns: raised_s * NS_PER_S,
+            active,
+            acked,
+        }
+    }
+
+    fn changes(rx: &mut mpsc::Receiver<Message>) -> Vec<(String, &'static str)> {
+        std::iter::from_fn(|| rx.try_recv().ok())
+            .filter_map(|m| match m {
+                Message::AlertChange(_, c, a) => Some((a.key, c)),
+                _ => None,
+            })
+            .collect()
+    }
+
+    // Issue 16, item 1: every change of an alert is published once, found
+    // by comparing each snapshot's alerts with the one before.
+    #[test]
+    fn alert_changes_are_found_between_snapshots() {
+        let (mut tap, mut rx, _q) = tap(false);
+        tap.offer(&snap(1, vec![alert("target", 1, true, false)]));
+        assert_eq!(changes(&mut rx), vec![("target".into(), "raised")]);
+        tap.offer(&snap(2, vec![alert("target", 1, true, false)]));
+        assert_eq!(changes(&mut rx), vec![], "no change, no message");
+        tap.offer(&snap(3, vec![alert("target", 1, true, true)]));
+        assert_eq!(changes(&mut rx), vec![("target".into(), "acked")]);
+        tap.offer(&snap(4, vec![alert("derating", 4, true, false), alert("target", 1, false, true)]));
+        assert_eq!(changes(&mut rx), vec![("derating".into(), "raised"), ("target".into(), "cleared")]);
+        tap.offer(&snap(5, vec![alert("derating", 4, true, false)]));
+        assert_eq!(changes(&mut rx), vec![("target".into(), "gone")]);
+        tap.offer(&snap(6, vec![alert("derating", 6, true, false)]));
+        assert_eq!(changes(&mut rx), vec![("derating".into(), "raised")], "raised again");
+    }
+
+    // Issue 16, item 1: a publisher that does not keep up never makes the
+    // driver wait: the oldest waiting snapshot is dropped and counted.
+    #[test]
+    fn a_full_snapshot_queue_drops_the_oldest_and_counts_it() {
+        let (mut tap, _rx, q) = tap(false);
+        for t in 1..=5 {
+            tap.offer(&snap(t, Vec::new()));
+        }
+        assert_eq!(tap.stats.snapshots.load(Ordering::Relaxed), 5);
+        assert_eq!(tap.stats.snapshots_dropped_slow.load(Ordering::Relaxed), 3);
+        drop(tap);
+        let rt = tokio::runtime::Builder::new_current_thread().build().unwrap();
+        let left: Vec<TimeNs> = rt.block_on(async {
+            let mut v = Vec::new();
+            while let Some(s) = q.pop().await {
+                v.push(s.t_ns / NS_PER_S);
+            }
+            v
+        });
+        assert_eq!(left, vec![4, 5], "the newest wait; the queue closes with the tap");
+    }
+
+    // Issue 16, item 2: raw events go in batches of 100 ms of stream time,
+    // numbered, each saying how many events came before it; the last
+    // partial batch goes when the tap is dropped; engine notes are not input.
+    #[test]
+    fn events_are_batched_by_stream_time() {
+        use crate::event::{Event, Payload, SESSION};
+        let (mut tap, mut rx, _q) = tap(true);
+        let sources = SourceTable::default();
+        for ms in [0, 50, 99, 100, 150, 260] {
+            tap.event(&Event::new(ms * 1_000_000, SESSION, Payload::Tick), &sources);
+        }
+        tap.event(&Event::new(270_000_000, SESSION, Payload::Note("engine's own".into())), &sources);
+        drop(tap);
+        let batches: Vec<(u64, u64, usize)> = std::iter::from_fn(|| rx.try_recv().ok())
+            .filter_map(|m| match m {
+                Message::Events { seq, before, events, .. } => Some((seq, before, events.len())),
+                _ => None,
+            })
+            .collect();
+        assert_eq!(batches, vec![(1, 0, 3), (2, 3, 2), (3, 5, 1)]);
+    }
+}
