@@ -59,7 +59,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
-    let (tap, publisher) = match super::sharing::start(&args.run, "live", &config) {
+    let (tap, publisher) = match super::sharing::start(&args.run, "live", &config, &sources) {
         Ok(s) => s,
         Err(reason) => return super::unusable(reason),
     };

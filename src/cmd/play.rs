@@ -38,7 +38,7 @@ pub struct PlaySpec {
 
 /// Runs `src` to its end (headless) or until the user quits (screens).
 pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<ExitCode> {
-    let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config) {
+    let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(s) => s,
         Err(reason) => return super::unusable(reason),
     };

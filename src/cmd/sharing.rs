@@ -5,6 +5,7 @@ use serde_json::Value;
 
 use crate::cli::RunOpts;
 use crate::config::ConfigSet;
+use crate::event::SourceTable;
 use crate::share::payload::{self, RunDescription};
 use crate::share::publisher::{Publisher, ShareTap, unix_ns};
 use crate::share::{BrokerUrl, Credentials, ShareSettings, Topics};
@@ -16,6 +17,7 @@ pub fn start(
     run: &RunOpts,
     command: &str,
     config: &ConfigSet,
+    sources: &SourceTable,
 ) -> Result<(Option<ShareTap>, Option<Publisher>), String> {
     let Some(url) = &run.share.share else { return Ok((None, None)) };
     let url = BrokerUrl::parse(url).map_err(|e| e.to_string())?;
@@ -26,6 +28,7 @@ pub fn start(
         command,
         started_unix_ns: unix_ns(),
         snapshot_every_ns: run.every,
+        sources,
     });
     let settings = ShareSettings {
         url: url.clone(),

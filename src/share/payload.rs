@@ -88,6 +88,8 @@ pub struct RunDescription<'a> {
     pub started_unix_ns: i64,
     /// Stream time between snapshots.
     pub snapshot_every_ns: TimeNs,
+    /// The run's sources, in id order (the names the event lines use).
+    pub sources: &'a crate::event::SourceTable,
 }
 
 /// The retained description of the run.
@@ -124,6 +126,7 @@ pub fn description(d: &RunDescription) -> Value {
             "track": c.track.name,
             "signal_map": { "bitrate": c.signals.bitrate, "messages": messages },
             "config": texts,
+            "sources": d.sources.iter().map(|(id, s)| json!({ "id": id.0, "name": s.name, "kind": s.kind.as_str() })).collect::<Vec<_>>(),
         })),
     )
 }
@@ -284,7 +287,9 @@ mod tests {
             command: "rehearse",
             started_unix_ns: 1_700_000_000_000_000_000,
             snapshot_every_ns: 100_000_000,
+            sources: &crate::event::SourceTable::default(),
         });
+        assert_eq!(d["sources"][0]["kind"], "operator", "the operator and the session are always sources 0 and 1");
         assert_eq!(d["started_utc"], "2023-11-14T22:13:20Z");
         assert_eq!(d["vehicle"], config.vehicle.name.as_str());
         assert!(d["config"].as_array().is_some_and(|a| a.len() == config.texts.len()));

@@ -222,6 +222,8 @@ fn a_shared_rehearsal_reaches_a_follower_and_a_late_one_gets_the_description() {
     assert_eq!(d["vehicle"], config.vehicle.name.as_str());
     assert_eq!(d["track"], config.track.name.as_str());
     assert!(d["signal_map"]["messages"].as_array().is_some_and(|m| !m.is_empty()));
+    let sources: Vec<&str> = d["sources"].as_array().unwrap().iter().filter_map(|s| s["name"].as_str()).collect();
+    assert!(sources.contains(&"can0"), "the sources the event lines name: {sources:?}");
     let status = got.iter().find(|v| kind_of(v) == "status").expect("the retained status");
     assert_eq!(status["state"], "ended");
     assert!(got.iter().any(|v| kind_of(v) == "alerts"), "the retained alert state");
