@@ -40,6 +40,8 @@ pub enum Command {
     Check(CheckArgs),
     /// Write the man pages and the bash, zsh and fish completions into a directory.
     ShellFiles(ShellFilesArgs),
+    /// Follow a run shared through an MQTT broker (`--share` on the reading station).
+    Follow(FollowArgs),
 }
 
 #[derive(Args, Debug)]
@@ -110,12 +112,64 @@ pub struct RunOpts {
     /// Config files or directories to use instead of the recording's own (or the built-in demo set).
     #[arg(long = "config", short = 'c', value_name = "PATH")]
     pub config: Vec<PathBuf>,
+    #[command(flatten)]
+    pub share: ShareOpts,
 }
 
 impl Default for RunOpts {
     fn default() -> Self {
-        RunOpts { headless: false, every: 100_000_000, no_record: false, record_dir: None, config: Vec::new() }
+        RunOpts {
+            headless: false,
+            every: 100_000_000,
+            no_record: false,
+            record_dir: None,
+            config: Vec::new(),
+            share: ShareOpts::default(),
+        }
     }
+}
+
+/// Sharing a run through an MQTT broker (off unless `--share` is given:
+/// termvel opens no network connection unless asked).
+#[derive(Args, Debug, Clone, Default)]
+pub struct ShareOpts {
+    /// Share this run through an MQTT broker: mqtt://HOST[:PORT], or mqtts://HOST[:PORT] for TLS. Credentials come from --share-credentials or the environment, never the URL.
+    #[arg(long, value_name = "URL")]
+    pub share: Option<String>,
+    /// Topic prefix of the shared run.
+    #[arg(long, value_name = "PREFIX", default_value = "termvel", requires = "share")]
+    pub share_topic: String,
+    /// Broker credentials: a TOML file (username = "…", password = "…") readable by you only. Default: TERMVEL_SHARE_USERNAME and TERMVEL_SHARE_PASSWORD.
+    #[arg(long, value_name = "FILE", requires = "share")]
+    pub share_credentials: Option<PathBuf>,
+    /// CA certificate (PEM) that signed the broker's, for mqtts:// (default: the system's).
+    #[arg(long, value_name = "FILE", requires = "share")]
+    pub share_ca: Option<PathBuf>,
+    /// Also share the raw events, in batches every 100 ms of stream time, so another station can keep a full recording.
+    #[arg(long, requires = "share")]
+    pub share_events: bool,
+}
+
+#[derive(Args, Debug)]
+pub struct FollowArgs {
+    /// The broker: mqtt://HOST[:PORT] or mqtts://HOST[:PORT].
+    #[arg(value_name = "URL")]
+    pub url: String,
+    /// Topic prefix of the shared run.
+    #[arg(long, value_name = "PREFIX", default_value = "termvel")]
+    pub topic: String,
+    /// Print every message received as a JSON line (the only way to follow, for now).
+    #[arg(long)]
+    pub headless: bool,
+    /// Stop after this long (e.g. 90s, 10min); default: until the run ends or Ctrl-C.
+    #[arg(long = "for", value_name = "DURATION", value_parser = parse_session_length)]
+    pub for_ns: Option<TimeNs>,
+    /// Broker credentials: a TOML file (username = "…", password = "…") readable by you only. Default: TERMVEL_SHARE_USERNAME and TERMVEL_SHARE_PASSWORD.
+    #[arg(long, value_name = "FILE")]
+    pub credentials: Option<PathBuf>,
+    /// CA certificate (PEM) that signed the broker's, for mqtts://.
+    #[arg(long, value_name = "FILE")]
+    pub ca: Option<PathBuf>,
 }
 
 #[derive(Args, Debug)]

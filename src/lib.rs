@@ -69,6 +69,7 @@ pub mod planner;
 pub mod printable;
 pub mod record;
 pub mod report;
+pub mod share;
 pub mod sim;
 pub mod sources;
 pub mod stream;

@@ -30,6 +30,8 @@
 //! - `screens`: every screen drawn at 80×24 and 160×48 (insta snapshots).
 //! - `tui`: termvel in a real terminal (tmux): keys, screens, signals,
 //!   resizing, and the recording afterwards.
+//! - `share`: sharing a run through a real MQTT broker (mosquitto on a
+//!   free loopback port): followers, a late joiner, an absent broker.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
 //!   files without lines, CRLF, escapes on output, long config lines.
@@ -75,6 +77,8 @@ mod rehearsal;
 mod report;
 #[path = "suite/screens.rs"]
 mod screens;
+#[path = "suite/share.rs"]
+mod share;
 #[path = "suite/signals.rs"]
 mod signals;
 #[path = "suite/time_and_format.rs"]

@@ -12,6 +12,7 @@ use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
 use crate::event::{CanId, SourceKind, SourceTable};
 use crate::headless::Summary;
+use crate::share::ShareSink;
 use crate::sources::link::{INPUT_CAPACITY, SessionClock};
 use crate::sources::{serial_port, socketcan};
 use crate::stream::realtime::{self, LiveOptions, LiveOutcome};
@@ -58,6 +59,10 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
+    let (tap, publisher) = match super::sharing::start(&args.run, "live", &config, &sources) {
+        Ok(s) => s,
+        Err(reason) => return super::unusable(reason),
+    };
     let recorder = match start_recording(&args.run, "live", &config, &sources) {
         Ok(r) => r,
         Err(reason) => return super::unusable(reason),
@@ -101,20 +106,25 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             });
             let stdout = std::io::stdout();
             let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
-            let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut printer).await;
-            drop(ctl_tx);
+            let mut sink = ShareSink::new(&mut printer, tap);
+            let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut sink).await;
+            drop((sink, ctl_tx));
             let mut summary = Summary::from_counters(&out.engine.snapshot_at(out.engine.now_ns().unwrap_or(0), &sources).counters);
             summary.snapshots = printer.snapshots();
             summary.recording = super::recording_summary(&out.recording);
             let mut json = summary.json();
             json["live"] = realtime::figures(&out, &latency);
+            if let Some(share) = super::sharing::finish(publisher) {
+                json["share"] = share;
+            }
             printer.finish_json(&json);
             (out, printer.take_error())
         } else {
             let (frames_tx, frames_rx) = watch::channel(None);
             let (done_tx, done_rx) = oneshot::channel();
             let task = tokio::spawn(async move {
-                let mut sink = UiSink::new(frames_tx);
+                let mut ui = UiSink::new(frames_tx);
+                let mut sink = ShareSink::new(&mut ui, tap);
                 let out = realtime::run(live, rx, ctl_rx, stop_tx, &mut sink).await;
                 let _ = done_tx.send(());
                 out
@@ -124,7 +134,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 Ok(stats) => crate::say!("{}", stats.line()),
                 Err(e) => tracing::error!("screen: {e}"),
             }
-            (task.await.expect("the pipeline task"), None)
+            let out = task.await.expect("the pipeline task");
+            super::sharing::finish(publisher);
+            (out, None)
         }
     });
     crate::say!(

@@ -19,12 +19,14 @@
 pub mod check;
 pub mod envelope;
 pub mod export;
+pub mod follow;
 pub mod live;
 pub mod plan;
 pub mod play;
 pub mod rehearse;
 pub mod replay;
 pub mod report;
+pub mod sharing;
 pub mod shell_files;
 
 use std::fs::File;
@@ -55,6 +57,7 @@ pub fn dispatch(cli: Cli) -> ExitCode {
         Some(Command::Export(a)) => export::run(a),
         Some(Command::Plan(a)) => plan::run(a),
         Some(Command::Envelope(a)) => envelope::run(a),
+        Some(Command::Follow(a)) => follow::run(a),
     };
     let code = match result {
         Ok(code) => code,

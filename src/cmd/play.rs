@@ -14,6 +14,7 @@ use crate::cli::RunOpts;
 use crate::config::ConfigSet;
 use crate::engine::{Engine, EngineOptions};
 use crate::headless::Summary;
+use crate::share::ShareSink;
 use crate::sources::EventSource;
 use crate::stream::paced::{self, PlayerOptions, PlayerOutcome, SharedHistory};
 use crate::stream::{JsonPrinter, latency_histogram};
@@ -47,6 +48,10 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         }
         return super::unusable(e);
     }
+    let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config, src.sources()) {
+        Ok(s) => s,
+        Err(reason) => return super::unusable(reason),
+    };
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(r) => r,
         Err(reason) => return super::unusable(reason),
@@ -69,8 +74,14 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().build()?;
         let (_tx, rx) = mpsc::channel(16);
-        let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut printer))?;
-        printer.finish_json(&summary_json(&outcome));
+        let mut sink = ShareSink::new(&mut printer, tap);
+        let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut sink))?;
+        drop(sink);
+        let mut summary = summary_json(&outcome);
+        if let Some(share) = super::sharing::finish(publisher) {
+            summary["share"] = share;
+        }
+        printer.finish_json(&summary);
         let out_error = printer.take_error();
         drop(printer);
         let code = finish(&spec, &outcome)?;
@@ -103,7 +114,8 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     app.history = Some(history);
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
-            let mut sink = UiSink::new(frames_tx);
+            let mut ui = UiSink::new(frames_tx);
+            let mut sink = ShareSink::new(&mut ui, tap);
             let r = paced::play(src, make_engine, popts, ctl_rx, &mut sink).await;
             let _ = done_tx.send(());
             r
@@ -113,6 +125,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         (ui_result, outcome)
     });
     let (ui_result, outcome) = outcome;
+    super::sharing::finish(publisher);
     crate::say!("{}", ui_result?.line());
     match outcome {
         Ok(Ok(Ok(o))) => finish(&spec, &o),

@@ -372,6 +372,9 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         };
         let mut out = std::mem::take(&mut self.out);
         self.pipe.step(&ev, self.src.sources(), pass, &mut out);
+        if pass == Pass::First {
+            self.sink.event(&ev, self.src.sources());
+        }
         let seq = self.seq;
         for (_, op) in self.operator_events.iter().filter(|(s, _)| *s == seq) {
             self.pipe.step(op, self.src.sources(), Pass::Again, &mut out);
@@ -567,6 +570,9 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
         self.pipe.step(&ev, self.src.sources(), pass, &mut out);
         if behind && self.pipe.status.recording.is_some() {
             self.record_behind(&ev);
+        }
+        if !behind {
+            self.sink.event(&ev, self.src.sources());
         }
         // Checkpoints further on were taken without this event.
         let seq = self.seq;

@@ -64,6 +64,7 @@ impl<K: SnapshotSink> State<'_, K> {
         self.events += 1;
         let arrival = ev.t_ns;
         self.pipe.step(&ev, &self.sources, Pass::First, &mut self.snaps);
+        self.sink.event(&ev, &self.sources);
         if ev.source != SESSION
             && ev.source != OPERATOR
             && let Some(h) = &self.latency

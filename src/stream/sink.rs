@@ -6,7 +6,7 @@ use std::path::PathBuf;
 use std::sync::Arc;
 
 use crate::engine::Snapshot;
-use crate::event::TimeNs;
+use crate::event::{Event, SourceTable, TimeNs};
 
 /// Where a running stream is.
 #[derive(Clone, Debug, PartialEq)]
@@ -66,6 +66,10 @@ pub trait SnapshotSink {
     fn snapshot(&mut self, snap: Arc<Snapshot>, status: &StreamStatus);
     /// Status changed without a new snapshot (pause, speed).
     fn status(&mut self, _status: &StreamStatus) {}
+    /// An event the stream takes for the first time (not again after a
+    /// seek back), after the engine and the recorder have it: a tap for
+    /// sharing the raw events. Must not wait.
+    fn event(&mut self, _ev: &Event, _sources: &SourceTable) {}
 }
 
 impl<F: FnMut(Arc<Snapshot>, &StreamStatus)> SnapshotSink for F {

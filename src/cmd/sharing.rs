@@ -1,0 +1,55 @@
+//! `--share`: from the options to a running publisher, and its closing
+//! line and summary block. The publishing itself is in [`crate::share`].
+
+use serde_json::Value;
+
+use crate::cli::RunOpts;
+use crate::config::ConfigSet;
+use crate::event::SourceTable;
+use crate::share::payload::{self, RunDescription};
+use crate::share::publisher::{Publisher, ShareTap, unix_ns};
+use crate::share::{BrokerUrl, Credentials, ShareSettings, Topics};
+
+/// Starts publishing when `--share` is given (`None` when not); `Err` is
+/// the one-line reason the options are unusable. An absent broker is not
+/// an error: the run goes on and the link shows down.
+pub fn start(
+    run: &RunOpts,
+    command: &str,
+    config: &ConfigSet,
+    sources: &SourceTable,
+) -> Result<(Option<ShareTap>, Option<Publisher>), String> {
+    let Some(url) = &run.share.share else { return Ok((None, None)) };
+    let url = BrokerUrl::parse(url).map_err(|e| e.to_string())?;
+    let topics = Topics::new(&run.share.share_topic).map_err(|e| e.to_string())?;
+    let credentials = Credentials::load(run.share.share_credentials.as_deref()).map_err(|e| e.to_string())?;
+    let description = payload::description(&RunDescription {
+        config,
+        command,
+        started_unix_ns: unix_ns(),
+        snapshot_every_ns: run.every,
+        sources,
+    });
+    let settings = ShareSettings {
+        url: url.clone(),
+        topics: topics.clone(),
+        credentials,
+        ca: run.share.share_ca.clone(),
+        description,
+        say_on_stderr: run.headless,
+        events: run.share.share_events,
+    };
+    let (tap, publisher) = Publisher::start(settings).map_err(|e| e.to_string())?;
+    crate::say!("termvel: sharing to {} under {}/", url.display(), topics.prefix());
+    Ok((Some(tap), Some(publisher)))
+}
+
+/// Waits for the publisher to drain, says what was shared on stderr, and
+/// gives the summary's `share` block. The tap must be dropped first.
+pub fn finish(publisher: Option<Publisher>) -> Option<Value> {
+    let p = publisher?;
+    let (url, topics) = (p.url.clone(), p.topics.clone());
+    let stats = p.finish();
+    crate::say!("{}", stats.line(&url));
+    Some(stats.json(&url, &topics))
+}

@@ -1,0 +1,163 @@
+//! Following a shared run: subscribe to every topic under the prefix,
+//! check each message ([`payload::check`]) and hand on what passes. The
+//! command (`termvel follow`) prints or draws it; this counts what came,
+//! what was refused and how late the snapshots were.
+
+use std::future::Future;
+use std::time::Duration;
+
+use rumqttc::{AsyncClient, ConnectionError, Event, Packet, QoS};
+use serde_json::{Value, json};
+
+use super::broker::{BrokerError, BrokerUrl};
+use super::credentials::Credentials;
+use super::payload::{self, Kind};
+use super::publisher::{BACKOFF_FIRST, BACKOFF_MAX, describe, unix_ns};
+use super::topics::Topics;
+
+/// Why following stopped with an error.
+#[derive(Debug, thiserror::Error)]
+pub enum FollowError {
+    /// The broker's options (URL, TLS files).
+    #[error(transparent)]
+    Broker(#[from] BrokerError),
+    /// The broker refused us (username, password, certificate): retrying
+    /// would not help.
+    #[error("{url}: {why}")]
+    Refused { url: String, why: String },
+}
+
+/// What to follow.
+pub struct FollowSettings {
+    pub url: BrokerUrl,
+    pub topics: Topics,
+    pub credentials: Option<Credentials>,
+    pub ca: Option<std::path::PathBuf>,
+    /// Say link changes on stderr.
+    pub say_on_stderr: bool,
+}
+
+/// One accepted message.
+pub struct Received<'a> {
+    pub kind: Kind,
+    pub value: &'a Value,
+    /// Delivered from the broker's store on subscribing (not live).
+    pub retained: bool,
+}
+
+/// What a follower saw.
+#[derive(Debug, Default)]
+pub struct FollowReport {
+    /// Accepted messages, by kind.
+    pub by_kind: std::collections::BTreeMap<&'static str, u64>,
+    /// Messages refused (size, JSON, schema, kind, control characters).
+    pub refused: u64,
+    /// The first refusals' reasons.
+    pub refusals: Vec<String>,
+    /// Times the link was lost.
+    pub link_losses: u64,
+    /// The publisher said the run ended.
+    pub ended: bool,
+    /// Publish-to-receive latency of snapshots, µs (wall clocks of both ends).
+    pub latency_us: Vec<u64>,
+}
+
+impl FollowReport {
+    pub fn json(&self) -> Value {
+        let mut lat = self.latency_us.clone();
+        lat.sort_unstable();
+        let q = |p: f64| lat.get(((lat.len() as f64 - 1.0) * p).round() as usize).copied();
+        json!({
+            "messages": self.by_kind,
+            "refused": self.refused,
+            "link_losses": self.link_losses,
+            "ended": self.ended,
+            "latency_us": if lat.is_empty() { Value::Null } else {
+                json!({ "count": lat.len(), "p50": q(0.5), "p99": q(0.99), "max": lat.last() })
+            },
+        })
+    }
+}
+
+/// Follows until `stop` resolves or the publisher says (live, not from the
+/// store) that the run ended. `ready` is called once subscribed.
+pub async fn follow(
+    settings: FollowSettings,
+    mut ready: impl FnMut(),
+    mut on_message: impl FnMut(Received<'_>),
+    stop: impl Future<Output = ()>,
+) -> Result<FollowReport, FollowError> {
+    let client_id = format!("termvel-follow-{}", std::process::id());
+    let options = settings.url.options(&client_id, settings.credentials.as_ref(), settings.ca.as_deref())?;
+    let (client, mut eventloop) = AsyncClient::new(options, 16);
+    eventloop.set_network_options(super::broker::network_options());
+    let mut report = FollowReport::default();
+    let mut backoff = BACKOFF_FIRST;
+    let mut ever_connected = false;
+    let mut told_ready = false;
+    tokio::pin!(stop);
+    loop {
+        let ev = tokio::select! {
+            _ = &mut stop => break,
+            ev = eventloop.poll() => ev,
+        };
+        match ev {
+            Ok(Event::Incoming(Packet::ConnAck(_))) => {
+                backoff = BACKOFF_FIRST;
+                if ever_connected && settings.say_on_stderr {
+                    crate::say!("termvel: follow link up again ({})", settings.url.display());
+                }
+                ever_connected = true;
+                // Clean sessions: subscribe on every connection.
+                let _ = client.try_subscribe(settings.topics.all(), QoS::AtLeastOnce);
+            }
+            Ok(Event::Incoming(Packet::SubAck(_))) => {
+                if !told_ready {
+                    told_ready = true;
+                    ready();
+                }
+            }
+            Ok(Event::Incoming(Packet::Publish(p))) => match payload::check(&p.payload) {
+                Ok((kind, value)) => {
+                    *report.by_kind.entry(kind.as_str()).or_default() += 1;
+                    if kind == Kind::Snapshot
+                        && let Some(sent) = value.get("sent_unix_ns").and_then(Value::as_i64)
+                    {
+                        report.latency_us.push(((unix_ns() - sent).max(0) / 1000) as u64);
+                    }
+                    let ended = kind == Kind::Status && !p.retain && value["state"] == "ended";
+                    on_message(Received { kind, value: &value, retained: p.retain });
+                    if ended {
+                        report.ended = true;
+                        break;
+                    }
+                }
+                Err(e) => {
+                    report.refused += 1;
+                    if report.refusals.len() < 10 {
+                        report.refusals.push(format!("{}: {e}", crate::printable::printable(&p.topic)));
+                    }
+                }
+            },
+            Ok(_) => {}
+            Err(e) => {
+                let why = describe(&e);
+                if let ConnectionError::ConnectionRefused(_) = e {
+                    return Err(FollowError::Refused { url: settings.url.display(), why });
+                }
+                report.link_losses += 1;
+                if settings.say_on_stderr {
+                    crate::say!("termvel: follow link down ({}: {why}); retrying", settings.url.display());
+                }
+                tokio::select! {
+                    _ = &mut stop => break,
+                    _ = tokio::time::sleep(backoff) => {}
+                }
+                backoff = (backoff * 2).min(BACKOFF_MAX);
+            }
+        }
+    }
+    let _ = client.try_disconnect();
+    let _ = tokio::time::timeout(Duration::from_millis(200), eventloop.poll()).await;
+    Ok(report)
+}
