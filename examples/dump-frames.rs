@@ -7,11 +7,10 @@
 //! Frame keys: file, line, ordinal, t_ns, iface, kind (data, remote, error,
 //! fd), id, extended, data (hex); dlc for remote frames, flags for FD frames.
 //! An error frame's id is its class (the identifier without 0x20000000).
-//! `line` is the reader's own count: for a candump log (no header) every
-//! line goes through `stats.lines`, so after `next_event` returns a frame
-//! that count is the frame's 1-based line number. A termvel recording's
-//! header lines are not counted there, so for recordings `line` is null and
-//! `ordinal` (1-based, among all events) identifies the frame.
+//! `line` is the 1-based line of a candump log the frame came from
+//! (`RecordingReader::last_event_line`: frames may leave the reader's
+//! time-order stage some lines after they were read). For recordings `line`
+//! is null and `ordinal` (1-based, among all events) identifies the frame.
 
 use std::io::Write;
 use std::path::Path;
@@ -49,7 +48,7 @@ fn main() -> ExitCode {
         while let Some(ev) = reader.next_event() {
             ordinal += 1;
             let Payload::Can(frame) = ev.payload else { continue };
-            let line = counts_lines.then_some(reader.stats.lines);
+            let line = counts_lines.then_some(reader.last_event_line());
             let iface = reader.header.sources.name(ev.source);
             let mut obj = json!({
                 "file": file, "line": line, "ordinal": ordinal, "t_ns": ev.t_ns, "iface": iface,

@@ -219,6 +219,9 @@ pub struct RecordingReader<R: Read> {
     skipping: bool,
     /// No line end seen yet, anywhere in the input.
     no_line_yet: bool,
+    /// The line of the event last handed out (events may leave the
+    /// time-order stage some lines after they were read).
+    last_event_line: u64,
     /// The source of the previous CAN line as written (logs rarely switch
     /// interface).
     last_can_source: Option<(Vec<u8>, crate::event::SourceId)>,
@@ -277,6 +280,7 @@ impl<R: Read> RecordingReader<R> {
             done: false,
             skipping: false,
             no_line_yet: true,
+            last_event_line: 0,
             last_can_source: None,
             read_bytes: 0,
         };
@@ -566,8 +570,9 @@ impl<R: Read> RecordingReader<R> {
     /// the stream and is reported as a malformed line.
     pub fn next_event(&mut self) -> Option<Event> {
         loop {
-            if let Some(ev) = self.order.pop() {
+            if let Some((ev, line)) = self.order.pop_with_line() {
                 self.stats.events += 1;
+                self.last_event_line = line;
                 return Some(ev);
             }
             if self.done {
@@ -704,6 +709,12 @@ impl<R: Read> RecordingReader<R> {
             }
             Some(_) => Err(BodyError::Unrecognised(clipped(&String::from_utf8_lossy(line), 30).into_owned())),
         }
+    }
+
+    /// The line the event last handed out came from (1-based, counting
+    /// every line of the file).
+    pub fn last_event_line(&self) -> u64 {
+        self.last_event_line
     }
 
     /// Events parsed so far: those handed out and those the time-order

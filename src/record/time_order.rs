@@ -127,7 +127,7 @@ pub struct TimeOrder {
     /// Latest time in the window.
     newest: Option<TimeNs>,
     /// Released, ready to hand out.
-    ready: VecDeque<Event>,
+    ready: VecDeque<(Event, u64)>,
     /// Time of the last event handed out.
     last_out: Option<TimeNs>,
     pub stats: TimeOrderStats,
@@ -195,14 +195,19 @@ impl TimeOrder {
         for (s, l) in std::mem::take(&mut self.suspects) {
             self.accept(s, l);
         }
-        while let Some((ev, _)) = self.window.pop_front() {
-            self.release(ev);
+        while let Some((ev, line)) = self.window.pop_front() {
+            self.release(ev, line);
         }
         self.newest = None;
     }
 
     /// The next event in order, if one is ready.
     pub fn pop(&mut self) -> Option<Event> {
+        self.pop_with_line().map(|(e, _)| e)
+    }
+
+    /// The next event in order with the line it came from.
+    pub fn pop_with_line(&mut self) -> Option<(Event, u64)> {
         self.ready.pop_front()
     }
 
@@ -231,8 +236,8 @@ impl TimeOrder {
             && t < n - REORDER_WINDOW_NS
         {
             // Too far back to sort: everything before it goes out first.
-            while let Some((e, _)) = self.window.pop_front() {
-                self.release(e);
+            while let Some((e, l)) = self.window.pop_front() {
+                self.release(e, l);
             }
             self.newest = None;
         }
@@ -246,20 +251,20 @@ impl TimeOrder {
         self.newest = Some(newest);
         while let Some((front, _)) = self.window.front() {
             if front.t_ns + REORDER_WINDOW_NS < newest || self.window.len() > REORDER_MAX_EVENTS {
-                let (e, _) = self.window.pop_front().expect("a front");
-                self.release(e);
+                let (e, l) = self.window.pop_front().expect("a front");
+                self.release(e, l);
             } else {
                 break;
             }
         }
     }
 
-    fn release(&mut self, ev: Event) {
+    fn release(&mut self, ev: Event, line: u64) {
         if self.last_out.is_some_and(|l| ev.t_ns < l) {
             self.stats.applied_out_of_order += 1;
         }
         self.last_out = Some(ev.t_ns);
-        self.ready.push_back(ev);
+        self.ready.push_back((ev, line));
     }
 }
 
