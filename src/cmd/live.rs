@@ -46,7 +46,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         if !names.insert(iface.clone()) {
             return super::unusable(format!("--can {iface} is given twice"));
         }
-        can.push((iface.clone(), sources.intern(iface, SourceKind::Can)));
+        can.push((iface.clone(), sources.try_intern(iface, SourceKind::Can)?));
     }
     let mut ser = Vec::new();
     for (i, spec) in args.serial.iter().enumerate() {
@@ -54,7 +54,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         if !names.insert(name.clone()) {
             return super::unusable(format!("two inputs are called {name}: give one of them name=…"));
         }
-        ser.push((spec.clone(), sources.intern(&name, spec.proto.source_kind())));
+        ser.push((spec.clone(), sources.try_intern(&name, spec.proto.source_kind())?));
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };

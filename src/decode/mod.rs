@@ -17,10 +17,26 @@ pub mod syntax;
 
 pub use can::{CanCounters, CanMap, Sample};
 
+use std::collections::HashMap;
+
 use crate::channel::{ChannelId, ChannelTable, canonical_dimension, ch};
 use crate::config::Signals;
 use crate::event::{Event, Payload, SourceId, SourceKind, TimeNs};
 use crate::units::{Dimension, parse_unit};
+
+/// Largest magnitude a decoded value may have, in SI units. Beyond it a
+/// value is rejected like a non-finite one: no vehicle quantity comes near
+/// (a 100 kWh pack holds 3.6e8 J), and a value of 1e308 m/s is finite but
+/// turns infinite the moment it is shown in km/h or cubed into a power.
+/// 1e30 keeps a full 64-bit counter (1.8e19) and leaves room for any
+/// product of a few values to stay finite.
+pub const MAX_MAGNITUDE: f64 = 1e30;
+
+/// Whether a decoded value (SI) may enter the channel store.
+#[inline]
+pub fn admissible(value: f64) -> bool {
+    value.abs() <= MAX_MAGNITUDE
+}
 
 /// Decode problems of one source.
 #[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
@@ -29,6 +45,9 @@ pub struct SourceDecodeStats {
     pub parse_errors: u64,
     /// The most recent parse error, for display.
     pub last_error: Option<String>,
+    /// Adapter replies read (acknowledgements, refusals, status, version,
+    /// serial number): what a serial CAN adapter said that was not a frame.
+    pub replies: u64,
 }
 
 /// Turns events into samples.
@@ -39,7 +58,10 @@ pub struct Decoder {
     per_source: Vec<SourceDecodeStats>,
     lines_period_ns: TimeNs,
     /// Line-telemetry keys seen, with their channel.
-    line_keys: Vec<(String, ChannelId)>,
+    line_keys: HashMap<String, ChannelId>,
+    /// Values rejected for being non-finite or beyond [`MAX_MAGNITUDE`]
+    /// after decoding and conversion to SI: never stored, counted here.
+    pub rejected_values: u64,
 }
 
 impl Decoder {
@@ -58,7 +80,8 @@ impl Decoder {
             can,
             per_source: Vec::new(),
             lines_period_ns: signals.lines_period_ns,
-            line_keys: Vec::new(),
+            line_keys: HashMap::new(),
+            rejected_values: 0,
         }
     }
 
@@ -67,15 +90,29 @@ impl Decoder {
         self.per_source.get(source.0 as usize).cloned().unwrap_or_default()
     }
 
-    /// Counts a parse error against `source`.
-    pub fn parse_error(&mut self, source: SourceId, message: String) {
+    fn stats_mut(&mut self, source: SourceId) -> &mut SourceDecodeStats {
         let i = source.0 as usize;
         if self.per_source.len() <= i {
             self.per_source.resize(i + 1, SourceDecodeStats::default());
         }
-        let s = &mut self.per_source[i];
+        &mut self.per_source[i]
+    }
+
+    /// Counts a parse error against `source`.
+    pub fn parse_error(&mut self, source: SourceId, message: String) {
+        let s = self.stats_mut(source);
         s.parse_errors += 1;
         s.last_error = Some(message);
+    }
+
+    /// Counts an adapter reply from `source`.
+    pub fn reply(&mut self, source: SourceId) {
+        self.stats_mut(source).replies += 1;
+    }
+
+    /// Total adapter replies over all sources.
+    pub fn replies(&self) -> u64 {
+        self.per_source.iter().map(|s| s.replies).sum()
     }
 
     /// Total parse errors over all sources.
@@ -86,6 +123,24 @@ impl Decoder {
     /// Decodes one event from a source of `kind`, appending samples to `out`.
     #[inline]
     pub fn decode(&mut self, ev: &Event, kind: SourceKind, out: &mut Vec<Sample>) {
+        let start = out.len();
+        self.decode_any(ev, kind, out);
+        // One gate for every protocol: a value that is not finite, or too
+        // large to stay finite in a display unit or a derived quantity, is
+        // rejected and counted, never stored.
+        if !out[start..].iter().all(|s| admissible(s.value)) {
+            let before = out.len();
+            let mut i = 0;
+            out.retain(|s| {
+                let keep = i < start || admissible(s.value);
+                i += 1;
+                keep
+            });
+            self.rejected_values += (before - out.len()) as u64;
+        }
+    }
+
+    fn decode_any(&mut self, ev: &Event, kind: SourceKind, out: &mut Vec<Sample>) {
         match (&ev.payload, kind) {
             (Payload::Can(frame), _) => self.can.decode(ev.t_ns, frame, out),
             (Payload::Line(line), SourceKind::Nmea) => self.decode_nmea(ev.t_ns, ev.source, line, out),
@@ -98,7 +153,7 @@ impl Decoder {
             // This is its one parse in a replay.
             (Payload::Line(line), SourceKind::Can) => match serial_line::adapter_message(line) {
                 Ok(Some(frame)) => self.can.decode(ev.t_ns, &frame, out),
-                Ok(None) => {}
+                Ok(None) => self.reply(ev.source),
                 Err(e) => self.parse_error(ev.source, serial_line::adapter_error(&e)),
             },
             _ => {}
@@ -160,14 +215,20 @@ impl Decoder {
                 );
                 return;
             }
-            let channel = match self.line_keys.iter().find(|(k, _)| k == f.key) {
-                Some((_, c)) => *c,
-                None => {
-                    let c = self.channels.intern(f.key, dim);
-                    self.channels.expect_period(c, self.lines_period_ns);
-                    self.line_keys.push((f.key.to_string(), c));
-                    c
-                }
+            let channel = match self.line_keys.get(f.key) {
+                Some(c) => *c,
+                None => match self.channels.try_intern(f.key, dim) {
+                    Ok(c) => {
+                        self.channels.expect_period(c, self.lines_period_ns);
+                        self.line_keys.insert(f.key.to_string(), c);
+                        c
+                    }
+                    Err(e) => {
+                        out.truncate(start);
+                        self.parse_error(source, format!("line telemetry: {e}"));
+                        return;
+                    }
+                },
             };
             let value = unit.map_or(f.value, |u| u.to_si(f.value));
             out.push(Sample { t_ns, channel, value, valid: value.is_finite() });

@@ -587,6 +587,7 @@ impl Engine {
                 gaps: h.gaps,
                 parse_errors: ds.parse_errors,
                 last_error: ds.last_error,
+                replies: ds.replies,
                 link: h.link,
                 age_s: h.last_t_ns.map(|t| (t_ns - t) as f64 * 1e-9),
                 error_frames: h.error_frames,
@@ -596,7 +597,8 @@ impl Engine {
         let mut counters = self.counters;
         counters.out_of_range = self.decoder.can.counters.out_of_range;
         counters.parse_errors = self.decoder.parse_errors();
-        counters.rejected_values = self.rejected_values;
+        counters.rejected_values = self.rejected_values + self.decoder.rejected_values;
+        counters.replies = self.decoder.replies();
         Snapshot {
             t_ns,
             channels,

@@ -85,6 +85,10 @@ pub enum BodyError {
     /// Another header line after the header ended (cut to 40 characters).
     #[error("unexpected header line in the body: \"{0}\"")]
     HeaderLineInBody(String),
+    /// A line that names a new source when the session already holds as
+    /// many as a source id can number: refused, so no id is reused.
+    #[error("{0}")]
+    TooManySources(#[from] crate::event::SourceTableFull),
     /// A line that is neither a CAN frame nor an event (its start, cut to 30
     /// characters).
     #[error("expected '(' (CAN frame) or '[' (event) at the start, found \"{0}\"")]
@@ -322,7 +326,7 @@ impl<R: Read> RecordingReader<R> {
             } else if line.starts_with("%program ") {
             } else if let Some(rest) = line.strip_prefix("%source ") {
                 let (name, kind) = parse_source_decl(rest).map_err(|m| self.header_err(line_no, m.to_string()))?;
-                header.sources.intern(name, kind);
+                header.sources.try_intern(name, kind).map_err(|e| self.header_err(line_no, e.to_string()))?;
             } else if let Some(rest) = line.strip_prefix("%config ") {
                 let mut parts = rest.splitn(3, ' ');
                 let kind_s = parts.next().unwrap_or("");
@@ -438,7 +442,7 @@ impl<R: Read> RecordingReader<R> {
                         }
                         id
                     }
-                    None => self.header.sources.intern(iface, SourceKind::Can),
+                    None => self.header.sources.try_intern(iface, SourceKind::Can)?,
                 };
                 self.last_can_source = Some((iface.to_string(), src));
                 Ok(Some(Event::new(t_ns, src, Payload::Can(frame))))
@@ -481,7 +485,7 @@ impl<R: Read> RecordingReader<R> {
                 if let Some(rest) = line.strip_prefix(b"%source ") {
                     let rest = String::from_utf8_lossy(rest).into_owned();
                     let (name, kind) = parse_source_decl(&rest)?;
-                    self.header.sources.intern(name, kind);
+                    self.header.sources.try_intern(name, kind)?;
                     Ok(None)
                 } else {
                     Err(BodyError::HeaderLineInBody(truncate(&String::from_utf8_lossy(line), 40)))

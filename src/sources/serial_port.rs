@@ -106,8 +106,9 @@ impl FromStr for SerialSpec {
 pub const MAX_LINE: usize = 4096;
 
 /// Splits a byte stream into lines: NMEA and line telemetry end lines with
-/// LF (a CR before it is dropped); an adapter ends its messages with CR, or
-/// sends a bare BEL for a refusal.
+/// LF (a CR before it is dropped, an empty line is nothing); an adapter ends
+/// its messages with CR, or sends a bare BEL for a refusal, and a bare CR
+/// is its acknowledgement, so an adapter's empty message is a line too.
 #[derive(Debug)]
 pub struct LineSplitter {
     proto: Proto,
@@ -134,7 +135,7 @@ impl LineSplitter {
                 if self.proto != Proto::Slcan {
                     l = l.strip_suffix(b"\r").unwrap_or(l);
                 }
-                if !l.is_empty() {
+                if !l.is_empty() || self.proto == Proto::Slcan {
                     line(l);
                 }
                 self.buf.clear();
@@ -149,11 +150,11 @@ impl LineSplitter {
     }
 }
 
-/// Stamps one line as the event it stands for; what it is (a frame, chatter,
-/// a bad line with its error, a sentence) is the decode layer's call, made
-/// once here.
-pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Option<Event> {
-    decode::serial_line::payload_of(proto.source_kind(), line).map(|p| Event::new(t_ns, source, p))
+/// Stamps one line as the event it stands for; what it is (a frame, a
+/// reply, a bad line with its error, a sentence) is the decode layer's
+/// call, made once here. Every line is an event: nothing read is dropped.
+pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Event {
+    Event::new(t_ns, source, decode::serial_line::payload_of(proto.source_kind(), line))
 }
 
 /// Reads `spec.path` until shutdown.
@@ -214,7 +215,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
                     // One stamp for what one read returned: it had all
                     // arrived by now.
                     let t = link.clock.now_ns();
-                    split.feed(&buf[..n], |l| events.extend(event_of(spec.proto, t, source, l)));
+                    split.feed(&buf[..n], |l| events.push(event_of(spec.proto, t, source, l)));
                     if !link.send_all(&mut events).await {
                         return;
                     }
@@ -260,6 +261,11 @@ mod tests {
         let mut s = LineSplitter::new(Proto::Slcan);
         s.feed(b"t1232AABB\r\x07t12300\r", |l| got.push(l.to_vec()));
         assert_eq!(got, vec![b"t1232AABB".to_vec(), vec![0x07], b"t12300".to_vec()]);
+        // Issue 13, item 5: an adapter's acknowledgement (a bare CR) was
+        // dropped as an empty line.
+        got.clear();
+        s.feed(b"\r\rV1013\r", |l| got.push(l.to_vec()));
+        assert_eq!(got, vec![b"".to_vec(), b"".to_vec(), b"V1013".to_vec()]);
         // A run without line ends is cut at MAX_LINE.
         let mut n = 0;
         let mut s = LineSplitter::new(Proto::Lines);
@@ -273,16 +279,16 @@ mod tests {
     #[test]
     fn adapter_lines_become_frames_or_bad_lines_decoded_once() {
         let src = SourceId(2);
-        assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").unwrap().payload, Payload::Can(_)));
-        assert!(event_of(Proto::Slcan, 1, src, b"").is_none(), "an acknowledgement is not an event");
-        let bad = event_of(Proto::Slcan, 7, src, b"t12").unwrap();
+        assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").payload, Payload::Can(_)));
+        assert_eq!(event_of(Proto::Slcan, 1, src, b"").payload, Payload::Line(vec![]), "an acknowledgement is kept");
+        let bad = event_of(Proto::Slcan, 7, src, b"t12");
         assert_eq!((bad.t_ns, bad.source), (7, src));
         let Payload::BadLine { line, error } = &bad.payload else { panic!("a bad line is kept: {bad:?}") };
         assert_eq!(
             (line.as_slice(), error.as_str()),
             (&b"t12"[..], "CAN adapter: column 4: expected 3 hex digits of a standard id")
         );
-        assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").unwrap().payload, Payload::Line(_)));
+        assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").payload, Payload::Line(_)));
 
         // The decoder takes the error it carries, and records it as the
         // line it was; a replay of that line finds the same error.

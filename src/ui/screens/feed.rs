@@ -93,6 +93,11 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
             format!(" bad lines    {}", c.parse_errors),
             if c.parse_errors > 0 { t.doubtful() } else { t.value() },
         ),
+        Line::styled(format!(" replies      {}", c.replies), t.label()),
+        Line::styled(
+            format!(" rejected     {}", c.rejected_values),
+            if c.rejected_values > 0 { t.doubtful() } else { t.value() },
+        ),
         Line::styled(format!(" time jumps   {}", c.time_jumps), t.value()),
         Line::styled(format!(" snapshots    {} received", app.snapshots_seen), t.label()),
         Line::styled(format!(" bus load     {:.1} % worst case", load.worst * 100.0), t.label()),
