@@ -9,6 +9,15 @@ use std::collections::HashMap;
 
 use crate::units::Dimension;
 
+/// Largest magnitude a channel value may have, in SI units. Beyond it a
+/// decoded value is rejected like a non-finite one, and `check` refuses a
+/// signal whose scaled range reaches past it: no vehicle quantity comes
+/// near (a 100 kWh pack holds 3.6e8 J), while a value of 1e308 m/s is
+/// finite but turns infinite the moment it is shown in km/h or cubed into
+/// a power. 1e30 keeps a full 64-bit counter (1.8e19) and leaves room for a
+/// product of a few values to stay finite.
+pub const MAX_MAGNITUDE: f64 = 1e30;
+
 /// Most channels a session holds: every id a [`ChannelId`] can carry.
 /// Line telemetry interns each new key that arrives on the wire, so a
 /// sender of ever-new keys reaches it; past it a key is refused (and the

@@ -24,15 +24,10 @@ use crate::config::Signals;
 use crate::event::{Event, Payload, SourceId, SourceKind, TimeNs};
 use crate::units::{Dimension, parse_unit};
 
-/// Largest magnitude a decoded value may have, in SI units. Beyond it a
-/// value is rejected like a non-finite one: no vehicle quantity comes near
-/// (a 100 kWh pack holds 3.6e8 J), and a value of 1e308 m/s is finite but
-/// turns infinite the moment it is shown in km/h or cubed into a power.
-/// 1e30 keeps a full 64-bit counter (1.8e19) and leaves room for any
-/// product of a few values to stay finite.
-pub const MAX_MAGNITUDE: f64 = 1e30;
+pub use crate::channel::MAX_MAGNITUDE;
 
-/// Whether a decoded value (SI) may enter the channel store.
+/// Whether a decoded value (SI) may enter the channel store: finite and
+/// within [`MAX_MAGNITUDE`] (NaN fails the comparison).
 #[inline]
 pub fn admissible(value: f64) -> bool {
     value.abs() <= MAX_MAGNITUDE
@@ -233,5 +228,67 @@ impl Decoder {
             let value = unit.map_or(f.value, |u| u.to_si(f.value));
             out.push(Sample { t_ns, channel, value, valid: value.is_finite() });
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::event::{CanFrame, CanId, DataFrame};
+
+    fn line(t_ns: TimeNs, body: &str) -> Event {
+        let text = format!("{body} #{:02X}", lines::crc8(body.as_bytes()));
+        Event::new(t_ns, SourceId(2), Payload::Line(text.into_bytes()))
+    }
+
+    // Issue 13, item 9: 1e308 m/s was stored (and shown as inf km/h), and
+    // 1e305 kWh became inf J in the store, while nothing was counted.
+    #[test]
+    fn values_not_finite_or_too_large_in_si_are_rejected_and_counted() {
+        let signals = crate::config::ConfigSet::embedded().signals;
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        d.decode(&line(1, "vehicle.speed=1e308 battery.soc=0.5"), SourceKind::Lines, &mut out);
+        d.decode(&line(2, "battery.energy[kWh]=1e305"), SourceKind::Lines, &mut out);
+        d.decode(&line(3, "battery.energy[kWh]=1e23"), SourceKind::Lines, &mut out);
+        assert_eq!(out.len(), 2, "{out:?}");
+        assert_eq!(out[0].channel, ch::BATTERY_SOC);
+        assert_eq!(out[1].value, 1e23 * 3.6e6, "a large value that fits is kept");
+        assert_eq!((d.rejected_values, d.parse_errors()), (2, 0));
+        assert!(admissible(MAX_MAGNITUDE) && admissible(-1.8e19) && !admissible(f64::INFINITY));
+    }
+
+    // Issue 13, item 9: a 64-bit signal scaled by 1e300 decoded to inf with
+    // `out_of_range: 0, rejected_values: 0`.
+    #[test]
+    fn a_can_signal_that_scales_past_the_limit_is_rejected_and_counted() {
+        use crate::config::signals::{ByteOrder, Message, Signal};
+        let mut signals = crate::config::ConfigSet::embedded().signals;
+        let signal = Signal {
+            name: "big".into(),
+            channel: "x.big".into(),
+            start_bit: 0,
+            bit_length: 64,
+            byte_order: ByteOrder::Little,
+            signed: false,
+            scale: 1e300,
+            offset: 0.0,
+            unit_name: String::new(),
+            unit: parse_unit("").unwrap(),
+            min: None,
+            max: None,
+        };
+        let id = CanId::Standard(0x7F0);
+        signals.messages =
+            vec![Message { id, name: "m".into(), period_ns: 10_000_000, length: 8, fd: false, signals: vec![signal] }];
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        for data in [[0xFF; 8], [0; 8]] {
+            let frame = CanFrame::Data(DataFrame::new(id, &data).unwrap());
+            d.decode(&Event::new(1, SourceId(2), Payload::Can(frame)), SourceKind::Can, &mut out);
+        }
+        assert_eq!(out.len(), 1, "the zero frame decodes, the other is rejected: {out:?}");
+        assert_eq!(out[0].value, 0.0);
+        assert_eq!(d.rejected_values, 1);
     }
 }
