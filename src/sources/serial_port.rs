@@ -33,6 +33,15 @@ impl Proto {
             Proto::Lines => SourceKind::Lines,
         }
     }
+    /// The word for the protocol in a spec (`proto=…`).
+    pub fn word(self) -> &'static str {
+        match self {
+            Proto::Nmea => "nmea",
+            Proto::Slcan => "slcan",
+            Proto::Lines => "lines",
+        }
+    }
+
     fn default_name(self) -> &'static str {
         match self {
             Proto::Nmea => "gnss",
@@ -41,6 +50,10 @@ impl Proto {
         }
     }
 }
+
+/// Baud rates a serial input may ask for: from the slowest rate a UART
+/// offers to the fastest USB serial adapters.
+pub const BAUD_RANGE: std::ops::RangeInclusive<u32> = 50..=12_000_000;
 
 /// One serial input: `PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME]`.
 #[derive(Clone, Debug, PartialEq)]
@@ -71,11 +84,26 @@ impl FromStr for SerialSpec {
             .ok_or("expected a device path first, e.g. /dev/ttyUSB0")?
             .to_string();
         let mut spec = SerialSpec { path, baud: 115_200, proto: Proto::Nmea, can_bitrate: 500_000, name: None };
+        // Each option once: a second value would silently win.
+        let mut given: Vec<&str> = Vec::new();
         for p in parts {
             let (k, v) =
                 p.split_once('=').ok_or_else(|| format!("expected key=value after the path, found \"{p}\""))?;
+            if given.contains(&k) {
+                return Err(format!("{k}: given twice; give each option once"));
+            }
             match k {
-                "baud" => spec.baud = v.parse().map_err(|_| format!("baud: expected a number, found \"{v}\""))?,
+                "baud" => {
+                    let baud: u32 = v.parse().map_err(|_| format!("baud: expected a number, found \"{v}\""))?;
+                    if !BAUD_RANGE.contains(&baud) {
+                        return Err(format!(
+                            "baud: expected a rate from {} to {} baud, found {baud}",
+                            BAUD_RANGE.start(),
+                            BAUD_RANGE.end()
+                        ));
+                    }
+                    spec.baud = baud;
+                }
                 "bitrate" => {
                     spec.can_bitrate = v.parse().map_err(|_| format!("bitrate: expected a number, found \"{v}\""))?
                 }
@@ -93,6 +121,13 @@ impl FromStr for SerialSpec {
                 "name" => return Err(format!("name: expected letters, digits, '_' or '-', found \"{v}\"")),
                 _ => return Err(format!("expected baud, proto, bitrate or name, found \"{k}\"")),
             }
+            given.push(k);
+        }
+        if given.contains(&"bitrate") && spec.proto != Proto::Slcan {
+            return Err(format!(
+                "bitrate: sets a serial CAN adapter's bus rate, so it needs proto=slcan; this input is proto={}",
+                spec.proto.word()
+            ));
         }
         if spec.proto == Proto::Slcan {
             slcan::open_commands(spec.can_bitrate).map_err(|e| format!("bitrate: {e}"))?;
@@ -248,6 +283,25 @@ mod tests {
         assert!("/dev/x,proto=slcan,bitrate=33333".parse::<SerialSpec>().unwrap_err().contains("bitrate"));
         assert!(",baud=1".parse::<SerialSpec>().is_err());
         assert!("/dev/x,speed=1".parse::<SerialSpec>().unwrap_err().contains("found \"speed\""));
+    }
+
+    // Issue 13, item 17: `baud=0` ran at "0 baud", an option given twice
+    // silently took the last value, and `bitrate=` was accepted (and
+    // ignored) on an NMEA port.
+    #[test]
+    fn specs_refuse_what_cannot_work_and_say_which_option() {
+        let e = |s: &str| s.parse::<SerialSpec>().unwrap_err();
+        assert_eq!(e("/dev/x,baud=0"), "baud: expected a rate from 50 to 12000000 baud, found 0");
+        assert_eq!(e("/dev/x,baud=9600,baud=115200"), "baud: given twice; give each option once");
+        assert_eq!(e("/dev/x,proto=slcan,proto=nmea"), "proto: given twice; give each option once");
+        assert_eq!(e("/dev/x,name=a,name=b"), "name: given twice; give each option once");
+        assert_eq!(
+            e("/dev/x,bitrate=500000,proto=nmea"),
+            "bitrate: sets a serial CAN adapter's bus rate, so it needs proto=slcan; this input is proto=nmea"
+        );
+        assert!(e("/dev/x,bitrate=500000").contains("proto=nmea"), "NMEA is the default protocol");
+        assert_eq!("/dev/x,baud=50".parse::<SerialSpec>().map(|s| s.baud), Ok(50));
+        assert!("/dev/x,bitrate=250000,proto=slcan".parse::<SerialSpec>().is_ok(), "in any order");
     }
 
     #[test]
