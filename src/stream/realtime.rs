@@ -274,7 +274,8 @@ mod tests {
         let out = run(opts, input, controls, stop, &mut shown).await;
         let mut r = RecordingReader::open(&path).unwrap();
         let times: Vec<TimeNs> = std::iter::from_fn(|| r.next_event()).map(|e| e.t_ns).collect();
-        assert_eq!(times.len() as u64, out.events);
+        // Every event taken, and the engine's notes beside them.
+        assert!(times.len() as u64 >= out.events, "{} < {}", times.len(), out.events);
         assert!(times.len() > 4000, "the events and at least two ticks: {}", times.len());
         let back = times.windows(2).filter(|w| w[1] < w[0]).count();
         assert_eq!(back, 0, "the recording goes back in time {back} times");
