@@ -291,4 +291,30 @@ mod tests {
         assert_eq!(out[0].value, 0.0);
         assert_eq!(d.rejected_values, 1);
     }
+
+    // Issue 13, item 7: line telemetry interned every new key, and the
+    // 65 537th got the id of vehicle.speed and overwrote it.
+    #[test]
+    fn a_key_past_the_channel_limit_is_a_counted_error_not_a_reused_id() {
+        let signals = crate::config::ConfigSet::embedded().signals;
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        let first = d.channels.len();
+        let room = crate::channel::MAX_CHANNELS - first;
+        for i in 0..room {
+            d.decode(&line(1, &format!("k{i}=1")), SourceKind::Lines, &mut out);
+        }
+        assert_eq!((out.len(), d.parse_errors()), (room, 0));
+        out.clear();
+        d.decode(&line(2, "one.more=7 vehicle.speed=50"), SourceKind::Lines, &mut out);
+        assert!(out.is_empty(), "the line is refused whole: {out:?}");
+        let stats = d.source_stats(SourceId(2));
+        assert_eq!(stats.parse_errors, 1);
+        assert!(stats.last_error.unwrap().contains("the channel table is full (65536 channels)"));
+        d.decode(&line(3, "vehicle.speed=50 k7=2"), SourceKind::Lines, &mut out);
+        assert_eq!(
+            out.iter().map(|s| (s.channel, s.value)).collect::<Vec<_>>(),
+            vec![(ch::VEHICLE_SPEED, 50.0), (ChannelId(first as u16 + 7), 2.0)]
+        );
+    }
 }
