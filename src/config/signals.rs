@@ -373,7 +373,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
                     (0.0, 2f64.powi(len as i32) - 1.0)
                 };
                 let ends = [raw_lo, raw_hi].map(|r| unit.to_si(r * scale + offset));
-                if let Some(end) = ends.iter().find(|v| !(v.abs() <= MAX_MAGNITUDE)) {
+                if let Some(end) = ends.iter().find(|v| !(v.is_finite() && v.abs() <= MAX_MAGNITUDE)) {
                     ctx.err(
                         s.scale.span(),
                         &sk("scale"),
