@@ -5,7 +5,33 @@
 //! reads them by index; every other signal keeps its own name and gets the
 //! next free id when first seen.
 
+use std::collections::HashMap;
+
 use crate::units::Dimension;
+
+/// Largest magnitude a channel value may have, in SI units. Beyond it a
+/// decoded value is rejected like a non-finite one, and `check` refuses a
+/// signal whose scaled range reaches past it: no vehicle quantity comes
+/// near (a 100 kWh pack holds 3.6e8 J), while a value of 1e308 m/s is
+/// finite but turns infinite the moment it is shown in km/h or cubed into
+/// a power. 1e30 keeps a full 64-bit counter (1.8e19) and leaves room for a
+/// product of a few values to stay finite.
+pub const MAX_MAGNITUDE: f64 = 1e30;
+
+/// Most channels a session holds: every id a [`ChannelId`] can carry.
+/// Line telemetry interns each new key that arrives on the wire, so a
+/// sender of ever-new keys reaches it; past it a key is refused (and the
+/// decoder counts the refusal), never given an id already in use.
+pub const MAX_CHANNELS: usize = u16::MAX as usize + 1;
+
+/// The channel table is full: a new name would need an id past
+/// [`MAX_CHANNELS`].
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error("the channel table is full ({MAX_CHANNELS} channels); \"{name}\" gets no channel")]
+pub struct ChannelTableFull {
+    /// The name that was refused.
+    pub name: String,
+}
 
 /// Index of a channel in a [`ChannelTable`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -102,31 +128,47 @@ pub struct ChannelInfo {
 #[derive(Clone, Debug, PartialEq)]
 pub struct ChannelTable {
     channels: Vec<ChannelInfo>,
+    /// Name to id, so interning costs the same with 30 channels or 60 000.
+    by_name: HashMap<String, ChannelId>,
 }
 
 impl Default for ChannelTable {
     fn default() -> Self {
-        ChannelTable {
-            channels: CANONICAL
-                .iter()
-                .map(|(n, d)| ChannelInfo { name: n.to_string(), dimension: *d, expected_period_ns: None })
-                .collect(),
-        }
+        let channels: Vec<ChannelInfo> = CANONICAL
+            .iter()
+            .map(|(n, d)| ChannelInfo { name: n.to_string(), dimension: *d, expected_period_ns: None })
+            .collect();
+        let by_name = channels.iter().enumerate().map(|(i, c)| (c.name.clone(), ChannelId(i as u16))).collect();
+        ChannelTable { channels, by_name }
     }
 }
 
 impl ChannelTable {
-    /// The id of `name`, adding it (with `dimension`) if it is new.
+    /// The id of `name`, adding it (with `dimension`) if it is new: for a
+    /// table built from a short fixed list (tests).
+    ///
+    /// # Panics
+    /// When the table is full. Names from input (a signal map, line
+    /// telemetry) go through [`ChannelTable::try_intern`].
     pub fn intern(&mut self, name: &str, dimension: Dimension) -> ChannelId {
+        self.try_intern(name, dimension).expect("a fixed list of channels fits the table")
+    }
+
+    /// The id of `name`, adding it (with `dimension`) if it is new; an
+    /// error when it is new and the table already holds [`MAX_CHANNELS`].
+    pub fn try_intern(&mut self, name: &str, dimension: Dimension) -> Result<ChannelId, ChannelTableFull> {
         if let Some(id) = self.find(name) {
-            return id;
+            return Ok(id);
         }
+        let index = self.channels.len();
+        let id = u16::try_from(index).map_err(|_| ChannelTableFull { name: name.to_string() })?;
         self.channels.push(ChannelInfo { name: name.to_string(), dimension, expected_period_ns: None });
-        ChannelId((self.channels.len() - 1) as u16)
+        self.by_name.insert(name.to_string(), ChannelId(id));
+        Ok(ChannelId(id))
     }
 
     pub fn find(&self, name: &str) -> Option<ChannelId> {
-        self.channels.iter().position(|c| c.name == name).map(|i| ChannelId(i as u16))
+        self.by_name.get(name).copied()
     }
 
     pub fn get(&self, id: ChannelId) -> &ChannelInfo {
@@ -173,6 +215,26 @@ mod tests {
         assert_eq!(canonical_dimension("coolant.temp"), None);
         assert!(valid_channel_name("coolant.temp"));
         assert!(!valid_channel_name("coolant temp"));
+    }
+
+    // Issue 13, item 7: the 65 537th channel got id 0 (`as u16` wrapped) and
+    // took over vehicle.speed.
+    #[test]
+    fn a_full_table_refuses_a_new_name_and_reuses_no_id() {
+        let mut t = ChannelTable::default();
+        let mut last = ChannelId(0);
+        for i in t.len()..MAX_CHANNELS {
+            last = t.try_intern(&format!("k{i}"), Dimension::Plain).unwrap();
+        }
+        assert_eq!((t.len(), last), (MAX_CHANNELS, ChannelId(u16::MAX)));
+        let e = t.try_intern("one.more", Dimension::Plain).unwrap_err();
+        assert!(e.to_string().contains("65536 channels") && e.to_string().contains("one.more"), "{e}");
+        assert_eq!(t.len(), MAX_CHANNELS);
+        assert_eq!(t.get(ch::VEHICLE_SPEED).name, "vehicle.speed");
+        assert_eq!(t.find("one.more"), None);
+        // Names already in the table still resolve.
+        assert_eq!(t.try_intern("k100", Dimension::Plain), Ok(ChannelId(100)));
+        assert_eq!(t.try_intern("vehicle.speed", Dimension::Speed), Ok(ch::VEHICLE_SPEED));
     }
 
     #[test]

@@ -313,7 +313,7 @@ pub struct CheckArgs {
     pub files: Vec<PathBuf>,
 }
 
-/// Parses `100ms`, `0.25s`, `1s`, `500us`, `2min` into nanoseconds.
+/// Parses `100ms`, `0.25s`, `1s`, `500us`, `2min`, `1h` into nanoseconds.
 pub fn parse_duration_ns(s: &str) -> Result<TimeNs, String> {
     let s = s.trim();
     let split = s.find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(s.len());
@@ -325,7 +325,8 @@ pub fn parse_duration_ns(s: &str) -> Result<TimeNs, String> {
         "ms" => 1e6,
         "s" | "" => 1e9,
         "min" => 60e9,
-        other => return Err(format!("expected a unit of ns, us, ms, s or min, found \"{other}\"")),
+        "h" => 3600e9,
+        other => return Err(format!("expected a unit of ns, us, ms, s, min or h, found \"{other}\"")),
     };
     let ns = (v * scale).round();
     if !(1e6..=3600e9).contains(&ns) {
@@ -374,6 +375,10 @@ mod tests {
         assert_eq!(parse_duration_ns("1"), Ok(1_000_000_000));
         assert!(parse_duration_ns("10 parsecs").is_err());
         assert!(parse_duration_ns("0ms").is_err());
+        // Issue 13, item 17: the limit the message names was refused.
+        assert_eq!(parse_duration_ns("1h"), Ok(3_600_000_000_000));
+        assert_eq!(parse_duration_ns("1ms"), Ok(1_000_000));
+        assert!(parse_duration_ns("2h").unwrap_err().contains("from 1ms to 1h"));
     }
 
     // Issue 13, item 6: `--can ""`, `--can "a b"` and a name with a newline

@@ -72,11 +72,29 @@ pub struct SourceInfo {
     pub kind: SourceKind,
 }
 
+/// Most sources a session holds: every id a [`SourceId`] can carry. A
+/// candump log names its interfaces itself, so a hostile one reaches it;
+/// past it a new name is refused (the reader counts the line as bad), never
+/// given an id already in use.
+pub const MAX_SOURCES: usize = u16::MAX as usize + 1;
+
+/// The source table is full: a new name would need an id past
+/// [`MAX_SOURCES`].
+#[derive(Clone, Debug, PartialEq, Eq, thiserror::Error)]
+#[error("the source table is full ({MAX_SOURCES} sources); \"{name}\" gets no source")]
+pub struct SourceTableFull {
+    /// The name that was refused (cut to 40 characters).
+    pub name: String,
+}
+
 /// The sources of a session, indexed by [`SourceId`]. Ids 0 and 1 are
 /// always the operator and the session itself.
 #[derive(Clone, Debug, PartialEq, Eq)]
 pub struct SourceTable {
     sources: Vec<SourceInfo>,
+    /// Name to id, so a log naming 40 000 interfaces interns each in
+    /// constant time.
+    by_name: std::collections::HashMap<String, SourceId>,
 }
 
 /// Id of the operator source in every session.
@@ -91,23 +109,38 @@ impl Default for SourceTable {
                 SourceInfo { name: "op".into(), kind: SourceKind::Operator },
                 SourceInfo { name: "session".into(), kind: SourceKind::Session },
             ],
+            by_name: [("op".to_string(), OPERATOR), ("session".to_string(), SESSION)].into_iter().collect(),
         }
     }
 }
 
 impl SourceTable {
-    /// Returns the id of `name`, adding it with `kind` if it is new.
+    /// Returns the id of `name`, adding it with `kind` if it is new: for a
+    /// table built from a short fixed list (the simulator, tests).
+    ///
+    /// # Panics
+    /// When the table is full. Names that come from input (a log, a
+    /// recording, the command line) go through [`SourceTable::try_intern`].
     pub fn intern(&mut self, name: &str, kind: SourceKind) -> SourceId {
+        self.try_intern(name, kind).expect("a fixed list of sources fits the table")
+    }
+
+    /// Returns the id of `name`, adding it with `kind` if it is new; an
+    /// error when it is new and the table already holds [`MAX_SOURCES`].
+    pub fn try_intern(&mut self, name: &str, kind: SourceKind) -> Result<SourceId, SourceTableFull> {
         if let Some(id) = self.find(name) {
-            return id;
+            return Ok(id);
         }
+        let id =
+            u16::try_from(self.sources.len()).map_err(|_| SourceTableFull { name: name.chars().take(40).collect() })?;
         self.sources.push(SourceInfo { name: name.to_string(), kind });
-        SourceId((self.sources.len() - 1) as u16)
+        self.by_name.insert(name.to_string(), SourceId(id));
+        Ok(SourceId(id))
     }
 
     /// The id of the source called `name`, if any.
     pub fn find(&self, name: &str) -> Option<SourceId> {
-        self.sources.iter().position(|s| s.name == name).map(|i| SourceId(i as u16))
+        self.by_name.get(name).copied()
     }
 
     pub fn get(&self, id: SourceId) -> Option<&SourceInfo> {
@@ -486,9 +519,23 @@ mod tests {
         let mut t = SourceTable::default();
         let a = t.intern("can0", SourceKind::Can);
         let b = t.intern("gnss0", SourceKind::Nmea);
-        assert_eq!(t.intern("can0", SourceKind::Can), a);
+        assert_eq!(t.try_intern("can0", SourceKind::Can), Ok(a));
         assert_ne!(a, b);
         assert_eq!(t.name(OPERATOR), "op");
         assert_eq!(t.name(b), "gnss0");
+        assert_eq!(t.find("session"), Some(SESSION));
+    }
+
+    // Issue 13, item 7: the 65 537th source name got id 0 (`as u16`
+    // wrapped), the operator's.
+    #[test]
+    fn a_full_source_table_refuses_a_new_name_and_reuses_no_id() {
+        let mut t = SourceTable::default();
+        for i in t.len()..MAX_SOURCES {
+            assert_eq!(t.try_intern(&format!("c{i}"), SourceKind::Can), Ok(SourceId(i as u16)));
+        }
+        let e = t.try_intern("one_more", SourceKind::Can).unwrap_err();
+        assert!(e.to_string().contains("65536 sources"), "{e}");
+        assert_eq!((t.len(), t.find("one_more"), t.name(OPERATOR)), (MAX_SOURCES, None, "op"));
     }
 }

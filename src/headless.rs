@@ -118,6 +118,8 @@ pub struct Summary {
     pub time_jumps: u64,
     pub time_reversals: u64,
     pub rejected_values: u64,
+    /// Adapter replies read (not frames, not errors).
+    pub replies: u64,
     pub torn_tail: bool,
     /// Line number of the torn last line, when there is one.
     pub torn_tail_line: Option<u64>,
@@ -158,6 +160,7 @@ impl Summary {
             parse_errors: c.parse_errors,
             time_jumps: c.time_jumps,
             rejected_values: c.rejected_values,
+            replies: c.replies,
             ..Summary::default()
         }
     }

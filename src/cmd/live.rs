@@ -47,15 +47,31 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         if !names.insert(iface.clone()) {
             return super::unusable(format!("--can {iface} is given twice"));
         }
-        can.push((iface.clone(), sources.intern(iface, SourceKind::Can)));
+        if let Err(why) = can_interface_usable(iface) {
+            return super::unusable(format!("--can {iface}: {why}"));
+        }
+        can.push((iface.clone(), sources.try_intern(iface, SourceKind::Can)?));
     }
     let mut ser = Vec::new();
+    // One device, one reader: two readers of one port would each get part
+    // of its bytes. Compared after resolving links (/dev/serial/by-id/…).
+    let mut devices: std::collections::HashMap<std::path::PathBuf, &str> = std::collections::HashMap::new();
+    for spec in &args.serial {
+        let device = std::fs::canonicalize(&spec.path).unwrap_or_else(|_| spec.path.clone().into());
+        if let Some(first) = devices.insert(device.clone(), &spec.path) {
+            let same = if first == spec.path { String::new() } else { format!(" (as {first} and {})", spec.path) };
+            return super::unusable(format!(
+                "--serial: device {} is given twice{same}; a port feeds one input",
+                device.display()
+            ));
+        }
+    }
     for (i, spec) in args.serial.iter().enumerate() {
         let name = spec.source_name(i);
         if !names.insert(name.clone()) {
             return super::unusable(format!("two inputs are called {name}: give one of them name=…"));
         }
-        ser.push((spec.clone(), sources.intern(&name, spec.proto.source_kind())));
+        ser.push((spec.clone(), sources.try_intern(&name, spec.proto.source_kind())?));
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
@@ -150,4 +166,34 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         return super::failed(super::stdout_error(&e));
     }
     Ok(super::code(complete))
+}
+
+/// Whether `--can IFACE` can work on this machine, said before the session
+/// starts: a kernel without CAN support, or an interface that exists but is
+/// not a CAN interface, would otherwise be retried for ever as "down". A
+/// missing interface is not refused: a USB adapter may be plugged in later,
+/// and the session waits for it.
+fn can_interface_usable(iface: &str) -> Result<(), String> {
+    // SAFETY: plain socket calls on a descriptor this function owns and closes.
+    let fd = unsafe { libc::socket(libc::PF_CAN, libc::SOCK_RAW, libc::CAN_RAW) };
+    if fd < 0 {
+        let e = std::io::Error::last_os_error();
+        return Err(if e.raw_os_error() == Some(libc::EAFNOSUPPORT) {
+            format!(
+                "this kernel has no CAN support (a CAN socket cannot be opened: {e}); load the can_raw module (modprobe can_raw) or use a kernel built with SocketCAN"
+            )
+        } else {
+            format!("a CAN socket cannot be opened: {e}")
+        });
+    }
+    unsafe { libc::close(fd) };
+    // ARPHRD_CAN, the link type of every SocketCAN interface (linux/if_arp.h).
+    const ARPHRD_CAN: u32 = 280;
+    let type_file = std::path::Path::new("/sys/class/net").join(iface).join("type");
+    match std::fs::read_to_string(&type_file).ok().and_then(|t| t.trim().parse::<u32>().ok()) {
+        Some(t) if t != ARPHRD_CAN => Err(format!(
+            "{iface} is not a CAN interface (its link type is {t}, a CAN interface's is {ARPHRD_CAN}); give one such as can0 or vcan0"
+        )),
+        _ => Ok(()),
+    }
 }

@@ -10,7 +10,9 @@ use serde::Deserialize;
 use toml::Spanned;
 
 use super::Ctx;
-use crate::channel::{canonical_dimension, valid_channel_name};
+use std::collections::{HashMap, HashSet};
+
+use crate::channel::{CANONICAL, MAX_CHANNELS, MAX_MAGNITUDE, canonical_dimension, valid_channel_name};
 use crate::event::{CanId, FdFrame};
 use crate::units::{Unit, parse_unit, unit_names};
 
@@ -73,6 +75,10 @@ pub enum ByteOrder {
     Little,
     Big,
 }
+
+/// Most messages a signal map may hold: the decoder numbers them with 16
+/// bits and keeps one value for "not in the map".
+pub const MAX_MESSAGES: usize = u16::MAX as usize;
 
 /// One signal, validated.
 #[derive(Clone, Debug, PartialEq)]
@@ -165,8 +171,11 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
     });
 
     let mut messages = Vec::new();
-    // Message names seen so far, by index, for the uniqueness check.
-    let mut names: Vec<String> = Vec::new();
+    // Message names and ids seen so far, with the index of the message that
+    // has each, for the uniqueness checks: maps, so a map of 40 000
+    // messages is checked in linear time.
+    let mut names: HashMap<String, usize> = HashMap::new();
+    let mut ids: HashMap<CanId, usize> = HashMap::new();
     for (mi, m) in raw.message.iter().enumerate() {
         let mk = |k: &str| format!("message[{mi}].{k}");
         let extended = match m.frame.as_ref().map(|f| f.get_ref().as_str()) {
@@ -193,7 +202,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
             ctx.err(m.id.span(), &mk("id"), msg);
             continue;
         };
-        if let Some((j, _)) = messages.iter().enumerate().find(|(_, p): &(usize, &Message)| p.id == id) {
+        if let Some(&j) = ids.get(&id) {
             ctx.err(m.id.span(), &mk("id"), format!("expected a unique id; 0x{:X} is already message[{j}]", id.raw()));
         }
         let period_ms = ctx.range(&m.period_ms, &mk("period_ms"), 0.1, 60_000.0, "a period in ms");
@@ -213,7 +222,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
         let name = m.name.get_ref().trim().to_string();
         if name.is_empty() {
             ctx.err(m.name.span(), &mk("name"), "expected a non-empty name");
-        } else if let Some(j) = names.iter().position(|n| *n == name) {
+        } else if let Some(&j) = names.get(&name) {
             // Names label the message on the screens and in `check`: two
             // messages with one name cannot be told apart.
             ctx.err(
@@ -222,7 +231,7 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
                 format!("expected a unique message name; \"{name}\" is already message[{j}]"),
             );
         }
-        names.push(name.clone());
+        names.entry(name.clone()).or_insert(mi);
         if length == 0 && !m.signal.is_empty() {
             ctx.err(
                 m.length.span(),
@@ -239,12 +248,13 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
         let mut used = [0u64; 8];
         let mut owner: Vec<(usize, u32)> = Vec::new();
         let mut signals: Vec<Signal> = Vec::new();
+        let mut signal_names: HashSet<String> = HashSet::new();
         for (si, s) in m.signal.iter().enumerate() {
             let sk = |k: &str| format!("message[{mi}].signal[{si}].{k}");
             let sname = s.name.get_ref().trim().to_string();
             if sname.is_empty() {
                 ctx.err(s.name.span(), &sk("name"), "expected a non-empty name");
-            } else if signals.iter().any(|o| o.name == sname) {
+            } else if !signal_names.insert(sname.clone()) {
                 ctx.err(
                     s.name.span(),
                     &sk("name"),
@@ -353,6 +363,28 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
                     ),
                 );
             }
+            // The values the signal can carry, in SI: refused when either end
+            // is not finite or lies past what a channel may hold, since every
+            // such frame would only be rejected when it arrives.
+            if scale.is_finite() && scale != 0.0 && offset.is_finite() {
+                let (raw_lo, raw_hi) = if s.signed {
+                    (-(2f64.powi(len as i32 - 1)), 2f64.powi(len as i32 - 1) - 1.0)
+                } else {
+                    (0.0, 2f64.powi(len as i32) - 1.0)
+                };
+                let ends = [raw_lo, raw_hi].map(|r| unit.to_si(r * scale + offset));
+                if let Some(end) = ends.iter().find(|v| !(v.is_finite() && v.abs() <= MAX_MAGNITUDE)) {
+                    ctx.err(
+                        s.scale.span(),
+                        &sk("scale"),
+                        format!(
+                            "expected a scale and offset whose range fits ±{MAX_MAGNITUDE:e} in SI units; {len} {} bits scaled by {scale:e} reach {end:e} {}",
+                            if s.signed { "signed" } else { "unsigned" },
+                            unit.dimension.si_unit(),
+                        ),
+                    );
+                }
+            }
             let min = s.min.as_ref().map(|v| *v.get_ref());
             let max = s.max.as_ref().map(|v| *v.get_ref());
             for (v, key) in [(&s.min, "min"), (&s.max, "max")] {
@@ -390,19 +422,49 @@ pub(super) fn validate(ctx: &mut Ctx<'_>) -> Option<Signals> {
                 "message has no signals; its frames will be counted but not decoded",
             );
         }
+        ids.entry(id).or_insert(messages.len());
         messages.push(Message { id, name, period_ns: (period_ms * 1e6).round() as i64, length, fd: m.fd, signals });
+    }
+    // The decoder numbers messages with 16 bits, one value kept for "none".
+    if messages.len() > MAX_MESSAGES
+        && let Some(m) = raw.message.get(MAX_MESSAGES)
+    {
+        ctx.err(
+            m.id.span(),
+            &format!("message[{MAX_MESSAGES}]"),
+            format!("expected at most {MAX_MESSAGES} messages in a signal map, found {}", raw.message.len()),
+        );
     }
 
     // One channel fed by several signals: usable, but the latest sample wins.
-    let mut fed: Vec<(&str, String)> = Vec::new();
+    // (A map: the first signal feeding each channel, found in constant time.)
+    let mut fed: HashMap<&str, (usize, usize)> = HashMap::new();
+    // Channels past the canonical ones, each of which takes a channel id.
+    let mut new_channels = 0usize;
     for (mi, m) in messages.iter().enumerate() {
         for (si, s) in m.signal_iter_indexed() {
-            if let Some((_, first)) = fed.iter().find(|(c, _)| *c == s.channel) {
-                let span = raw.message[mi].signal[si].channel.span();
+            let Some(raw_signal) = raw.message.get(mi).and_then(|r| r.signal.get(si)) else { continue };
+            if let Some(&(fm, fs)) = fed.get(s.channel.as_str()) {
+                let span = raw_signal.channel.span();
                 let key = format!("message[{mi}].signal[{si}].channel");
+                let first = format!("{} {}", messages[fm].name, messages[fm].signals[fs].name);
                 ctx.warn(span, &key, format!("channel {} is also fed by {first}; the latest sample wins", s.channel));
             } else {
-                fed.push((&s.channel, format!("{} {}", m.name, s.name)));
+                fed.insert(&s.channel, (mi, si));
+                if !CANONICAL.iter().any(|(n, _)| *n == s.channel) {
+                    new_channels += 1;
+                    if new_channels == MAX_CHANNELS - CANONICAL.len() + 1 {
+                        ctx.err(
+                            raw_signal.channel.span(),
+                            &format!("message[{mi}].signal[{si}].channel"),
+                            format!(
+                                "expected at most {} channels besides the {} canonical ones; this is one more",
+                                MAX_CHANNELS - CANONICAL.len(),
+                                CANONICAL.len()
+                            ),
+                        );
+                    }
+                }
             }
         }
     }

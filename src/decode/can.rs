@@ -100,14 +100,21 @@ impl CanMap {
         let mut ext_index = Vec::new();
         let mut messages = Vec::with_capacity(signals.messages.len());
         let mut channel_message: Vec<(ChannelId, String)> = Vec::new();
+        // The channels already in `channel_message`: a set, so a map of
+        // 40 000 messages compiles in linear time.
+        let mut named = std::collections::HashSet::new();
         for (mi, m) in signals.messages.iter().enumerate() {
             match m.id {
                 CanId::Standard(id) => std_index[id as usize] = mi as u16,
                 CanId::Extended(id) => ext_index.push((id, mi as u16)),
             }
-            let compiled: Vec<CompiledSignal> = m.signals.iter().map(|s| compile_signal(m, s, channels)).collect();
+            // A signal whose channel does not fit the table is not decoded;
+            // `check` refuses a map with more channels than the table holds,
+            // so a validated map never meets this.
+            let compiled: Vec<CompiledSignal> =
+                m.signals.iter().filter_map(|s| compile_signal(m, s, channels)).collect();
             for s in &compiled {
-                if !channel_message.iter().any(|(c, _)| *c == s.channel) {
+                if named.insert(s.channel) {
                     channel_message.push((s.channel, m.name.clone()));
                 }
             }
@@ -253,9 +260,9 @@ fn extract<const N: usize>(buf: &[u8; N], s: &CompiledSignal) -> f64 {
     }
 }
 
-fn compile_signal(m: &Message, s: &Signal, channels: &mut ChannelTable) -> CompiledSignal {
+fn compile_signal(m: &Message, s: &Signal, channels: &mut ChannelTable) -> Option<CompiledSignal> {
     let dim = canonical_dimension(&s.channel).unwrap_or(s.unit.dimension);
-    let channel = channels.intern(&s.channel, dim);
+    let channel = channels.try_intern(&s.channel, dim).ok()?;
     channels.expect_period(channel, m.period_ns);
     let positions = signal_bits(s.start_bit, s.bit_length, s.byte_order);
     let (lo, hi, shift) = match s.byte_order {
@@ -278,7 +285,7 @@ fn compile_signal(m: &Message, s: &Signal, channels: &mut ChannelTable) -> Compi
         ByteOrder::Little => lsb,
         ByteOrder::Big => (7u32.saturating_sub(lsb / 8)) * 8 + lsb % 8,
     };
-    CompiledSignal {
+    Some(CompiledSignal {
         channel,
         lo: lo as u8,
         nbytes: (hi - lo + 1) as u8,
@@ -295,7 +302,7 @@ fn compile_signal(m: &Message, s: &Signal, channels: &mut ChannelTable) -> Compi
         si_offset: s.unit.offset,
         min: s.min.unwrap_or(f64::NEG_INFINITY),
         max: s.max.unwrap_or(f64::INFINITY),
-    }
+    })
 }
 
 /// The raw integer a physical value encodes to, saturated to what the

@@ -17,10 +17,21 @@ pub mod syntax;
 
 pub use can::{CanCounters, CanMap, Sample};
 
+use std::collections::HashMap;
+
 use crate::channel::{ChannelId, ChannelTable, canonical_dimension, ch};
 use crate::config::Signals;
 use crate::event::{Event, Payload, SourceId, SourceKind, TimeNs};
 use crate::units::{Dimension, parse_unit};
+
+pub use crate::channel::MAX_MAGNITUDE;
+
+/// Whether a decoded value (SI) may enter the channel store: finite and
+/// within [`MAX_MAGNITUDE`] (NaN fails the comparison).
+#[inline]
+pub fn admissible(value: f64) -> bool {
+    value.abs() <= MAX_MAGNITUDE
+}
 
 /// Decode problems of one source.
 #[derive(Clone, Debug, Default, PartialEq, serde::Serialize)]
@@ -29,6 +40,9 @@ pub struct SourceDecodeStats {
     pub parse_errors: u64,
     /// The most recent parse error, for display.
     pub last_error: Option<String>,
+    /// Adapter replies read (acknowledgements, refusals, status, version,
+    /// serial number): what a serial CAN adapter said that was not a frame.
+    pub replies: u64,
 }
 
 /// Turns events into samples.
@@ -39,7 +53,10 @@ pub struct Decoder {
     per_source: Vec<SourceDecodeStats>,
     lines_period_ns: TimeNs,
     /// Line-telemetry keys seen, with their channel.
-    line_keys: Vec<(String, ChannelId)>,
+    line_keys: HashMap<String, ChannelId>,
+    /// Values rejected for being non-finite or beyond [`MAX_MAGNITUDE`]
+    /// after decoding and conversion to SI: never stored, counted here.
+    pub rejected_values: u64,
 }
 
 impl Decoder {
@@ -58,7 +75,8 @@ impl Decoder {
             can,
             per_source: Vec::new(),
             lines_period_ns: signals.lines_period_ns,
-            line_keys: Vec::new(),
+            line_keys: HashMap::new(),
+            rejected_values: 0,
         }
     }
 
@@ -67,15 +85,29 @@ impl Decoder {
         self.per_source.get(source.0 as usize).cloned().unwrap_or_default()
     }
 
-    /// Counts a parse error against `source`.
-    pub fn parse_error(&mut self, source: SourceId, message: String) {
+    fn stats_mut(&mut self, source: SourceId) -> &mut SourceDecodeStats {
         let i = source.0 as usize;
         if self.per_source.len() <= i {
             self.per_source.resize(i + 1, SourceDecodeStats::default());
         }
-        let s = &mut self.per_source[i];
+        &mut self.per_source[i]
+    }
+
+    /// Counts a parse error against `source`.
+    pub fn parse_error(&mut self, source: SourceId, message: String) {
+        let s = self.stats_mut(source);
         s.parse_errors += 1;
         s.last_error = Some(message);
+    }
+
+    /// Counts an adapter reply from `source`.
+    pub fn reply(&mut self, source: SourceId) {
+        self.stats_mut(source).replies += 1;
+    }
+
+    /// Total adapter replies over all sources.
+    pub fn replies(&self) -> u64 {
+        self.per_source.iter().map(|s| s.replies).sum()
     }
 
     /// Total parse errors over all sources.
@@ -86,6 +118,24 @@ impl Decoder {
     /// Decodes one event from a source of `kind`, appending samples to `out`.
     #[inline]
     pub fn decode(&mut self, ev: &Event, kind: SourceKind, out: &mut Vec<Sample>) {
+        let start = out.len();
+        self.decode_any(ev, kind, out);
+        // One gate for every protocol: a value that is not finite, or too
+        // large to stay finite in a display unit or a derived quantity, is
+        // rejected and counted, never stored.
+        if !out[start..].iter().all(|s| admissible(s.value)) {
+            let before = out.len();
+            let mut i = 0;
+            out.retain(|s| {
+                let keep = i < start || admissible(s.value);
+                i += 1;
+                keep
+            });
+            self.rejected_values += (before - out.len()) as u64;
+        }
+    }
+
+    fn decode_any(&mut self, ev: &Event, kind: SourceKind, out: &mut Vec<Sample>) {
         match (&ev.payload, kind) {
             (Payload::Can(frame), _) => self.can.decode(ev.t_ns, frame, out),
             (Payload::Line(line), SourceKind::Nmea) => self.decode_nmea(ev.t_ns, ev.source, line, out),
@@ -98,7 +148,7 @@ impl Decoder {
             // This is its one parse in a replay.
             (Payload::Line(line), SourceKind::Can) => match serial_line::adapter_message(line) {
                 Ok(Some(frame)) => self.can.decode(ev.t_ns, &frame, out),
-                Ok(None) => {}
+                Ok(None) => self.reply(ev.source),
                 Err(e) => self.parse_error(ev.source, serial_line::adapter_error(&e)),
             },
             _ => {}
@@ -160,17 +210,111 @@ impl Decoder {
                 );
                 return;
             }
-            let channel = match self.line_keys.iter().find(|(k, _)| k == f.key) {
-                Some((_, c)) => *c,
-                None => {
-                    let c = self.channels.intern(f.key, dim);
-                    self.channels.expect_period(c, self.lines_period_ns);
-                    self.line_keys.push((f.key.to_string(), c));
-                    c
-                }
+            let channel = match self.line_keys.get(f.key) {
+                Some(c) => *c,
+                None => match self.channels.try_intern(f.key, dim) {
+                    Ok(c) => {
+                        self.channels.expect_period(c, self.lines_period_ns);
+                        self.line_keys.insert(f.key.to_string(), c);
+                        c
+                    }
+                    Err(e) => {
+                        out.truncate(start);
+                        self.parse_error(source, format!("line telemetry: {e}"));
+                        return;
+                    }
+                },
             };
             let value = unit.map_or(f.value, |u| u.to_si(f.value));
             out.push(Sample { t_ns, channel, value, valid: value.is_finite() });
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::event::{CanFrame, CanId, DataFrame};
+
+    fn line(t_ns: TimeNs, body: &str) -> Event {
+        let text = format!("{body} #{:02X}", lines::crc8(body.as_bytes()));
+        Event::new(t_ns, SourceId(2), Payload::Line(text.into_bytes()))
+    }
+
+    // Issue 13, item 9: 1e308 m/s was stored (and shown as inf km/h), and
+    // 1e305 kWh became inf J in the store, while nothing was counted.
+    #[test]
+    fn values_not_finite_or_too_large_in_si_are_rejected_and_counted() {
+        let signals = crate::config::ConfigSet::embedded().signals;
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        d.decode(&line(1, "vehicle.speed=1e308 battery.soc=0.5"), SourceKind::Lines, &mut out);
+        d.decode(&line(2, "battery.energy[kWh]=1e305"), SourceKind::Lines, &mut out);
+        d.decode(&line(3, "battery.energy[kWh]=1e23"), SourceKind::Lines, &mut out);
+        assert_eq!(out.len(), 2, "{out:?}");
+        assert_eq!(out[0].channel, ch::BATTERY_SOC);
+        assert_eq!(out[1].value, 1e23 * 3.6e6, "a large value that fits is kept");
+        assert_eq!((d.rejected_values, d.parse_errors()), (2, 0));
+        assert!(admissible(MAX_MAGNITUDE) && admissible(-1.8e19) && !admissible(f64::INFINITY));
+    }
+
+    // Issue 13, item 9: a 64-bit signal scaled by 1e300 decoded to inf with
+    // `out_of_range: 0, rejected_values: 0`.
+    #[test]
+    fn a_can_signal_that_scales_past_the_limit_is_rejected_and_counted() {
+        use crate::config::signals::{ByteOrder, Message, Signal};
+        let mut signals = crate::config::ConfigSet::embedded().signals;
+        let signal = Signal {
+            name: "big".into(),
+            channel: "x.big".into(),
+            start_bit: 0,
+            bit_length: 64,
+            byte_order: ByteOrder::Little,
+            signed: false,
+            scale: 1e300,
+            offset: 0.0,
+            unit_name: String::new(),
+            unit: parse_unit("").unwrap(),
+            min: None,
+            max: None,
+        };
+        let id = CanId::Standard(0x7F0);
+        signals.messages =
+            vec![Message { id, name: "m".into(), period_ns: 10_000_000, length: 8, fd: false, signals: vec![signal] }];
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        for data in [[0xFF; 8], [0; 8]] {
+            let frame = CanFrame::Data(DataFrame::new(id, &data).unwrap());
+            d.decode(&Event::new(1, SourceId(2), Payload::Can(frame)), SourceKind::Can, &mut out);
+        }
+        assert_eq!(out.len(), 1, "the zero frame decodes, the other is rejected: {out:?}");
+        assert_eq!(out[0].value, 0.0);
+        assert_eq!(d.rejected_values, 1);
+    }
+
+    // Issue 13, item 7: line telemetry interned every new key, and the
+    // 65 537th got the id of vehicle.speed and overwrote it.
+    #[test]
+    fn a_key_past_the_channel_limit_is_a_counted_error_not_a_reused_id() {
+        let signals = crate::config::ConfigSet::embedded().signals;
+        let mut d = Decoder::new(&signals);
+        let mut out = Vec::new();
+        let first = d.channels.len();
+        let room = crate::channel::MAX_CHANNELS - first;
+        for i in 0..room {
+            d.decode(&line(1, &format!("k{i}=1")), SourceKind::Lines, &mut out);
+        }
+        assert_eq!((out.len(), d.parse_errors()), (room, 0));
+        out.clear();
+        d.decode(&line(2, "one.more=7 vehicle.speed=50"), SourceKind::Lines, &mut out);
+        assert!(out.is_empty(), "the line is refused whole: {out:?}");
+        let stats = d.source_stats(SourceId(2));
+        assert_eq!(stats.parse_errors, 1);
+        assert!(stats.last_error.unwrap().contains("the channel table is full (65536 channels)"));
+        d.decode(&line(3, "vehicle.speed=50 k7=2"), SourceKind::Lines, &mut out);
+        assert_eq!(
+            out.iter().map(|s| (s.channel, s.value)).collect::<Vec<_>>(),
+            vec![(ch::VEHICLE_SPEED, 50.0), (ChannelId(first as u16 + 7), 2.0)]
+        );
     }
 }

@@ -1,8 +1,10 @@
 //! What one line from a serial port is, decided once, where the line is
-//! read: a CAN frame from a serial CAN adapter (slcan), adapter chatter to
-//! drop (acknowledgements, status replies), a bad adapter line with its
-//! error, or an NMEA sentence or line-telemetry line that the engine's
-//! [`Decoder`](super::Decoder) decodes into samples.
+//! read: a CAN frame from a serial CAN adapter (slcan), an adapter reply
+//! (acknowledgement, refusal, status, version, serial number: recorded as a
+//! line, counted as a reply), a bad adapter line with its error, or an NMEA
+//! sentence or line-telemetry line that the engine's
+//! [`Decoder`](super::Decoder) decodes into samples. Nothing read from the
+//! wire is dropped here: every line becomes an event.
 //!
 //! Adapter lines are parsed here, before the event exists, because the
 //! recording keeps a frame as a frame: what goes into the channel must
@@ -14,12 +16,13 @@
 use super::slcan::{self, FrameSyntaxError, SlcanMsg};
 use crate::event::{CanFrame, Payload, SourceKind};
 
-/// What an adapter message is: a frame, `None` for protocol chatter, or why
-/// it is not a valid message.
+/// What an adapter message is: a frame, `None` for a reply (acknowledgement,
+/// refusal, status, version, serial number), or why it is not a valid
+/// message.
 pub fn adapter_message(line: &[u8]) -> Result<Option<CanFrame>, FrameSyntaxError> {
     match slcan::parse(line)? {
         SlcanMsg::Frame { frame, .. } => Ok(Some(frame)),
-        // Acknowledgements and status replies are protocol chatter.
+        // Replies: the decoder counts them.
         _ => Ok(None),
     }
 }
@@ -31,15 +34,17 @@ pub fn adapter_error(e: &FrameSyntaxError) -> String {
 }
 
 /// The payload of one line from a serial source of `kind` (a serial CAN
-/// adapter's source is of kind [`SourceKind::Can`]), or `None` for a line
-/// that is not an event.
-pub fn payload_of(kind: SourceKind, line: &[u8]) -> Option<Payload> {
+/// adapter's source is of kind [`SourceKind::Can`]). An adapter's reply
+/// stays a line: recorded as it came, counted as a reply by the decoder
+/// (live and in a replay alike).
+pub fn payload_of(kind: SourceKind, line: &[u8]) -> Payload {
     match kind {
         SourceKind::Can => match adapter_message(line) {
-            Ok(frame) => frame.map(Payload::Can),
-            Err(e) => Some(Payload::BadLine { line: line.to_vec(), error: adapter_error(&e) }),
+            Ok(Some(frame)) => Payload::Can(frame),
+            Ok(None) => Payload::Line(line.to_vec()),
+            Err(e) => Payload::BadLine { line: line.to_vec(), error: adapter_error(&e) },
         },
-        _ => Some(Payload::Line(line.to_vec())),
+        _ => Payload::Line(line.to_vec()),
     }
 }
 
@@ -51,17 +56,20 @@ mod tests {
     #[test]
     fn adapter_lines_become_frames_chatter_or_bad_lines_with_their_error() {
         let frame = CanFrame::Data(DataFrame::new(CanId::Standard(0x123), &[0xAA, 0xBB]).unwrap());
-        assert_eq!(payload_of(SourceKind::Can, b"t1232AABB"), Some(Payload::Can(frame)));
-        assert_eq!(payload_of(SourceKind::Can, b""), None, "an acknowledgement is not an event");
-        assert_eq!(payload_of(SourceKind::Can, b"F00"), None, "a status reply is not an event");
+        assert_eq!(payload_of(SourceKind::Can, b"t1232AABB"), Payload::Can(frame));
+        // Issue 13, item 5: replies were dropped before they became events.
+        for reply in [&b""[..], b"\x07", b"F00", b"V1013", b"v0101", b"NA123", b"z"] {
+            assert_eq!(payload_of(SourceKind::Can, reply), Payload::Line(reply.to_vec()), "a reply is kept");
+        }
         assert_eq!(
             payload_of(SourceKind::Can, b"t12"),
-            Some(Payload::BadLine {
+            Payload::BadLine {
                 line: b"t12".to_vec(),
                 error: "CAN adapter: column 4: expected 3 hex digits of a standard id".into()
-            }),
+            },
             "a bad line keeps its bytes and the error of its one parse"
         );
+        assert!(matches!(payload_of(SourceKind::Can, b"hello world"), Payload::BadLine { .. }));
     }
 
     #[test]
@@ -69,7 +77,7 @@ mod tests {
         // Not parsed here: a bad NMEA sentence is still a line, and the
         // decoder finds and counts its error when it decodes it.
         for kind in [SourceKind::Nmea, SourceKind::Lines] {
-            assert_eq!(payload_of(kind, b"$GP"), Some(Payload::Line(b"$GP".to_vec())));
+            assert_eq!(payload_of(kind, b"$GP"), Payload::Line(b"$GP".to_vec()));
         }
     }
 }

@@ -50,9 +50,11 @@ pub enum SlcanMsg {
     Nack,
     /// Reply to `F`: the status flags byte (`Fxx`).
     Status(u8),
-    /// Any other reply, kept as it came: version `Vhhss`, serial number
-    /// `Nxxxx`, the `z`/`Z` acknowledgement of a transmitted frame, or a
-    /// letter this parser does not know.
+    /// Any other reply, kept as it came: version `Vhhss` (hardware and
+    /// firmware) or `vhhss` (firmware), serial number `Nxxxx`, the `z`/`Z`
+    /// acknowledgement of a transmitted frame. A line that begins with any
+    /// other letter is not a reply but an error: a line of noise or a
+    /// foreign protocol must be counted, not taken for adapter chatter.
     Other(Vec<u8>),
 }
 
@@ -60,6 +62,10 @@ const DIGITS: &[u8; 16] = b"0123456789ABCDEF";
 
 /// Bit rates of the `Sn` command, in bit/s, indexed by `n`.
 const BITRATES: [u32; 9] = [10_000, 20_000, 50_000, 100_000, 125_000, 250_000, 500_000, 800_000, 1_000_000];
+
+/// What an adapter message may begin with.
+const EXPECTED_MESSAGE: &str =
+    "a frame letter (t T r R d D b B), a reply (F status, V or v version, N serial, z or Z), BEL or an empty message";
 
 /// An error at the 0-based index `i`.
 #[inline(always)]
@@ -107,13 +113,14 @@ pub fn parse(line: &[u8]) -> Result<SlcanMsg, FrameSyntaxError> {
             }
             Ok(SlcanMsg::Status((hi << 4) | lo))
         }
-        c if c.is_ascii_alphabetic() => {
+        b'z' | b'Z' if line.len() > 1 => Err(err(1, "the end of a transmit acknowledgement (z or Z alone)")),
+        b'V' | b'v' | b'N' | b'z' | b'Z' => {
             if let Some(i) = line.iter().position(|b| !(0x20..=0x7E).contains(b)) {
                 return Err(err(i, "printable ASCII"));
             }
             Ok(SlcanMsg::Other(line.to_vec()))
         }
-        _ => Err(err(0, "a frame letter (t T r R d D b B), a reply letter, BEL or an empty message")),
+        _ => Err(err(0, EXPECTED_MESSAGE)),
     }
 }
 
@@ -364,6 +371,18 @@ mod tests {
         assert_eq!(parse(b"NA123"), Ok(SlcanMsg::Other(b"NA123".to_vec())));
         assert_eq!(parse(b"z"), Ok(SlcanMsg::Other(b"z".to_vec())));
         assert_eq!(parse(b"Z"), Ok(SlcanMsg::Other(b"Z".to_vec())));
+        assert_eq!(parse(b"v0101"), Ok(SlcanMsg::Other(b"v0101".to_vec())));
+    }
+
+    // Issue 13, item 5: any line that began with a letter was taken for a
+    // reply and dropped, so noise on an adapter's port vanished uncounted.
+    #[test]
+    fn a_line_of_another_letter_is_an_error_not_a_reply() {
+        for line in [&b"hello world"[..], b"Q", b"OK", b"xyz", b"ERROR"] {
+            assert_eq!(parse(line), Err(FrameSyntaxError { column: 1, expected: EXPECTED_MESSAGE }));
+        }
+        let transmit = "the end of a transmit acknowledgement (z or Z alone)";
+        assert_eq!(parse(b"ZZZZ"), Err(FrameSyntaxError { column: 2, expected: transmit }));
     }
 
     #[test]

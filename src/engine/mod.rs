@@ -611,6 +611,7 @@ impl Engine {
                 gaps: h.gaps,
                 parse_errors: ds.parse_errors,
                 last_error: ds.last_error,
+                replies: ds.replies,
                 link: h.link,
                 link_reason: (h.link.is_some_and(|l| l != LinkState::Up) && !h.link_reason.is_empty())
                     .then(|| h.link_reason.clone()),
@@ -622,7 +623,8 @@ impl Engine {
         let mut counters = self.counters;
         counters.out_of_range = self.decoder.can.counters.out_of_range;
         counters.parse_errors = self.decoder.parse_errors();
-        counters.rejected_values = self.rejected_values;
+        counters.rejected_values = self.rejected_values + self.decoder.rejected_values;
+        counters.replies = self.decoder.replies();
         Snapshot {
             t_ns,
             channels,

@@ -38,6 +38,9 @@ pub struct SourceView {
     pub gaps: u64,
     pub parse_errors: u64,
     pub last_error: Option<String>,
+    /// Adapter replies read (a serial CAN adapter's acknowledgements,
+    /// refusals, status, version and serial number).
+    pub replies: u64,
     pub link: Option<LinkState>,
     /// Why the link is not up (the source's own words), while it is not.
     pub link_reason: Option<String>,
@@ -58,8 +61,11 @@ pub struct Counters {
     pub parse_errors: u64,
     /// Gaps in stream time over 10 s that were jumped rather than filled.
     pub time_jumps: u64,
-    /// Derived values rejected for being non-finite.
+    /// Values rejected for being non-finite or too large to stay finite:
+    /// decoded samples and derived quantities.
     pub rejected_values: u64,
+    /// Adapter replies read over all sources.
+    pub replies: u64,
 }
 
 /// The engine's published state.

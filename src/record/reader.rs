@@ -134,6 +134,10 @@ pub enum BodyError {
     /// Another header line after the header ended (cut to 40 characters).
     #[error("unexpected header line in the body: \"{0}\"")]
     HeaderLineInBody(String),
+    /// A line that names a new source when the session already holds as
+    /// many as a source id can number: refused, so no id is reused.
+    #[error("{0}")]
+    TooManySources(#[from] crate::event::SourceTableFull),
     /// A line that is neither a CAN frame nor an event (its start, cut to 30
     /// characters).
     #[error("expected '(' (CAN frame) or '[' (event) at the start, found \"{0}\"")]
@@ -462,7 +466,7 @@ impl<R: Read> RecordingReader<R> {
                         ),
                     ));
                 }
-                header.sources.intern(&name, kind);
+                header.sources.try_intern(&name, kind).map_err(|e| self.header_err(line_no, e.to_string()))?;
             } else if let Some(rest) = line.strip_prefix("%config ") {
                 let config = self.read_config(rest, line_no)?;
                 header.configs.push(config);
@@ -646,7 +650,7 @@ impl<R: Read> RecordingReader<R> {
                         }
                         id
                     }
-                    None => self.header.sources.intern(&iface, SourceKind::Can),
+                    None => self.header.sources.try_intern(&iface, SourceKind::Can)?,
                 };
                 self.last_can_source = Some((raw.to_vec(), src));
                 Ok(Some(Event::new(t_ns, src, Payload::Can(frame))))
@@ -701,7 +705,7 @@ impl<R: Read> RecordingReader<R> {
                             kind.as_str(),
                         ));
                     }
-                    self.header.sources.intern(&name, kind);
+                    self.header.sources.try_intern(&name, kind)?;
                     Ok(None)
                 } else {
                     Err(BodyError::HeaderLineInBody(clipped(&String::from_utf8_lossy(line), 40).into_owned()))

@@ -97,6 +97,9 @@ pub struct SourceQuality {
     /// Pauses longer than half a second.
     pub gaps: u64,
     pub parse_errors: u64,
+    /// A serial CAN adapter's replies (acknowledgements, refusals, status,
+    /// version, serial number): read and kept, neither frames nor errors.
+    pub replies: u64,
     pub can_error_frames: u64,
     /// Frames the kernel dropped before termvel read them.
     pub lost_frames: u64,
@@ -247,6 +250,7 @@ impl Run {
                     rate_per_s: if span > 0.0 { h.events as f64 / span } else { 0.0 },
                     gaps: h.gaps,
                     parse_errors: engine.decoder.source_stats(id).parse_errors,
+                    replies: engine.decoder.source_stats(id).replies,
                     can_error_frames: h.error_frames,
                     lost_frames: h.lost,
                     first_s: rel(h.first_t_ns),

@@ -33,6 +33,15 @@ impl Proto {
             Proto::Lines => SourceKind::Lines,
         }
     }
+    /// The word for the protocol in a spec (`proto=…`).
+    pub fn word(self) -> &'static str {
+        match self {
+            Proto::Nmea => "nmea",
+            Proto::Slcan => "slcan",
+            Proto::Lines => "lines",
+        }
+    }
+
     fn default_name(self) -> &'static str {
         match self {
             Proto::Nmea => "gnss",
@@ -41,6 +50,10 @@ impl Proto {
         }
     }
 }
+
+/// Baud rates a serial input may ask for: from the slowest rate a UART
+/// offers to the fastest USB serial adapters.
+pub const BAUD_RANGE: std::ops::RangeInclusive<u32> = 50..=12_000_000;
 
 /// One serial input: `PATH[,baud=N][,proto=nmea|slcan|lines][,bitrate=N][,name=NAME]`.
 #[derive(Clone, Debug, PartialEq)]
@@ -71,11 +84,26 @@ impl FromStr for SerialSpec {
             .ok_or("expected a device path first, e.g. /dev/ttyUSB0")?
             .to_string();
         let mut spec = SerialSpec { path, baud: 115_200, proto: Proto::Nmea, can_bitrate: 500_000, name: None };
+        // Each option once: a second value would silently win.
+        let mut given: Vec<&str> = Vec::new();
         for p in parts {
             let (k, v) =
                 p.split_once('=').ok_or_else(|| format!("expected key=value after the path, found \"{p}\""))?;
+            if given.contains(&k) {
+                return Err(format!("{k}: given twice; give each option once"));
+            }
             match k {
-                "baud" => spec.baud = v.parse().map_err(|_| format!("baud: expected a number, found \"{v}\""))?,
+                "baud" => {
+                    let baud: u32 = v.parse().map_err(|_| format!("baud: expected a number, found \"{v}\""))?;
+                    if !BAUD_RANGE.contains(&baud) {
+                        return Err(format!(
+                            "baud: expected a rate from {} to {} baud, found {baud}",
+                            BAUD_RANGE.start(),
+                            BAUD_RANGE.end()
+                        ));
+                    }
+                    spec.baud = baud;
+                }
                 "bitrate" => {
                     spec.can_bitrate = v.parse().map_err(|_| format!("bitrate: expected a number, found \"{v}\""))?
                 }
@@ -93,6 +121,13 @@ impl FromStr for SerialSpec {
                 "name" => return Err(format!("name: expected letters, digits, '_' or '-', found \"{v}\"")),
                 _ => return Err(format!("expected baud, proto, bitrate or name, found \"{k}\"")),
             }
+            given.push(k);
+        }
+        if given.contains(&"bitrate") && spec.proto != Proto::Slcan {
+            return Err(format!(
+                "bitrate: sets a serial CAN adapter's bus rate, so it needs proto=slcan; this input is proto={}",
+                spec.proto.word()
+            ));
         }
         if spec.proto == Proto::Slcan {
             slcan::open_commands(spec.can_bitrate).map_err(|e| format!("bitrate: {e}"))?;
@@ -106,8 +141,9 @@ impl FromStr for SerialSpec {
 pub const MAX_LINE: usize = 4096;
 
 /// Splits a byte stream into lines: NMEA and line telemetry end lines with
-/// LF (a CR before it is dropped); an adapter ends its messages with CR, or
-/// sends a bare BEL for a refusal.
+/// LF (a CR before it is dropped, an empty line is nothing); an adapter ends
+/// its messages with CR, or sends a bare BEL for a refusal, and a bare CR
+/// is its acknowledgement, so an adapter's empty message is a line too.
 #[derive(Debug)]
 pub struct LineSplitter {
     proto: Proto,
@@ -134,7 +170,7 @@ impl LineSplitter {
                 if self.proto != Proto::Slcan {
                     l = l.strip_suffix(b"\r").unwrap_or(l);
                 }
-                if !l.is_empty() {
+                if !l.is_empty() || self.proto == Proto::Slcan {
                     line(l);
                 }
                 self.buf.clear();
@@ -149,11 +185,11 @@ impl LineSplitter {
     }
 }
 
-/// Stamps one line as the event it stands for; what it is (a frame, chatter,
-/// a bad line with its error, a sentence) is the decode layer's call, made
-/// once here.
-pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Option<Event> {
-    decode::serial_line::payload_of(proto.source_kind(), line).map(|p| Event::new(t_ns, source, p))
+/// Stamps one line as the event it stands for; what it is (a frame, a
+/// reply, a bad line with its error, a sentence) is the decode layer's
+/// call, made once here. Every line is an event: nothing read is dropped.
+pub fn event_of(proto: Proto, t_ns: i64, source: SourceId, line: &[u8]) -> Event {
+    Event::new(t_ns, source, decode::serial_line::payload_of(proto.source_kind(), line))
 }
 
 /// Reads `spec.path` until shutdown.
@@ -214,7 +250,7 @@ pub async fn run(spec: SerialSpec, source: SourceId, clock: SessionClock, tx: Ev
                     // One stamp for what one read returned: it had all
                     // arrived by now.
                     let t = link.clock.now_ns();
-                    split.feed(&buf[..n], |l| events.extend(event_of(spec.proto, t, source, l)));
+                    split.feed(&buf[..n], |l| events.push(event_of(spec.proto, t, source, l)));
                     if !link.send_all(&mut events).await {
                         return;
                     }
@@ -249,6 +285,25 @@ mod tests {
         assert!("/dev/x,speed=1".parse::<SerialSpec>().unwrap_err().contains("found \"speed\""));
     }
 
+    // Issue 13, item 17: `baud=0` ran at "0 baud", an option given twice
+    // silently took the last value, and `bitrate=` was accepted (and
+    // ignored) on an NMEA port.
+    #[test]
+    fn specs_refuse_what_cannot_work_and_say_which_option() {
+        let e = |s: &str| s.parse::<SerialSpec>().unwrap_err();
+        assert_eq!(e("/dev/x,baud=0"), "baud: expected a rate from 50 to 12000000 baud, found 0");
+        assert_eq!(e("/dev/x,baud=9600,baud=115200"), "baud: given twice; give each option once");
+        assert_eq!(e("/dev/x,proto=slcan,proto=nmea"), "proto: given twice; give each option once");
+        assert_eq!(e("/dev/x,name=a,name=b"), "name: given twice; give each option once");
+        assert_eq!(
+            e("/dev/x,bitrate=500000,proto=nmea"),
+            "bitrate: sets a serial CAN adapter's bus rate, so it needs proto=slcan; this input is proto=nmea"
+        );
+        assert!(e("/dev/x,bitrate=500000").contains("proto=nmea"), "NMEA is the default protocol");
+        assert_eq!("/dev/x,baud=50".parse::<SerialSpec>().map(|s| s.baud), Ok(50));
+        assert!("/dev/x,bitrate=250000,proto=slcan".parse::<SerialSpec>().is_ok(), "in any order");
+    }
+
     #[test]
     fn lines_split_per_protocol() {
         let mut got: Vec<Vec<u8>> = Vec::new();
@@ -260,6 +315,11 @@ mod tests {
         let mut s = LineSplitter::new(Proto::Slcan);
         s.feed(b"t1232AABB\r\x07t12300\r", |l| got.push(l.to_vec()));
         assert_eq!(got, vec![b"t1232AABB".to_vec(), vec![0x07], b"t12300".to_vec()]);
+        // Issue 13, item 5: an adapter's acknowledgement (a bare CR) was
+        // dropped as an empty line.
+        got.clear();
+        s.feed(b"\r\rV1013\r", |l| got.push(l.to_vec()));
+        assert_eq!(got, vec![b"".to_vec(), b"".to_vec(), b"V1013".to_vec()]);
         // A run without line ends is cut at MAX_LINE.
         let mut n = 0;
         let mut s = LineSplitter::new(Proto::Lines);
@@ -273,16 +333,16 @@ mod tests {
     #[test]
     fn adapter_lines_become_frames_or_bad_lines_decoded_once() {
         let src = SourceId(2);
-        assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").unwrap().payload, Payload::Can(_)));
-        assert!(event_of(Proto::Slcan, 1, src, b"").is_none(), "an acknowledgement is not an event");
-        let bad = event_of(Proto::Slcan, 7, src, b"t12").unwrap();
+        assert!(matches!(event_of(Proto::Slcan, 1, src, b"t1232AABB").payload, Payload::Can(_)));
+        assert_eq!(event_of(Proto::Slcan, 1, src, b"").payload, Payload::Line(vec![]), "an acknowledgement is kept");
+        let bad = event_of(Proto::Slcan, 7, src, b"t12");
         assert_eq!((bad.t_ns, bad.source), (7, src));
         let Payload::BadLine { line, error } = &bad.payload else { panic!("a bad line is kept: {bad:?}") };
         assert_eq!(
             (line.as_slice(), error.as_str()),
             (&b"t12"[..], "CAN adapter: column 4: expected 3 hex digits of a standard id")
         );
-        assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").unwrap().payload, Payload::Line(_)));
+        assert!(matches!(event_of(Proto::Nmea, 1, src, b"$GP").payload, Payload::Line(_)));
 
         // The decoder takes the error it carries, and records it as the
         // line it was; a replay of that line finds the same error.

@@ -5,6 +5,14 @@
 //! measures how long each event waited between arrival and being applied,
 //! and writes every event to the recording: nothing that reached the
 //! stream is dropped.
+//!
+//! Time never goes back in what it applies and records. Sources stamp on
+//! arrival and the clock ticks are stamped here, so a tick taken while
+//! events still wait in the channel, or two sources that stamp and send in
+//! the opposite order, would otherwise record a reversal. Each batch is
+//! applied in stamp order, and an event or tick stamped before the last
+//! one applied is applied at that last time (it cannot have been applied
+//! earlier); the latency histogram still measures from its arrival.
 
 use std::fs::File;
 use std::path::PathBuf;
@@ -18,7 +26,7 @@ use super::latency::{LatencyHistogram, record_latency};
 use super::pipeline::{Pass, Pipeline, RecordingOutcome};
 use super::sink::{SnapshotSink, StreamStatus};
 use crate::engine::{Engine, Snapshot};
-use crate::event::{Event, OPERATOR, Payload, SESSION, SourceTable};
+use crate::event::{Event, OPERATOR, Payload, SESSION, SourceTable, TimeNs};
 use crate::record::RecordingWriter;
 use crate::sources::link::SessionClock;
 
@@ -57,12 +65,16 @@ struct State<'k, K> {
     events: u64,
     sink: &'k mut K,
     snaps: Vec<Snapshot>,
+    /// Stamp of the last event applied: none is applied before it.
+    last_applied_ns: TimeNs,
 }
 
 impl<K: SnapshotSink> State<'_, K> {
-    fn handle(&mut self, ev: Event) {
+    fn handle(&mut self, mut ev: Event) {
         self.events += 1;
         let arrival = ev.t_ns;
+        ev.t_ns = ev.t_ns.max(self.last_applied_ns);
+        self.last_applied_ns = ev.t_ns;
         self.pipe.step(&ev, &self.sources, Pass::First, &mut self.snaps);
         self.sink.event(&ev, &self.sources);
         if ev.source != SESSION
@@ -104,6 +116,7 @@ pub async fn run<K: SnapshotSink>(
         events: 0,
         sink,
         snaps: Vec::new(),
+        last_applied_ns: TimeNs::MIN,
     };
     let mut tick = tokio::time::interval(TICK);
     tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
@@ -116,6 +129,9 @@ pub async fn run<K: SnapshotSink>(
                 if n == 0 {
                     break "every source ended";
                 }
+                // Sources stamp before they send, so two of them can arrive
+                // out of stamp order; a stable sort keeps each one's order.
+                batch.sort_by_key(|e| e.t_ns);
                 for ev in batch.drain(..) {
                     st.handle(ev);
                 }
@@ -148,6 +164,7 @@ pub async fn run<K: SnapshotSink>(
                 if n == 0 {
                     break;
                 }
+                batch.sort_by_key(|e| e.t_ns);
                 for ev in batch.drain(..) {
                     st.handle(ev);
                 }
@@ -202,6 +219,7 @@ mod tests {
     use super::*;
     use crate::config::ConfigSet;
     use crate::engine::EngineOptions;
+    use crate::event::SourceKind;
     use crate::record::RecordingReader;
     use crate::stream::control::{Operator, Playback};
 
@@ -216,6 +234,53 @@ mod tests {
         fn status(&mut self, status: &StreamStatus) {
             self.statuses.push(status.clone());
         }
+    }
+
+    // Issue 13, item 8: a tick stamped at processing time went into the
+    // recording before events that had arrived (and been stamped) earlier,
+    // and a batch was applied in channel order, not stamp order: a busy live
+    // recording went back in time.
+    #[tokio::test]
+    async fn a_live_recording_never_goes_back_in_time() {
+        let config = Arc::new(ConfigSet::embedded());
+        let mut sources = SourceTable::default();
+        let (a, b) = (sources.intern("a", SourceKind::Lines), sources.intern("b", SourceKind::Lines));
+        let dir = tempfile::tempdir().unwrap();
+        let rec = crate::record::create_recording(dir.path(), "live", &config, &sources).unwrap();
+        let path = rec.1.clone();
+        let clock = SessionClock::start();
+        let opts = LiveOptions {
+            engine: Engine::new(config, EngineOptions::default()),
+            sources,
+            clock,
+            recorder: Some(rec),
+            latency: None,
+            duration: Some(Duration::from_millis(600)),
+        };
+        let (tx, input) = mpsc::channel(1 << 14);
+        let (_ctl, controls) = mpsc::channel(4);
+        let (stop, _stopped) = watch::channel(false);
+        // Events stamped now but sent after a few ticks have been stamped
+        // (a busy pipeline), and two sources that send in the opposite
+        // order of their stamps.
+        let line = |t, src| Event::new(t, src, Payload::Line(b"x=1 #00".to_vec()));
+        let early = clock.now_ns();
+        tokio::spawn(async move {
+            tokio::time::sleep(Duration::from_millis(250)).await;
+            for k in 0..2000 {
+                tx.send(line(early + 10 * k + 5, a)).await.unwrap();
+                tx.send(line(early + 10 * k, b)).await.unwrap();
+            }
+        });
+        let mut shown = Shown::default();
+        let out = run(opts, input, controls, stop, &mut shown).await;
+        let mut r = RecordingReader::open(&path).unwrap();
+        let times: Vec<TimeNs> = std::iter::from_fn(|| r.next_event()).map(|e| e.t_ns).collect();
+        // Every event taken, and the engine's notes beside them.
+        assert!(times.len() as u64 >= out.events, "{} < {}", times.len(), out.events);
+        assert!(times.len() > 4000, "the events and at least two ticks: {}", times.len());
+        let back = times.windows(2).filter(|w| w[1] < w[0]).count();
+        assert_eq!(back, 0, "the recording goes back in time {back} times");
     }
 
     #[tokio::test(start_paused = true)]

@@ -266,3 +266,55 @@ fn plan_says_whose_probability_it_prints_in_one_unit_of_distance() {
     // reaches the target at least as often over the same seeded trials.
     assert!(best >= planned, "best {best} < planned {planned}");
 }
+
+// Issue 13, item 17: `--every 1h` was refused though the help says 1ms to 1h.
+#[test]
+fn every_takes_the_whole_range_its_message_states() {
+    let o = termvel(&["replay", demo().to_str().unwrap(), "--headless", "--no-record", "--every", "1h"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let o = termvel(&["replay", demo().to_str().unwrap(), "--headless", "--no-record", "--every", "61min"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--every") && stderr(&o).contains("from 1ms to 1h"), "{}", stderr(&o));
+}
+
+// Issue 13, item 17: a serial spec with baud=0 ran "at 0 baud", an option
+// given twice took its last value, bitrate= was ignored on an NMEA port, and
+// one device could be given twice.
+#[test]
+fn live_refuses_serial_inputs_that_cannot_work_and_names_the_option() {
+    for (spec, says) in [
+        ("/dev/null,baud=0", "baud: expected a rate from 50 to 12000000 baud, found 0"),
+        ("/dev/null,baud=9600,baud=4800", "baud: given twice"),
+        (
+            "/dev/null,proto=nmea,bitrate=500000",
+            "bitrate: sets a serial CAN adapter's bus rate, so it needs proto=slcan",
+        ),
+    ] {
+        let o = termvel(&["live", "--serial", spec, "--headless", "--no-record"]);
+        assert_eq!(o.status.code(), Some(2), "{spec}");
+        let e = stderr(&o);
+        assert!(e.contains(&format!("'{spec}' for '--serial <SPEC>'")) && e.contains(says), "{spec}: {e}");
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let link = dir.path().join("port");
+    std::os::unix::fs::symlink("/dev/null", &link).unwrap();
+    let via_link = format!("{},name=other", link.display());
+    let o =
+        termvel(&["live", "--serial", "/dev/null", "--serial", &via_link, "--headless", "--no-record", "--for", "1s"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--serial: device /dev/null is given twice (as /dev/null and "), "{}", stderr(&o));
+}
+
+// Issue 13, item 17: `--can lo` was retried for ever as "lo is down" where
+// the kernel has no CAN support at all (and lo is no CAN interface anyway).
+#[test]
+fn live_can_on_a_machine_or_interface_without_can_says_so() {
+    let o = termvel(&["live", "--can", "lo", "--headless", "--no-record", "--for", "1s"]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(
+        e.contains("--can lo: this kernel has no CAN support") || e.contains("--can lo: lo is not a CAN interface"),
+        "{e}"
+    );
+    assert!(!e.contains("is down"), "{e}");
+}

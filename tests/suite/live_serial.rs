@@ -246,3 +246,65 @@ fn the_readme_senders_print_lines_termvel_accepts() {
     let bad = example.replace("83.21", "83.31");
     assert!(lines::parse(bad.as_bytes(), &mut fields).is_err());
 }
+
+// Issue 13, item 5: on an slcan port, lines that began with a letter but
+// were no frame (`hello world`, `ZZZZ`) and the adapter's replies (BEL,
+// version, serial number) were neither recorded nor counted. Issue 13,
+// item 8: a busy live recording held time reversals.
+#[test]
+fn an_adapter_port_records_or_counts_everything_and_never_goes_back_in_time() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut adapter = Pty::new();
+    let child = spawn_live(&[
+        "--serial".into(),
+        format!("{},proto=slcan,name=pt", adapter.path),
+        "--headless".into(),
+        "--every".into(),
+        "500ms".into(),
+        "--for".into(),
+        "3s".into(),
+        "--record-dir".into(),
+        dir.path().display().to_string(),
+    ]);
+    adapter.read_until(b"O\r", Duration::from_secs(10));
+    std::thread::sleep(Duration::from_millis(300));
+    let frame = slcan::encode(&speed_frame(250.0), None).unwrap();
+    // Replies to the three commands (two acknowledgements and a refusal),
+    // version, serial number, a transmit acknowledgement: six replies.
+    adapter.send(b"\r\r\x07V1013\rN1234\rz\r");
+    // Two lines that are no message at all.
+    adapter.send(b"hello world\rZZZZ\r");
+    // Then a busy bus: bursts of frames as fast as the pty takes them.
+    let burst: String = (0..200).map(|_| format!("{frame}\r")).collect();
+    for _ in 0..10 {
+        adapter.send(burst.as_bytes());
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    let out = child.wait_with_output().unwrap();
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let summary: serde_json::Value = serde_json::from_str(stdout.lines().last().unwrap()).unwrap();
+    let s = &summary["summary"];
+    assert_eq!((s["parse_errors"].as_u64(), s["replies"].as_u64()), (Some(2), Some(6)), "{summary}");
+    assert_eq!(s["can_frames"], 2000, "{summary}");
+    let rec = recording_in(dir.path());
+    let text = std::fs::read_to_string(&rec).unwrap();
+    assert!(text.contains("] pt line hello world\n") && text.contains("] pt line ZZZZ\n"), "bad lines kept");
+    assert!(text.contains("] pt line V1013\n") && text.contains("] pt line N1234\n"), "replies kept");
+    // No time reversal anywhere in the recording.
+    let mut r = termvel::record::RecordingReader::open(&rec).unwrap();
+    let times: Vec<i64> = std::iter::from_fn(|| r.next_event()).map(|e| e.t_ns).collect();
+    let back = times.windows(2).filter(|w| w[1] < w[0]).count();
+    assert_eq!(back, 0, "{back} reversals in {} events", times.len());
+    // A replay counts the same.
+    let replay = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["replay", rec.to_str().unwrap(), "--headless", "--no-record", "--every", "500ms"])
+        .output()
+        .unwrap();
+    assert!(replay.status.success());
+    let replayed: serde_json::Value =
+        serde_json::from_str(String::from_utf8_lossy(&replay.stdout).lines().last().unwrap()).unwrap();
+    assert_eq!(replayed["summary"]["replies"], 6);
+    assert_eq!(replayed["summary"]["parse_errors"], 2);
+    assert_eq!(replayed["summary"]["time_reversals"], 0);
+}

@@ -244,3 +244,22 @@ fn lost_frames_in_a_recording_raise_an_alert() {
     assert!(a["message"].as_str().unwrap().contains("1300 frames lost"), "{a}");
     assert_eq!(lost(at(8.0)).expect("kept until acknowledged")["active"], false, "cleared 5 s after the last loss");
 }
+
+// Issue 13, item 7: the source table numbered a candump log's interfaces
+// with `as u16`, so the 65 537th name took the operator's id (0).
+#[test]
+fn a_candump_log_naming_more_interfaces_than_ids_skips_the_extra_lines_and_says_why() {
+    let room = termvel::event::MAX_SOURCES - SourceTable::default().len();
+    let mut log = String::new();
+    for i in 0..room + 3 {
+        log.push_str(&format!("(1773474133.{:06}) c{i} 0C4#01\n", i % 1_000_000));
+    }
+    let (evs, r) = read_all(log.as_bytes());
+    assert_eq!(evs.len(), room, "every interface that fits is read");
+    assert_eq!(r.stats.malformed, 3, "the three past the limit are counted");
+    let first = &r.stats.errors[0];
+    assert_eq!(first.line, room as u64 + 1);
+    assert!(first.message.contains("the source table is full (65536 sources)"), "{}", first.message);
+    assert!(evs.iter().all(|e| e.source != OPERATOR && e.source != SESSION), "no id is reused");
+    assert_eq!(r.header.sources.name(OPERATOR), "op");
+}

@@ -159,7 +159,8 @@ mod tests {
         let (sources, id) = table();
         let mut health = healthy(id, 10 * S);
         let mut book = AlertBook::default();
-        let stats = |_| SourceDecodeStats { parse_errors: 3, last_error: Some("bad checksum".into()) };
+        let stats =
+            |_| SourceDecodeStats { parse_errors: 3, last_error: Some("bad checksum".into()), ..Default::default() };
         evaluate(&mut book, 10 * S, &sources, &mut health, stats);
         assert!(book.is_active("parse:can0"));
         assert_eq!(book.visible()[0].message, "can0: 3 bad lines (bad checksum)");

@@ -96,6 +96,11 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
             format!(" bad lines    {}", c.parse_errors),
             if c.parse_errors > 0 { t.doubtful() } else { t.value() },
         ),
+        Line::styled(format!(" replies      {}", c.replies), t.label()),
+        Line::styled(
+            format!(" rejected     {}", c.rejected_values),
+            if c.rejected_values > 0 { t.doubtful() } else { t.value() },
+        ),
         Line::styled(format!(" time jumps   {}", c.time_jumps), t.value()),
         // The stream's count to its position (after a seek: a straight run's
         // to there), not the frames this screen happened to receive.
