@@ -63,6 +63,7 @@ fn main() {
         speed: f64::INFINITY,
         start_paused: false,
         hold_at_end: false,
+        keep_checkpoints: true,
         recorder: None,
         latency: None,
         history: None,

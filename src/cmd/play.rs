@@ -66,6 +66,8 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
             speed: spec.speed.unwrap_or(f64::INFINITY),
             start_paused: false,
             hold_at_end: false,
+            // Headless runs take no keys: nothing seeks, so memory stays flat.
+            keep_checkpoints: false,
             recorder,
             latency: None,
             history: None,
@@ -99,6 +101,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         speed: spec.speed.unwrap_or(1.0),
         start_paused: spec.paused,
         hold_at_end: true,
+        keep_checkpoints: true,
         recorder,
         latency: Some(latency.clone()),
         history: Some(history.clone()),

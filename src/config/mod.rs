@@ -154,7 +154,9 @@ impl<'a> Ctx<'a> {
     pub fn range(&mut self, v: &Spanned<f64>, key: &str, lo: f64, hi: f64, what: &str) -> f64 {
         let x = *v.get_ref();
         if !x.is_finite() || x < lo || x > hi {
-            self.err(v.span(), key, format!("expected {what} ({lo} to {hi}), found {x}"));
+            // An open upper end is said in words, not as a 309-digit number.
+            let range = if hi >= 1e300 { format!("{lo} or more") } else { format!("{lo} to {hi}") };
+            self.err(v.span(), key, format!("expected {what} ({range}), found {x}"));
         }
         x
     }

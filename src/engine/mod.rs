@@ -137,6 +137,11 @@ pub struct SourceHealth {
     last_lost_ns: Option<TimeNs>,
     parse_errors_seen: u64,
     last_parse_error_ns: Option<TimeNs>,
+    /// Whether any of this source's health alerts has been raised: until
+    /// then a tick skips building their keys and messages (a log naming
+    /// thousands of interfaces would otherwise pay that for every source at
+    /// every tick).
+    pub alerted: bool,
 }
 
 impl SourceHealth {

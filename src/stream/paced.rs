@@ -89,6 +89,9 @@ pub struct PlayerOptions {
     /// Keep running (paused at the end) until told to quit, for screens;
     /// headless runs end with the stream.
     pub hold_at_end: bool,
+    /// Keep engine checkpoints for fast seeks (screens); a run that cannot
+    /// seek (headless) keeps none, so its memory stays flat.
+    pub keep_checkpoints: bool,
     pub recorder: Option<(RecordingWriter<File>, PathBuf)>,
     /// Where to record, while paced, how late each event is applied after
     /// it was due (µs): the feed screen's histogram. Cleared by a seek.
@@ -228,6 +231,7 @@ pub async fn play<S: EventSource, K: SnapshotSink>(
         history: opts.history.unwrap_or_default(),
         checkpoints: Vec::new(),
         checkpoint_every_ns: CHECKPOINT_EVERY_NS,
+        keep_checkpoints: opts.keep_checkpoints,
         latency: opts.latency.clone(),
         out: Vec::new(),
     };
@@ -348,6 +352,8 @@ struct Player<'k, S, K, M> {
     /// In stream order, one per slot of `checkpoint_every_ns`.
     checkpoints: Vec<Checkpoint>,
     checkpoint_every_ns: TimeNs,
+    /// Whether checkpoints are kept at all ([`PlayerOptions::keep_checkpoints`]).
+    keep_checkpoints: bool,
     latency: Option<LatencyHistogram>,
     /// Snapshots of the current step, reused.
     out: Vec<Snapshot>,
@@ -439,6 +445,9 @@ impl<S: EventSource, K: SnapshotSink, M: Fn() -> Engine> Player<'_, S, K, M> {
 
     /// A checkpoint after the event at `t_ns` if its slot has none.
     fn maybe_checkpoint(&mut self, t_ns: TimeNs) {
+        if !self.keep_checkpoints {
+            return;
+        }
         let slot = t_ns.div_euclid(self.checkpoint_every_ns);
         let i = self.checkpoints.partition_point(|c| c.slot < slot);
         if self.checkpoints.get(i).is_some_and(|c| c.slot == slot) {
@@ -729,6 +738,7 @@ mod tests {
             speed: f64::INFINITY,
             start_paused: false,
             hold_at_end: false,
+            keep_checkpoints: true,
             recorder: Some(rec),
             latency: None,
             history: None,
@@ -782,6 +792,7 @@ mod tests {
             speed: 1.0,
             start_paused,
             hold_at_end: false,
+            keep_checkpoints: true,
             recorder: None,
             latency: None,
             history: None,
@@ -862,6 +873,7 @@ mod tests {
             speed: f64::INFINITY,
             start_paused: false,
             hold_at_end: false,
+            keep_checkpoints: true,
             recorder: Some(rec),
             latency: None,
             history: None,
@@ -902,6 +914,7 @@ mod tests {
             speed: f64::INFINITY,
             start_paused: false,
             hold_at_end: false,
+            keep_checkpoints: true,
             recorder: None,
             latency: None,
             history: None,
@@ -926,6 +939,7 @@ mod tests {
             speed: 64.0,
             start_paused: false,
             hold_at_end: false,
+            keep_checkpoints: true,
             recorder: None,
             latency: Some(latency.clone()),
             history: None,

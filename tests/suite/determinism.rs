@@ -35,8 +35,15 @@ fn played(speed: f64, controls: Vec<Control>) -> Vec<String> {
     let mut out = Vec::new();
     let mut sink = |s: Arc<Snapshot>, _: &StreamStatus| out.push(snapshot_json(&s).to_string());
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
-    let opts =
-        PlayerOptions { speed, start_paused: false, hold_at_end: false, recorder: None, latency: None, history: None };
+    let opts = PlayerOptions {
+        speed,
+        start_paused: false,
+        hold_at_end: false,
+        keep_checkpoints: true,
+        recorder: None,
+        latency: None,
+        history: None,
+    };
     rt.block_on(play(FileSource::open(&demo()).unwrap(), make, opts, rx, &mut sink)).unwrap();
     out
 }
@@ -161,6 +168,7 @@ fn played_with_history(controls: Vec<Control>, traced: usize) -> (Vec<Seen>, Cha
         speed: f64::INFINITY,
         start_paused: false,
         hold_at_end: false,
+        keep_checkpoints: true,
         recorder: None,
         latency: None,
         history: Some(history.clone()),

@@ -51,6 +51,19 @@ pub fn evaluate(
         if down || silent || returning {
             quiet_sources.push(id);
         }
+        let pe = stats(id);
+        if pe.parse_errors > h.parse_errors_seen {
+            h.parse_errors_seen = pe.parse_errors;
+            h.last_parse_error_ns = Some(t);
+        }
+        let recent = h.last_parse_error_ns.is_some_and(|p| t - p < RECENT_NS);
+        let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < RECENT_NS);
+        let bus = h.last_bus_error_ns.is_some_and(|p| t - p < RECENT_NS);
+        h.alerted |= down || silent || recent || lost_recent || bus;
+        if !h.alerted {
+            // Nothing to raise and nothing raised before to clear.
+            continue;
+        }
         let reason = h.link_reason.clone();
         book.set(t, &format!("down:{}", info.name), Severity::Alarm, down, || {
             format!("{} is down: {reason}", info.name)
@@ -59,22 +72,14 @@ pub fn evaluate(
         book.set(t, &format!("silent:{}", info.name), Severity::Alarm, silent, || {
             format!("{} silent for {:.1} s", info.name, (t - last) as f64 * 1e-9)
         });
-        let pe = stats(id);
-        if pe.parse_errors > h.parse_errors_seen {
-            h.parse_errors_seen = pe.parse_errors;
-            h.last_parse_error_ns = Some(t);
-        }
-        let recent = h.last_parse_error_ns.is_some_and(|p| t - p < RECENT_NS);
         let n = pe.parse_errors;
         book.set(t, &format!("parse:{}", info.name), Severity::Caution, recent, || {
             format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default())
         });
-        let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < RECENT_NS);
         let lost = h.lost;
         book.set(t, &format!("lost:{}", info.name), Severity::Caution, lost_recent, || {
             format!("{}: {lost} frames lost before termvel could read them (receive queue full)", info.name)
         });
-        let bus = h.last_bus_error_ns.is_some_and(|p| t - p < RECENT_NS);
         let (ef, bo, ep, la) = (h.error_frames, h.bus_off, h.error_passive, h.lost_arbitration);
         book.set(
             t,

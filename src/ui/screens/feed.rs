@@ -45,7 +45,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
                 _ => ("▲ up", t.good()),
             };
             Row::new([
-                v.name.clone(),
+                crate::printable::printable(&v.name).into_owned(),
                 v.kind.as_str().to_string(),
                 state.to_string(),
                 v.events.to_string(),

@@ -414,7 +414,8 @@ fn draw_alerts(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             (false, true) => format!("○ cleared ✓ · {} ago", format::age(ago)),
         };
         // Three lines keep the figure at the end of the longer messages.
-        let text = wrap(&a.message, width, 3);
+        // Messages carry names from the data (sources, channels): escaped.
+        let text = wrap(&crate::printable::printable(&a.message), width, 3);
         // Keep a line for "… n more" unless this is the last alert.
         let need = 2 + text.len() + usize::from(shown + 1 < s.alerts.len());
         if lines.len() + need > inner.height as usize {
