@@ -602,9 +602,14 @@ impl Engine {
             });
         }
         let mut source_views = Vec::new();
+        let mut sources_hidden = 0;
         for (id, info) in sources.iter() {
             let Some(h) = self.health.get(id.0 as usize) else { continue };
             if h.events == 0 {
+                continue;
+            }
+            if source_views.len() >= snapshot::MAX_SOURCE_VIEWS {
+                sources_hidden += 1;
                 continue;
             }
             let ds = self.decoder.source_stats(id);
@@ -634,6 +639,7 @@ impl Engine {
             t_ns,
             channels,
             sources: source_views,
+            sources_hidden,
             counters,
             derived: self.derived.clone(),
             alerts: self.alerts.visible(),

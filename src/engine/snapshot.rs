@@ -28,6 +28,9 @@ pub struct ChannelView {
     pub samples: u64,
 }
 
+/// Most sources viewed in one snapshot; more than a screen can list.
+pub const MAX_SOURCE_VIEWS: usize = 1024;
+
 /// One source as of the snapshot time.
 #[derive(Clone, Debug, PartialEq)]
 pub struct SourceView {
@@ -73,7 +76,12 @@ pub struct Counters {
 pub struct Snapshot {
     pub t_ns: TimeNs,
     pub channels: Vec<ChannelView>,
+    /// The first [`MAX_SOURCE_VIEWS`] sources that have sent anything.
     pub sources: Vec<SourceView>,
+    /// Sources beyond those, counted but not viewed (a log naming tens of
+    /// thousands of interfaces would otherwise cost that many views a
+    /// snapshot).
+    pub sources_hidden: u64,
     pub counters: Counters,
     pub derived: Derived,
     /// Alerts to show, newest first.

@@ -661,6 +661,7 @@ mod tests {
             t_ns: t_s * NS_PER_S,
             channels: Vec::new(),
             sources: Vec::new(),
+            sources_hidden: 0,
             counters: Counters::default(),
             derived: Derived::default(),
             alerts,

@@ -300,3 +300,32 @@ fn the_status_line_says_when_the_recording_fails() {
     let text = render(&app, 160, 48);
     assert!(text.contains("● REC FAILING") && text.contains("1234 held, 0 dropped"), "{text}");
 }
+
+// Issue 13, item 14: a log naming tens of thousands of interfaces cost that
+// many source views at every snapshot (replay grew faster than the log); a
+// snapshot views at most MAX_SOURCE_VIEWS and counts the rest, which the
+// feed screen says.
+#[test]
+fn a_snapshot_views_a_bounded_number_of_sources_and_counts_the_rest() {
+    use termvel::engine::snapshot::MAX_SOURCE_VIEWS;
+    use termvel::event::{CanFrame, CanId, DataFrame, Event, Payload, SourceKind, SourceTable};
+    let cfg = Arc::new(ConfigSet::embedded());
+    let mut sources = SourceTable::default();
+    let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
+    let extra = 76;
+    let t0 = 1_700_000_000_000_000_000;
+    let mut snaps = Vec::new();
+    for i in 0..MAX_SOURCE_VIEWS + extra {
+        let id = sources.intern(&format!("c{i}"), SourceKind::Can);
+        let frame = CanFrame::Data(DataFrame::new(CanId::standard(0x123).unwrap(), &[0; 8]).unwrap());
+        engine.feed(&Event::new(t0 + i as i64 * 1000, id, Payload::Can(frame)), &sources, &mut |s| snaps.push(s));
+    }
+    engine.finish(&sources, &mut |s| snaps.push(s));
+    let last = snaps.pop().expect("a snapshot");
+    assert_eq!(last.sources.len(), MAX_SOURCE_VIEWS);
+    assert_eq!(last.sources_hidden, extra as u64);
+    let mut app = App::new(SessionInfo { mode: Mode::Live, config: cfg }, Theme { color: false });
+    app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(last), status: StreamStatus::default() }));
+    app.screen = Screen::Feed;
+    assert!(render(&app, 120, 40).contains("(76 more not listed)"));
+}

@@ -78,7 +78,14 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         ],
     )
     .header(header)
-    .block(Block::new().borders(Borders::TOP).title(Span::styled(" sources ", t.heading())));
+    .block(Block::new().borders(Borders::TOP).title(Span::styled(
+        if s.sources_hidden > 0 {
+            format!(" sources ({} more not listed) ", s.sources_hidden)
+        } else {
+            " sources ".to_string()
+        },
+        t.heading(),
+    )));
     f.render_widget(table, sources);
 
     let c = &s.counters;
