@@ -59,15 +59,7 @@ fn main() {
         }
     };
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
-    let opts = PlayerOptions {
-        speed: f64::INFINITY,
-        start_paused: false,
-        hold_at_end: false,
-        keep_checkpoints: true,
-        recorder: None,
-        latency: None,
-        history: None,
-    };
+    let opts = PlayerOptions::as_fast_as_possible();
     let rt = tokio::runtime::Builder::new_current_thread().enable_time().build().unwrap();
     let start = Instant::now();
     let out = rt.block_on(play(src, make, opts, rx, &mut sink)).unwrap();

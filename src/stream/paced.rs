@@ -101,6 +101,23 @@ pub struct PlayerOptions {
     pub history: Option<SharedHistory>,
 }
 
+impl PlayerOptions {
+    /// A run as fast as possible that seeks (checkpoints kept), with no
+    /// recorder, latency histogram or shared history: what tests and
+    /// benchmarks start from, changing a field or two.
+    pub fn as_fast_as_possible() -> PlayerOptions {
+        PlayerOptions {
+            speed: f64::INFINITY,
+            start_paused: false,
+            hold_at_end: false,
+            keep_checkpoints: true,
+            recorder: None,
+            latency: None,
+            history: None,
+        }
+    }
+}
+
 /// The chart history, written by the player and read by the screens.
 pub type SharedHistory = Arc<Mutex<ChartHistory>>;
 
@@ -734,15 +751,7 @@ mod tests {
             tx.try_send(c).unwrap();
         }
         drop(tx);
-        let opts = PlayerOptions {
-            speed: f64::INFINITY,
-            start_paused: false,
-            hold_at_end: false,
-            keep_checkpoints: true,
-            recorder: Some(rec),
-            latency: None,
-            history: None,
-        };
+        let opts = PlayerOptions { recorder: Some(rec), ..PlayerOptions::as_fast_as_possible() };
         let make = move || Engine::new(cfg.clone(), EngineOptions::default());
         let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
         assert_eq!(out.recording.failures, 0);
@@ -788,15 +797,7 @@ mod tests {
             tx.try_send(c).unwrap();
         }
         drop(tx);
-        let opts = PlayerOptions {
-            speed: 1.0,
-            start_paused,
-            hold_at_end: false,
-            keep_checkpoints: true,
-            recorder: None,
-            latency: None,
-            history: None,
-        };
+        let opts = PlayerOptions { speed: 1.0, start_paused, ..PlayerOptions::as_fast_as_possible() };
         let make = move || Engine::new(cfg.clone(), EngineOptions::default());
         let mut got = Vec::new();
         let mut sink = |s: Arc<Snapshot>, st: &StreamStatus| {
@@ -869,15 +870,7 @@ mod tests {
             tx.try_send(c).unwrap();
         }
         drop(tx);
-        let opts = PlayerOptions {
-            speed: f64::INFINITY,
-            start_paused: false,
-            hold_at_end: false,
-            keep_checkpoints: true,
-            recorder: Some(rec),
-            latency: None,
-            history: None,
-        };
+        let opts = PlayerOptions { recorder: Some(rec), ..PlayerOptions::as_fast_as_possible() };
         let make = move || Engine::new(cfg.clone(), EngineOptions::default());
         let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
         assert_eq!(out.unrecorded.len(), 1, "the acknowledgement behind the recording");
@@ -910,15 +903,7 @@ mod tests {
         std::fs::write(&path, text).unwrap();
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
         let (_tx, rx) = mpsc::channel(1);
-        let opts = PlayerOptions {
-            speed: f64::INFINITY,
-            start_paused: false,
-            hold_at_end: false,
-            keep_checkpoints: true,
-            recorder: None,
-            latency: None,
-            history: None,
-        };
+        let opts = PlayerOptions::as_fast_as_possible();
         let make = || Engine::new(Arc::new(crate::config::ConfigSet::embedded()), EngineOptions::default());
         let src = FileSource::open(&path).unwrap();
         let out = rt.block_on(play(src, make, opts, rx, &mut |_: Arc<Snapshot>, _: &StreamStatus| {})).unwrap();
@@ -935,15 +920,8 @@ mod tests {
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().start_paused(true).build().unwrap();
         let (tx, rx) = mpsc::channel(4);
         let latency = crate::stream::latency_histogram();
-        let opts = PlayerOptions {
-            speed: 64.0,
-            start_paused: false,
-            hold_at_end: false,
-            keep_checkpoints: true,
-            recorder: None,
-            latency: Some(latency.clone()),
-            history: None,
-        };
+        let opts =
+            PlayerOptions { speed: 64.0, latency: Some(latency.clone()), ..PlayerOptions::as_fast_as_possible() };
         let make = move || Engine::new(cfg.clone(), EngineOptions::default());
         // After a second at x64 (about 64 s of stream), back to 10 s in.
         let mut landed_fed = None;

@@ -35,15 +35,7 @@ fn played(speed: f64, controls: Vec<Control>) -> Vec<String> {
     let mut out = Vec::new();
     let mut sink = |s: Arc<Snapshot>, _: &StreamStatus| out.push(snapshot_json(&s).to_string());
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
-    let opts = PlayerOptions {
-        speed,
-        start_paused: false,
-        hold_at_end: false,
-        keep_checkpoints: true,
-        recorder: None,
-        latency: None,
-        history: None,
-    };
+    let opts = PlayerOptions { speed, ..PlayerOptions::as_fast_as_possible() };
     rt.block_on(play(FileSource::open(&demo()).unwrap(), make, opts, rx, &mut sink)).unwrap();
     out
 }
@@ -164,15 +156,7 @@ fn played_with_history(controls: Vec<Control>, traced: usize) -> (Vec<Seen>, Cha
         out.push((snapshot_json(&s).to_string(), st.snapshots, trace))
     };
     let make = move || Engine::new(cfg.clone(), EngineOptions::default());
-    let opts = PlayerOptions {
-        speed: f64::INFINITY,
-        start_paused: false,
-        hold_at_end: false,
-        keep_checkpoints: true,
-        recorder: None,
-        latency: None,
-        history: Some(history.clone()),
-    };
+    let opts = PlayerOptions { history: Some(history.clone()), ..PlayerOptions::as_fast_as_possible() };
     let rewinds = Arc::new(std::sync::atomic::AtomicU32::new(0));
     let src = CountingSource { inner: FileSource::open(&demo()).unwrap(), rewinds: rewinds.clone() };
     rt.block_on(play(src, make, opts, rx, &mut sink)).unwrap();
