@@ -21,6 +21,13 @@
 //!   back, they are applied in file order. Both are counted, the first with
 //!   its line.
 //!
+//! A stream this stage reads clean passes through unchanged, so a copy of
+//! it (a replay's own recording, a rewritten file) reads back exactly. A
+//! stream it had to repair may be repaired differently when its copy is
+//! read again (the re-timed events and far reversals now sit in other
+//! windows); every event still comes back, and the second read says what
+//! it repaired (`fuzz/fuzz_targets/recording.rs` checks both).
+//!
 //! Memory is bounded: at most [`MAX_SUSPECTS`] events wait for a decision
 //! and at most [`REORDER_MAX_EVENTS`] in the window.
 
