@@ -295,3 +295,28 @@ fn a_wrong_file_is_refused_at_once() {
     assert!(err.contains("README.md: only ") && err.contains("lines are events"), "{err}");
     assert!(recordings(dir.path()).is_empty(), "no recording is left behind");
 }
+
+// Issue 15, item 5 and "done when": the end of a run on the screens. Once
+// the car brakes and stops, the run screen keeps the verdict (what was
+// reached, target reached or missed by how much, the stop against the
+// stop-by line) instead of blanking PEAK and TARGET; it stays on screen
+// after the replay ends.
+#[test]
+fn the_end_of_a_run_shows_its_verdict() {
+    let cmd = format!("{} replay {} --no-record --speed 64", bin(), demo().display());
+    let t = Tmux::start("verdict", &cmd, 120, 40);
+    let end = t.wait(60.0, "the stop", |s| s.contains("STOPPED"));
+    let screen = t.wait(30.0, "the end of the replay", |s| s.contains("STOPPED") && s.contains("■ end"));
+    let line = |word: &str| screen.lines().find(|l| l.contains(word)).unwrap_or_default().to_string();
+    let peak = line(" PEAK ");
+    assert!(peak.contains("reached at") && peak.contains("km/h"), "{end}\n{screen}");
+    let target = line(" TARGET ");
+    assert!(target.contains("REACHED at") || target.contains("MISSED by"), "{screen}");
+    let brake = line(" BRAKE ");
+    assert!(brake.contains("STOPPED") && brake.contains("stop-by"), "{screen}");
+    assert!(brake.contains("spare") || brake.contains("over"), "{screen}");
+    t.keys(&["q"]);
+    t.wait(5.0, "the quit question", |s| s.contains("q again to quit"));
+    t.keys(&["q"]);
+    t.wait(10.0, "the exit", |s| s.contains("[exited 0 ]"));
+}
