@@ -405,7 +405,7 @@ pub const KEYS: &[(&str, &str)] = &[
     ("s", "step one snapshot (pauses)"),
     ("m", "mark: type a note; Enter records it, Esc cancels"),
     ("a", "acknowledge every alert shown"),
-    ("u", "units: metric or imperial on every screen, alerts too (remembered)"),
+    ("u", "units: metric or imperial, alerts too (remembered)"),
     ("/  Esc", "channels screen: filter by name / clear the filter"),
     ("↑ ↓  PgUp PgDn", "scroll the channel list"),
     ("q q  or Ctrl-C", "quit (q twice, so one stray key cannot end a session)"),

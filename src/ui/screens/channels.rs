@@ -106,13 +106,14 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         Paragraph::new(Line::from(vec![
             filter,
             Span::styled(
+                // The unit set first: it decides how every number below reads.
                 format!(
-                    "   {} of {} channels, {stale} stale, {range} out of range; {} derived; {} units (u: {})",
+                    "   {} units (u: {}) · {} of {} channels, {stale} stale, {range} out of range; {} derived",
+                    u.name(),
+                    u.toggle().name(),
                     shown.len(),
                     s.channels.len(),
                     derived.len(),
-                    u.name(),
-                    u.toggle().name()
                 ),
                 t.label(),
             ),

@@ -127,24 +127,26 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ]),
         Line::from(vec![Span::raw(" "), state]),
         Line::styled(
-            if narrow {
-                format!(
-                    " {} samples, {} span, {} coast",
-                    e.samples,
-                    format::rounded(u, Measure::Speed, Some(e.speed_span_mps)),
-                    e.coast_samples
-                )
-            } else {
-                format!(
-                    " {} samples over {} of speed; {} coasting",
-                    e.samples,
-                    format::rounded(u, Measure::Speed, Some(e.speed_span_mps)),
-                    e.coast_samples
-                )
-            },
+            format!(
+                " {} samples over {} of speed; {} coasting",
+                e.samples,
+                format::rounded(u, Measure::Speed, Some(e.speed_span_mps)),
+                e.coast_samples
+            ),
             t.label(),
         ),
     ];
+    if narrow {
+        // Two short lines rather than one cut: every count keeps its word.
+        lines[3] = Line::styled(format!(" {} samples, {} coasting", e.samples, e.coast_samples), t.label());
+        lines.insert(
+            4,
+            Line::styled(
+                format!(" over {} of speed", format::rounded(u, Measure::Speed, Some(e.speed_span_mps))),
+                t.label(),
+            ),
+        );
+    }
     match e.coast {
         Some((c, r)) if narrow => lines.push(Line::styled(
             format!(

@@ -82,7 +82,7 @@ fn draw_speed(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         }
     }
     let wind = d.wind_mps.map_or(String::new(), |w| {
-        format!(" · {} {}", if w >= 0.0 { "head" } else { "tail" }, format::value(u, Measure::Speed, Some(w.abs())))
+        format!(" · {} {}", if w >= 0.0 { "head" } else { "tail" }, format::rounded(u, Measure::Speed, Some(w.abs())))
     });
     let tyre = d.tyre.map(|ty| {
         format!("tyres {} {} under{wind}", format::num(Some(u.speed(ty.margin_mps)), 0), u.speed_unit())
