@@ -402,3 +402,21 @@ fn the_run_screen_after_u_reads_in_one_set() {
     assert!(text.lines().any(|l| l.trim_start().starts_with("0.0") && l.trim_end().ends_with("4.5│")), "{text}");
     insta::assert_snapshot!("run_imperial_160x48", text);
 }
+
+// Issue 15, item 12: after `u` the battery's power turned to hp while its
+// kWh stayed, and the power screen wrote `−0 kW` beside `-6 hp`.
+#[test]
+fn battery_and_power_after_u_read_in_one_set() {
+    let mut app = demo_app(60.0, false);
+    app.units = termvel::units::UnitSet::Imperial;
+    app.screen = Screen::Battery;
+    let text = render(&app, 80, 24);
+    // The pack in kW and kWh (as US practice), its temperature in °F.
+    assert!(text.contains("power       112 kW") && text.contains("1.76 kWh"), "{text}");
+    assert!(text.contains(" °F") && !text.contains("°C") && !text.contains(" hp"), "{text}");
+    app.screen = Screen::Power;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("739 hp") && text.contains(" ft²") && text.contains(" mph"), "{text}");
+    assert!(!text.contains(" kW") && !text.contains(" m/s") && !text.contains("km/h"), "{text}");
+    assert!(!text.contains('−') && !text.contains("-0 "), "one sign glyph, no negative zero: {text}");
+}
