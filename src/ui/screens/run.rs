@@ -382,14 +382,16 @@ fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             .style(t.ahead())
             .data(&ahead),
     ];
-    let km = |d: f64| format!("{d:.1}");
+    let along = |d: f64| format!("{d:.1}");
     let chart = Chart::new(datasets)
         .block(
             Block::new()
                 .borders(Borders::TOP)
                 .title(Span::styled(format!(" speed over distance ({}, {}) ", u.speed_unit(), xu.symbol), t.heading())),
         )
-        .x_axis(Axis::default().bounds([0.0, zone]).labels([km(0.0), km(zone / 2.0), km(zone)]).style(t.label()))
+        .x_axis(
+            Axis::default().bounds([0.0, zone]).labels([along(0.0), along(zone / 2.0), along(zone)]).style(t.label()),
+        )
         .y_axis(
             Axis::default()
                 .bounds([0.0, y(vmax)])
