@@ -75,6 +75,16 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
     }
     let ids: Option<Vec<CanId>> =
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
+    // The screens' remembered settings: a malformed file is refused here,
+    // before a recording starts.
+    let settings = if args.run.headless {
+        crate::ui::settings::Loaded { settings: Default::default(), note: None }
+    } else {
+        match crate::ui::settings::load(crate::ui::settings::path().as_deref()) {
+            Ok(l) => l,
+            Err(e) => return super::unusable(e),
+        }
+    };
     let (tap, publisher) = match super::sharing::start(&args.run, "live", &config, &sources) {
         Ok(s) => s,
         Err(reason) => return super::unusable(reason),
@@ -84,6 +94,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         Err(reason) => return super::unusable(reason),
     };
     let _log = if args.run.headless { None } else { init_log_file() };
+    if let Some(n) = &settings.note {
+        tracing::info!("{n}");
+    }
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
     let (outcome, out_error): (LiveOutcome, Option<std::io::Error>) = rt.block_on(async {
         let clock = SessionClock::start();
@@ -145,7 +158,8 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 let _ = done_tx.send(());
                 out
             });
-            let app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
+            let mut app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
+            app.units = settings.settings.units;
             match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
                 Ok(stats) => crate::say!("{}", stats.line()),
                 Err(e) => tracing::error!("screen: {e}"),

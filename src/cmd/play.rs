@@ -48,6 +48,16 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         }
         return super::unusable(e);
     }
+    // The screens' remembered settings: a malformed file is refused here,
+    // before a recording starts.
+    let settings = if spec.run.headless {
+        crate::ui::settings::Loaded { settings: Default::default(), note: None }
+    } else {
+        match crate::ui::settings::load(crate::ui::settings::path().as_deref()) {
+            Ok(l) => l,
+            Err(e) => return super::unusable(e),
+        }
+    };
     let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(s) => s,
         Err(reason) => return super::unusable(reason),
@@ -95,6 +105,9 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
 
     // On the screens: the player in its own task, the UI on this one.
     let _log = init_log_file();
+    if let Some(n) = &settings.note {
+        tracing::info!("{n}");
+    }
     let latency = latency_histogram();
     let history = SharedHistory::default();
     let popts = PlayerOptions {
@@ -115,6 +128,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         crate::ui::theme::Theme::from_env(),
     );
     app.history = Some(history);
+    app.units = settings.settings.units;
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
             let mut ui = UiSink::new(frames_tx);

@@ -592,6 +592,7 @@ impl Engine {
                 id,
                 name: self.names[id.0 as usize].clone(),
                 unit: info.dimension.si_unit(),
+                dimension: info.dimension,
                 value: st.value,
                 age_s: (t_ns - st.t_ns) as f64 * 1e-9,
                 min: st.min,

@@ -19,6 +19,7 @@
 //! names, export and README check follow.
 
 use super::derived::{AirOrigin, Derived};
+use crate::units::Measure;
 
 /// One reading of a quantity: what kind of value it is, and the value.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -63,12 +64,22 @@ pub struct Quantity {
     pub meaning: &'static str,
     /// How to read it from the derived block.
     pub read: fn(&Derived) -> Reading,
+    /// How the screens show it (its display unit in each set): inferred
+    /// from `unit`, or stated by [`Quantity::shown_as`] where the unit
+    /// alone does not say (a fraction shown as a percentage, the pack's
+    /// electrical power).
+    pub measure: Measure,
 }
 
 impl Quantity {
     /// The path below `derived.`: the keys in the headless JSON's `derived` object.
     pub fn path(&self) -> impl Iterator<Item = &'static str> {
         self.name.strip_prefix("derived.").unwrap_or(self.name).split('.')
+    }
+
+    /// The same quantity shown as `measure`.
+    pub const fn shown_as(self, measure: Measure) -> Quantity {
+        Quantity { measure, ..self }
     }
 
     /// The kind of the quantity (the variant of [`Reading`] it reads as).
@@ -98,7 +109,50 @@ pub const GROUPS: &[Group] = &[
 ];
 
 const fn q(name: &'static str, unit: &'static str, meaning: &'static str, read: fn(&Derived) -> Reading) -> Quantity {
-    Quantity { name, unit, meaning, read }
+    Quantity { name, unit, meaning, read, measure: measure_of(unit) }
+}
+
+/// [`Measure::of_si_unit`] for the table's constant rows (a `const fn`
+/// cannot match on strings): the SI units the table uses.
+const fn measure_of(unit: &str) -> Measure {
+    const UNITS: &[(&str, Measure)] = &[
+        ("m/s", Measure::Speed),
+        ("m/s²", Measure::Accel),
+        ("m", Measure::Distance),
+        ("s", Measure::Time),
+        ("W", Measure::Power),
+        ("J", Measure::Energy),
+        ("V", Measure::Voltage),
+        ("Ω", Measure::Resistance),
+        ("°C", Measure::Temperature),
+        ("°C/s", Measure::TemperatureRate),
+        ("kg/m³", Measure::Density),
+        ("m²", Measure::Area),
+        ("kW/kWh", Measure::DischargeRate),
+        ("1", Measure::Coefficient),
+    ];
+    let mut i = 0;
+    while i < UNITS.len() {
+        if same(UNITS[i].0.as_bytes(), unit.as_bytes()) {
+            return UNITS[i].1;
+        }
+        i += 1;
+    }
+    Measure::Plain
+}
+
+const fn same(a: &[u8], b: &[u8]) -> bool {
+    if a.len() != b.len() {
+        return false;
+    }
+    let mut i = 0;
+    while i < a.len() {
+        if a[i] != b[i] {
+            return false;
+        }
+        i += 1;
+    }
+    true
 }
 
 use Reading::{Count, Flag, Num, Text};
@@ -192,11 +246,12 @@ pub static QUANTITIES: &[Quantity] = &[
         Num(d.estimate.coast.map(|c| c.1.value))
     }),
     q("derived.estimate.coast.crr_sd", "1", "its standard deviation", |d| Num(d.estimate.coast.map(|c| c.1.sd))),
-    q("derived.battery.power_w", "W", "electrical power out of the pack", |d| Num(d.battery.power_w)),
+    q("derived.battery.power_w", "W", "electrical power out of the pack", |d| Num(d.battery.power_w))
+        .shown_as(Measure::ElectricPower),
     q("derived.battery.discharge_rate_kw_per_kwh", "kW/kWh", "kW delivered per kWh of capacity", |d| {
         Num(d.battery.discharge_rate_kw_per_kwh)
     }),
-    q("derived.battery.soc", "1", "state of charge", |d| Num(d.battery.soc)),
+    q("derived.battery.soc", "1", "state of charge", |d| Num(d.battery.soc)).shown_as(Measure::Percent),
     q("derived.battery.energy_above_reserve_j", "J", "energy above the reserve", |d| {
         Num(d.battery.energy_above_reserve_j)
     }),
@@ -217,20 +272,28 @@ pub static QUANTITIES: &[Quantity] = &[
     q("derived.battery.model_converged", "", "whether the pack model has converged", |d| {
         Flag(d.battery.model_converged)
     }),
-    q("derived.battery.hppc_max_w", "W", "HPPC maximum discharge power from the model", |d| Num(d.battery.hppc_max_w)),
-    q("derived.battery.reported_limit_w", "W", "the battery system's own limit", |d| Num(d.battery.reported_limit_w)),
-    q("derived.battery.deliverable_w", "W", "what the pack can deliver now", |d| Num(d.battery.deliverable_w)),
-    q("derived.battery.rated_w", "W", "rated discharge power", |d| Num(Some(d.battery.rated_w))),
-    q("derived.battery.derating_ratio", "1", "deliverable over rated", |d| Num(d.battery.derating_ratio)),
+    q("derived.battery.hppc_max_w", "W", "HPPC maximum discharge power from the model", |d| Num(d.battery.hppc_max_w))
+        .shown_as(Measure::ElectricPower),
+    q("derived.battery.reported_limit_w", "W", "the battery system's own limit", |d| Num(d.battery.reported_limit_w))
+        .shown_as(Measure::ElectricPower),
+    q("derived.battery.deliverable_w", "W", "what the pack can deliver now", |d| Num(d.battery.deliverable_w))
+        .shown_as(Measure::ElectricPower),
+    q("derived.battery.rated_w", "W", "rated discharge power", |d| Num(Some(d.battery.rated_w)))
+        .shown_as(Measure::ElectricPower),
+    q("derived.battery.derating_ratio", "1", "deliverable over rated", |d| Num(d.battery.derating_ratio))
+        .shown_as(Measure::Percent),
     q("derived.battery.boosting", "", "whether the car is boosting", |d| Flag(d.battery.boosting)),
     q("derived.battery.time_in_boost_s", "s", "time in boost", |d| Num(Some(d.battery.time_in_boost_s))),
     q("derived.battery.heating_c_per_s", "°C/s", "measured pack heating rate", |d| Num(d.battery.heating_c_per_s)),
     q("derived.battery.derating_fit.tau_s", "s", "derating fit ratio(t) = floor + amplitude·e^(−t/τ): τ", |d| {
         Num(d.battery.fit.map(|f| f.tau_s))
     }),
-    q("derived.battery.derating_fit.floor", "1", "its floor", |d| Num(d.battery.fit.map(|f| f.floor))),
-    q("derived.battery.derating_fit.amplitude", "1", "its amplitude", |d| Num(d.battery.fit.map(|f| f.amplitude))),
-    q("derived.battery.derating_fit.rms", "1", "its RMS residual", |d| Num(d.battery.fit.map(|f| f.rms))),
+    q("derived.battery.derating_fit.floor", "1", "its floor", |d| Num(d.battery.fit.map(|f| f.floor)))
+        .shown_as(Measure::Percent),
+    q("derived.battery.derating_fit.amplitude", "1", "its amplitude", |d| Num(d.battery.fit.map(|f| f.amplitude)))
+        .shown_as(Measure::Percent),
+    q("derived.battery.derating_fit.rms", "1", "its RMS residual", |d| Num(d.battery.fit.map(|f| f.rms)))
+        .shown_as(Measure::Percent),
     q("derived.battery.derating_fit.r2", "1", "its R²", |d| Num(d.battery.fit.map(|f| f.r2))),
     q("derived.battery.derating_fit.points", "", "points fitted", |d| {
         Count(d.battery.fit.map_or(0, |f| f.points as u64))
@@ -258,7 +321,8 @@ pub static QUANTITIES: &[Quantity] = &[
     }),
     q("derived.boost_left.need_w", "W", "battery power needed to reach and hold the target", |d| {
         Num(d.boost_left.need_w)
-    }),
+    })
+    .shown_as(Measure::ElectricPower),
     q("derived.boost_left.curve_fitted", "", "whether the fitted derating curve is used", |d| {
         Flag(d.boost_left.curve_fitted)
     }),

@@ -14,6 +14,8 @@ pub struct ChannelView {
     pub name: Arc<str>,
     /// The SI unit the value is in.
     pub unit: &'static str,
+    /// What it measures (the screens pick its display unit from this).
+    pub dimension: crate::units::Dimension,
     /// Latest value (valid or not: see `out_of_range`).
     pub value: f64,
     /// Seconds since the latest sample.

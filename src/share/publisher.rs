@@ -674,6 +674,7 @@ mod tests {
             key: key.into(),
             severity: Severity::Caution,
             message: format!("{key} message"),
+            text: format!("{key} message").into(),
             raised_ns: raised_s * NS_PER_S,
             active,
             acked,

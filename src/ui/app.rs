@@ -90,6 +90,8 @@ pub struct LatencyView {
 #[derive(Clone, Debug, PartialEq)]
 pub enum Action {
     Player(Control),
+    /// Write these settings to the settings file (`u` switched the units).
+    Remember(super::settings::Settings),
     Quit,
 }
 
@@ -339,8 +341,10 @@ impl App {
                 control(Control::Operator(Operator::Ack("*".into())))
             }
             KeyCode::Char('u') => {
+                // Every figure, chart and alert text follows; the choice
+                // is remembered for the next run.
                 self.units = self.units.toggle();
-                vec![]
+                vec![Action::Remember(super::settings::Settings { units: self.units })]
             }
             KeyCode::Char('/') if self.screen == Screen::Channels => {
                 self.filtering = true;
@@ -370,6 +374,19 @@ impl App {
         }
     }
 
+    /// The settings were written (`Ok`, the file) or not: said on the
+    /// status line, so a choice that will not last is not a surprise.
+    pub fn remembered(&mut self, r: Result<std::path::PathBuf, super::settings::SettingsError>) {
+        let units = self.units.name();
+        match r {
+            Ok(_) => self.say(format!("{units} units (remembered)")),
+            Err(e) => {
+                tracing::warn!("{e}");
+                self.say(format!("{units} units, not remembered: {e}"));
+            }
+        }
+    }
+
     /// Whether the quit key waits for its second press.
     pub fn quit_armed(&self) -> bool {
         self.quit_armed > 0
@@ -388,7 +405,7 @@ pub const KEYS: &[(&str, &str)] = &[
     ("s", "step one snapshot (pauses)"),
     ("m", "mark: type a note; Enter records it, Esc cancels"),
     ("a", "acknowledge every alert shown"),
-    ("u", "units: km/h and kW, or mph and hp"),
+    ("u", "units: metric or imperial, alerts too (remembered)"),
     ("/  Esc", "channels screen: filter by name / clear the filter"),
     ("↑ ↓  PgUp PgDn", "scroll the channel list"),
     ("q q  or Ctrl-C", "quit (q twice, so one stray key cannot end a session)"),
@@ -495,6 +512,22 @@ mod tests {
         a.on_key(key(KeyCode::Char('x')));
         assert!(a.on_key(key(KeyCode::Esc)).is_empty());
         assert!(a.prompt.is_none());
+    }
+
+    // Issue 15, item 12: `u` switched some figures only and was forgotten
+    // at the next run; it now asks for the choice to be remembered.
+    #[test]
+    fn the_unit_key_switches_and_asks_to_remember() {
+        let mut a = app();
+        assert_eq!(
+            a.on_key(key(KeyCode::Char('u'))),
+            vec![Action::Remember(super::super::settings::Settings { units: Units::Imperial })]
+        );
+        assert_eq!(a.units, Units::Imperial);
+        a.remembered(Ok("/x/settings.toml".into()));
+        assert_eq!(a.message.as_ref().unwrap().0, "imperial units (remembered)");
+        a.remembered(Err(super::super::settings::SettingsError::NoFolder));
+        assert!(a.message.as_ref().unwrap().0.starts_with("imperial units, not remembered: no config folder"));
     }
 
     #[test]

@@ -3,81 +3,82 @@
 
 use crate::event::{NS_PER_S, TimeNs};
 
-/// The display unit system.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Units {
-    /// km/h, kW, km.
-    Metric,
-    /// mph, hp, mi.
-    Imperial,
-}
-
-impl Units {
-    pub fn speed_unit(self) -> &'static str {
-        match self {
-            Units::Metric => "km/h",
-            Units::Imperial => "mph",
-        }
-    }
-    pub fn speed(self, mps: f64) -> f64 {
-        match self {
-            Units::Metric => mps * 3.6,
-            Units::Imperial => mps / crate::units::MPH_MPS,
-        }
-    }
-    pub fn power_unit(self) -> &'static str {
-        match self {
-            Units::Metric => "kW",
-            Units::Imperial => "hp",
-        }
-    }
-    pub fn power(self, w: f64) -> f64 {
-        match self {
-            Units::Metric => w / 1e3,
-            Units::Imperial => w / crate::units::HP_W,
-        }
-    }
-    pub fn toggle(self) -> Units {
-        match self {
-            Units::Metric => Units::Imperial,
-            Units::Imperial => Units::Metric,
-        }
-    }
-}
+/// The display unit set (metric or imperial): the table of display units
+/// per measure is the vocabulary's (`crate::units`), so the alert texts the
+/// engine states as values read the same as every other number here.
+pub use crate::units::UnitSet as Units;
+use crate::units::{self, Measure};
 
 /// "—" for unknown values.
 pub const UNKNOWN: &str = "—";
 
-/// A number with `digits` decimals, or "—".
+/// A number with `digits` decimals, or "—"; never a negative zero.
 pub fn num(v: Option<f64>, digits: usize) -> String {
     match v {
-        Some(x) if x.is_finite() => format!("{x:.digits$}"),
+        Some(x) if x.is_finite() => units::number_text(x, digits),
         Some(x) if x.is_infinite() => "∞".into(),
         _ => UNKNOWN.into(),
     }
 }
 
-/// Speed in display units, no unit.
-pub fn speed(u: Units, mps: Option<f64>) -> String {
-    num(mps.map(|v| u.speed(v)), 1)
-}
-
-/// Power in display units with its unit.
-pub fn power(u: Units, w: Option<f64>) -> String {
-    match w {
-        Some(x) if x.is_finite() => format!("{:.0} {}", u.power(x), u.power_unit()),
+/// A value of `measure` in the set's display unit, with its unit: "101 kW",
+/// "2.73 bar", "—".
+pub fn value(u: Units, measure: Measure, si: Option<f64>) -> String {
+    match si {
+        Some(x) if !x.is_nan() => units::show(measure, u, x, false).to_string(),
         _ => UNKNOWN.into(),
     }
 }
 
-/// A distance: metres below 1 km, else km (or miles).
+/// As [`value`] with one decimal fewer: "365 km/h".
+pub fn rounded(u: Units, measure: Measure, si: Option<f64>) -> String {
+    match si {
+        Some(x) if !x.is_nan() => units::show(measure, u, x, true).to_string(),
+        _ => UNKNOWN.into(),
+    }
+}
+
+/// The number of a value of `measure` in the set's display unit, without
+/// the unit (the unit is said once, beside it).
+pub fn number(u: Units, measure: Measure, si: Option<f64>) -> String {
+    match si {
+        Some(x) if !x.is_nan() => measure.unit(u).number(x, false),
+        _ => UNKNOWN.into(),
+    }
+}
+
+/// A difference of `measure` with its sign and unit: "+0.5 km/h", "-1.2
+/// km/h"; one that rounds to zero has no sign.
+pub fn signed(u: Units, measure: Measure, si: f64) -> String {
+    let text = value(u, measure, Some(si));
+    if si > 0.0 && text.starts_with(|c: char| c.is_ascii_digit()) && text.chars().any(|c| ('1'..='9').contains(&c)) {
+        format!("+{text}")
+    } else {
+        text
+    }
+}
+
+/// Speed in display units, no unit.
+pub fn speed(u: Units, mps: Option<f64>) -> String {
+    number(u, Measure::Speed, mps)
+}
+
+/// Mechanical power (engine, wheels, road load) with its unit: kW or hp.
+pub fn power(u: Units, w: Option<f64>) -> String {
+    value(u, Measure::Power, w)
+}
+
+/// The pack's electrical power with its unit: kW in both sets.
+pub fn electric_power(u: Units, w: Option<f64>) -> String {
+    value(u, Measure::ElectricPower, w)
+}
+
+/// A distance along the course: m below 1 km, else km (ft below 1000 ft,
+/// else mi).
 pub fn distance(u: Units, m: Option<f64>) -> String {
-    match (u, m) {
-        (_, Some(x)) if !x.is_finite() => UNKNOWN.into(),
-        (Units::Metric, Some(x)) if x.abs() < 1000.0 => format!("{x:.0} m"),
-        (Units::Metric, Some(x)) => format!("{:.2} km", x / 1000.0),
-        (Units::Imperial, Some(x)) => format!("{:.2} mi", x / 1609.344),
-        (_, None) => UNKNOWN.into(),
+    match m {
+        Some(x) if x.is_finite() => value(u, Measure::Distance, Some(x)),
+        _ => UNKNOWN.into(),
     }
 }
 
@@ -131,10 +132,31 @@ mod tests {
         assert_eq!(power(Units::Imperial, Some(745.699_87 * 300.0)), "300 hp");
         assert_eq!(distance(Units::Metric, Some(820.4)), "820 m");
         assert_eq!(distance(Units::Metric, Some(6046.0)), "6.05 km");
+        // Issue 15, item 12: imperial distances are feet and miles, never km.
+        assert_eq!(distance(Units::Imperial, Some(250.0)), "820 ft");
+        assert_eq!(distance(Units::Imperial, Some(1078.0)), "0.67 mi");
+        assert_eq!(distance(Units::Metric, Some(999.6)), "1.00 km", "rounded before the switch");
         assert_eq!(seconds(Some(f64::INFINITY)), "∞");
         assert_eq!(seconds(None), "—");
         assert_eq!(elapsed(62_300_000_000), "1:02.3");
         assert_eq!(elapsed(27_999_000_000), "0:28.0", "to the nearest tenth");
         assert_eq!(clock(1_773_474_190_250_000_000), "07:43:10.2");
+    }
+
+    // Issue 15, item 12: `−0 kW` beside `-6 hp`: no negative zero, and one
+    // sign glyph (ASCII) for every negative figure.
+    #[test]
+    fn no_negative_zero_and_one_sign() {
+        assert_eq!(power(Units::Metric, Some(-300.0)), "0 kW");
+        assert_eq!(power(Units::Imperial, Some(-4474.0)), "-6 hp");
+        assert_eq!(num(Some(-0.04), 1), "0.0");
+        assert_eq!(num(Some(-0.06), 1), "-0.1");
+        assert_eq!(value(Units::Metric, Measure::Speed, Some(-1e-9)), "0.0 km/h");
+        // The pack's power is electrical: kW in both sets.
+        assert_eq!(electric_power(Units::Imperial, Some(101e3)), "101 kW");
+        assert_eq!(power(Units::Imperial, Some(101e3)), "135 hp");
+        assert_eq!(signed(Units::Metric, Measure::Speed, 0.5 / 3.6), "+0.5 km/h");
+        assert_eq!(signed(Units::Metric, Measure::Speed, -0.01), "0.0 km/h");
+        assert_eq!(signed(Units::Metric, Measure::Speed, -1.0), "-3.6 km/h");
     }
 }

@@ -13,6 +13,7 @@ pub mod chrome;
 pub mod format;
 pub mod frames;
 pub mod screens;
+pub mod settings;
 pub mod theme;
 pub mod widgets;
 
@@ -182,6 +183,7 @@ pub async fn run(
                         Action::Player(c) => {
                             let _ = controls.try_send(c);
                         }
+                        Action::Remember(s) => app.remembered(settings::remember(&s)),
                     }
                 }
             }

@@ -329,3 +329,94 @@ fn a_snapshot_views_a_bounded_number_of_sources_and_counts_the_rest() {
     app.screen = Screen::Feed;
     assert!(render(&app, 120, 40).contains("(76 more not listed)"));
 }
+
+// Issue 15, item 12: the channels screen always said `SI units`, even after
+// `u`; pressures were raw pascals, charge `0.3150` with unit `1`, counts had
+// decimals and numbers were left-aligned with varying decimals.
+#[test]
+fn the_channels_screen_reads_in_the_chosen_units() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Channels;
+    let row = |text: &str, name: &str| -> String {
+        text.lines()
+            .find(|l| l.starts_with(&format!("{name} ")))
+            .unwrap_or_else(|| panic!("{name}: {text}"))
+            .to_string()
+    };
+    let metric = render(&app, 160, 48);
+    assert!(metric.contains("metric units (u: imperial)") && !metric.contains("SI units"), "{metric}");
+    let cells = |l: &str| l.split_whitespace().map(str::to_string).collect::<Vec<_>>();
+    assert_eq!(cells(&row(&metric, "tyre.fl.pressure"))[1..3], ["2.73", "bar"]);
+    assert_eq!(cells(&row(&metric, "ambient.pressure"))[1..3], ["984.0", "hPa"]);
+    assert_eq!(cells(&row(&metric, "battery.soc"))[1..3], ["39.5", "%"]);
+    assert_eq!(cells(&row(&metric, "gearbox.gear"))[1], "6");
+    // Decimal points line up down the value column.
+    let point = |name: &str| {
+        let l = row(&metric, name);
+        let value_from = l.find(' ').unwrap();
+        value_from + l[value_from..].find('.').unwrap()
+    };
+    assert_eq!(point("vehicle.speed"), point("tyre.fl.pressure"));
+    assert_eq!(point("ambient.pressure"), point("battery.cell_min_v"));
+    app.on_key(crossterm::event::KeyEvent::new(
+        crossterm::event::KeyCode::Char('u'),
+        crossterm::event::KeyModifiers::NONE,
+    ));
+    let imperial = render(&app, 160, 48);
+    assert!(imperial.contains("imperial units (u: metric)"), "{imperial}");
+    // 273 060 Pa = 39.6 psi; 98 400 Pa = 29.06 inHg; 100.68 m/s = 225.2 mph.
+    assert_eq!(cells(&row(&imperial, "tyre.fl.pressure"))[1..3], ["39.6", "psi"]);
+    assert_eq!(cells(&row(&imperial, "ambient.pressure"))[1..3], ["29.06", "inHg"]);
+    assert_eq!(cells(&row(&imperial, "vehicle.speed"))[2], "mph");
+    assert_eq!(cells(&row(&imperial, "battery.temp"))[1..3], ["99.5", "°F"]);
+    insta::assert_snapshot!("channels_imperial_120x40", render(&app, 120, 40));
+}
+
+// Issue 15, item 12: after `u` the chart title said `(mph, km)` with its
+// axis in km while BRAKE said `0.67 mi to go`; battery power turned to hp
+// while kWh stayed; alert texts stayed in km/h.
+#[test]
+fn the_run_screen_after_u_reads_in_one_set() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    let metric = render(&app, 160, 48);
+    // Issue 15, item 13: the boost alert says what the pack gives against
+    // the target's need, not `boost left 0.0 s (power limit)`.
+    assert!(metric.contains("pack gives 110 kW, short of the 139 kW the target"), "{metric}");
+    assert!(!metric.contains("boost left 0.0 s"), "{metric}");
+    assert!(metric.contains("target 365 km/h out of reach: projected peak 362"), "{metric}");
+    app.on_key(crossterm::event::KeyEvent::new(
+        crossterm::event::KeyCode::Char('u'),
+        crossterm::event::KeyModifiers::NONE,
+    ));
+    let text = render(&app, 160, 48);
+    assert!(text.contains("speed over distance (mph, mi)"), "{text}");
+    assert!(!text.contains("km") && !text.contains(" m "), "a metric unit left after `u`: {text}");
+    // The pack in kW (as US practice), the car's power in hp.
+    assert!(text.contains("kW of") && text.contains(" hp of "), "{text}");
+    // 365 km/h = 226.8 mph.
+    assert!(text.contains("target 227 mph out of reach: projected peak 225"), "{text}");
+    let brake = lines_with(&text, " BRAKE ");
+    assert!(brake.iter().any(|l| l.contains(" mi to go") && l.contains("to 50 mph in")), "{brake:?}");
+    // The zone (7.2 km = 4.47 mi) on the axis in miles.
+    assert!(text.lines().any(|l| l.trim_start().starts_with("0.0") && l.trim_end().ends_with("4.5│")), "{text}");
+    insta::assert_snapshot!("run_imperial_160x48", text);
+}
+
+// Issue 15, item 12: after `u` the battery's power turned to hp while its
+// kWh stayed, and the power screen wrote `−0 kW` beside `-6 hp`.
+#[test]
+fn battery_and_power_after_u_read_in_one_set() {
+    let mut app = demo_app(60.0, false);
+    app.units = termvel::units::UnitSet::Imperial;
+    app.screen = Screen::Battery;
+    let text = render(&app, 80, 24);
+    // The pack in kW and kWh (as US practice), its temperature in °F.
+    assert!(text.contains("power       112 kW") && text.contains("1.76 kWh"), "{text}");
+    assert!(text.contains(" °F") && !text.contains("°C") && !text.contains(" hp"), "{text}");
+    app.screen = Screen::Power;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("739 hp") && text.contains(" ft²") && text.contains(" mph"), "{text}");
+    assert!(!text.contains(" kW") && !text.contains(" m/s") && !text.contains("km/h"), "{text}");
+    assert!(!text.contains('−') && !text.contains("-0 "), "one sign glyph, no negative zero: {text}");
+}

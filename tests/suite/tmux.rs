@@ -12,6 +12,10 @@ fn root() -> std::path::PathBuf {
 
 pub struct Tmux {
     socket: String,
+    /// The session's own config folder (`XDG_CONFIG_HOME`): a `u` pressed
+    /// in a test writes its settings here, never in the user's, and the
+    /// user's settings do not change what a test sees.
+    config: tempfile::TempDir,
 }
 
 impl Tmux {
@@ -20,11 +24,12 @@ impl Tmux {
     /// be read.
     pub fn start(name: &str, cmd: &str, w: u16, h: u16) -> Tmux {
         let socket = format!("termvel-test-{}-{name}", std::process::id());
-        let t = Tmux { socket };
+        let t = Tmux { socket, config: tempfile::tempdir().expect("a temporary config folder") };
         let status = Command::new("tmux")
             .args(["-L", &t.socket, "-f", "/dev/null", "new-session", "-d", "-x", &w.to_string(), "-y", &h.to_string()])
             .arg(format!("cd {} && {cmd}; echo '[exited' $? ']'; sleep 60", root().display()))
             .env_remove("NO_COLOR")
+            .env("XDG_CONFIG_HOME", t.config.path())
             .status()
             .expect("tmux is installed (scripts/setup.sh installs it)");
         assert!(status.success());
@@ -34,6 +39,11 @@ impl Tmux {
     pub fn run(&self, args: &[&str]) -> String {
         let out = Command::new("tmux").args(["-L", &self.socket]).args(args).output().expect("tmux runs");
         String::from_utf8_lossy(&out.stdout).into_owned()
+    }
+
+    /// The session's config folder (`XDG_CONFIG_HOME`).
+    pub fn config_dir(&self) -> &std::path::Path {
+        self.config.path()
     }
 
     pub fn screen(&self) -> String {

@@ -320,3 +320,61 @@ fn the_end_of_a_run_shows_its_verdict() {
     t.keys(&["q"]);
     t.wait(10.0, "the exit", |s| s.contains("[exited 0 ]"));
 }
+
+// Issue 15, item 12: `u` was forgotten at the next run. The choice is
+// written to the settings file under XDG_CONFIG_HOME (a temporary folder
+// here) and read back by the next session.
+#[test]
+fn the_unit_set_is_remembered_across_two_runs() {
+    let config = tempfile::tempdir().unwrap();
+    let cmd = format!(
+        "XDG_CONFIG_HOME={} {} replay {} --no-record --speed 4",
+        config.path().display(),
+        bin(),
+        demo().display()
+    );
+    let t = Tmux::start("units1", &cmd, 110, 32);
+    t.wait(15.0, "the run screen", |s| s.contains("SPEED") && s.contains("km/h"));
+    t.keys(&["u"]);
+    t.wait(5.0, "the switch", |s| s.contains("imperial units (remembered)") && s.contains("mph"));
+    t.keys(&["q", "q"]);
+    let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+    assert!(end.contains("[exited 0 ]"), "{end}");
+    let file = config.path().join("termvel").join("settings.toml");
+    let text = std::fs::read_to_string(&file).expect("the settings file is written");
+    assert!(text.contains("units = \"imperial\""), "{text}");
+    // The second run starts in mph, without a key.
+    let t = Tmux::start("units2", &cmd, 110, 32);
+    let first = t.wait(15.0, "the run screen", |s| s.contains("SPEED") && s.contains("PEAK"));
+    assert!(first.contains("mph") && !first.contains("km/h"), "{first}");
+    t.keys(&["q", "q"]);
+    t.wait(10.0, "the exit", |s| s.contains("[exited"));
+    // A malformed file: refused before anything starts, naming file, line,
+    // key and what was expected (exit 2, no terminal taken).
+    std::fs::write(&file, "# mine\nunits = \"furlongs\"\n").unwrap();
+    let out = Command::new(bin())
+        .args(["replay", "--no-record"])
+        .arg(demo())
+        .env("XDG_CONFIG_HOME", config.path())
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains(&format!(
+            "{}:2:9: units: expected \"metric\" or \"imperial\", found \"furlongs\"",
+            file.display()
+        )),
+        "{err}"
+    );
+    // Headless output does not read it: JSON stays SI, alerts in metric.
+    let out = Command::new(bin())
+        .args(["replay", "--headless", "--no-record"])
+        .arg(demo())
+        .env("XDG_CONFIG_HOME", config.path())
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+}

@@ -4,6 +4,7 @@
 //! what that does to the list.
 
 use super::rules::RuleState;
+use super::wording::AlertText;
 use crate::config::Severity;
 use crate::event::TimeNs;
 
@@ -12,7 +13,12 @@ use crate::event::TimeNs;
 pub struct Alert {
     pub key: String,
     pub severity: Severity,
+    /// The text in metric (what the recording, the headless JSON and the
+    /// report carry): `text` worded with [`AlertText::metric`].
     pub message: String,
+    /// The text with its numbers as values, for a reader that words them
+    /// in another unit set (the screens).
+    pub text: AlertText,
     /// When it was (last) raised.
     pub raised_ns: TimeNs,
     /// Whether its condition holds now.
@@ -48,7 +54,11 @@ impl AlertBook {
     /// Sets the state of alert `key`: raises it when `on` and not active,
     /// clears it when not `on` and active. The message is refreshed while
     /// active so numbers in it stay current.
-    pub fn set(&mut self, t_ns: TimeNs, key: &str, severity: Severity, on: bool, message: impl FnOnce() -> String) {
+    pub fn set(&mut self, t_ns: TimeNs, key: &str, severity: Severity, on: bool, text: impl FnOnce() -> AlertText) {
+        let message = || {
+            let text = text();
+            (text.metric(), text)
+        };
         let idx = self.alerts.iter().position(|a| a.key == key);
         match (idx, on) {
             (Some(i), true) => {
@@ -58,18 +68,20 @@ impl AlertBook {
                     a.acked = false;
                     a.raised_ns = t_ns;
                     a.severity = severity;
-                    a.message = message();
+                    (a.message, a.text) = message();
                     let a = a.clone();
                     self.record(t_ns, "raise", &a);
                 } else {
-                    a.message = message();
+                    (a.message, a.text) = message();
                 }
             }
             (None, true) => {
+                let (message, text) = message();
                 let a = Alert {
                     key: key.to_string(),
                     severity,
-                    message: message(),
+                    message,
+                    text,
                     raised_ns: t_ns,
                     active: true,
                     acked: false,

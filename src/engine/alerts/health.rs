@@ -37,7 +37,7 @@ pub fn evaluate(
             let lost_recent = h.last_lost_ns.is_some_and(|p| t - p < RECENT_NS);
             let lost = h.lost;
             book.set(t, "lost:recording", Severity::Alarm, lost_recent, || {
-                format!("the recorder dropped {lost} events (its memory was full while the disk failed)")
+                format!("the recorder dropped {lost} events (its memory was full while the disk failed)").into()
             });
         }
         if !matches!(info.kind, SourceKind::Can | SourceKind::Nmea | SourceKind::Lines) {
@@ -66,19 +66,19 @@ pub fn evaluate(
         }
         let reason = h.link_reason.clone();
         book.set(t, &format!("down:{}", info.name), Severity::Alarm, down, || {
-            format!("{} is down: {reason}", info.name)
+            format!("{} is down: {reason}", info.name).into()
         });
         let last = h.last_t_ns.unwrap_or(t);
         book.set(t, &format!("silent:{}", info.name), Severity::Alarm, silent, || {
-            format!("{} silent for {:.1} s", info.name, (t - last) as f64 * 1e-9)
+            format!("{} silent for {:.1} s", info.name, (t - last) as f64 * 1e-9).into()
         });
         let n = pe.parse_errors;
         book.set(t, &format!("parse:{}", info.name), Severity::Caution, recent, || {
-            format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default())
+            format!("{}: {n} bad lines ({})", info.name, pe.last_error.clone().unwrap_or_default()).into()
         });
         let lost = h.lost;
         book.set(t, &format!("lost:{}", info.name), Severity::Caution, lost_recent, || {
-            format!("{}: {lost} frames lost before termvel could read them (receive queue full)", info.name)
+            format!("{}: {lost} frames lost before termvel could read them (receive queue full)", info.name).into()
         });
         let (ef, bo, ep, la) = (h.error_frames, h.bus_off, h.error_passive, h.lost_arbitration);
         book.set(
@@ -91,6 +91,7 @@ pub fn evaluate(
                     "{}: {ef} CAN error frames (bus-off {bo}, error-passive {ep}, lost arbitration {la})",
                     info.name
                 )
+                .into()
             },
         );
     }
@@ -101,7 +102,7 @@ pub fn evaluate(
 /// writes (`failing` says what failed), clears it when it does again.
 pub fn recording(book: &mut AlertBook, t: TimeNs, failing: Option<&str>) {
     book.set(t, "recording", Severity::Alarm, failing.is_some(), || {
-        format!("recording failing, events held in memory and retried: {}", failing.unwrap_or_default())
+        format!("recording failing, events held in memory and retried: {}", failing.unwrap_or_default()).into()
     });
 }
 

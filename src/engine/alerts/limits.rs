@@ -3,11 +3,12 @@
 //! approaching or passed, tyre speed margin (now and at the projected
 //! peak) and battery temperature.
 
-use super::AlertBook;
+use super::{AlertBook, AlertText};
 use crate::config::{ConfigSet, Severity};
 use crate::engine::TARGET_PERSIST_NS;
-use crate::engine::derived::Derived;
+use crate::engine::derived::{BoostLeft, BoostLimit, Derived};
 use crate::event::TimeNs;
+use crate::units::Measure;
 
 /// Below this speed the car is not running: no target, braking or
 /// projected-tyre alerts, m/s.
@@ -37,24 +38,18 @@ pub fn evaluate(
     let running = d.speed_mps.is_some_and(|v| v > RUNNING_MPS);
     let ratio = b.derating_ratio.unwrap_or(1.0);
     book.set(t, "derating", Severity::Caution, b.boosting && ratio < lim.derating_onset_ratio, || {
-        format!("battery derating: {:.0} % of rated power", ratio * 100.0)
+        AlertText::new("battery derating: ").rounded(Measure::Percent, ratio).then(" of rated power")
     });
     let left = d.boost_left;
+    let deliverable_w = b.deliverable_w;
     book.set(
         t,
         "boost-low",
         Severity::Caution,
         b.boosting && left.seconds.is_some_and(|s| s < lim.boost_left_low_s),
-        || {
-            format!(
-                "boost left {:.1} s ({} limit)",
-                left.seconds.unwrap_or(0.0),
-                left.binding.map_or("?", |l| l.as_str())
-            )
-        },
+        || boost_low_text(&left, deliverable_w),
     );
-    let target_kmh = cfg.track.target_speed_mps * 3.6;
-    let peak = d.projection.as_ref().map(|p| p.peak_mps * 3.6);
+    let peak_mps = d.projection.as_ref().map(|p| p.peak_mps);
     // A prediction hovering at the target should not flap the alert:
     // out of reach for TARGET_PERSIST_NS before it is raised.
     let lost = running && d.projection.as_ref().is_some_and(|p| !p.target_reachable);
@@ -63,20 +58,29 @@ pub fn evaluate(
         state.target_lost_since = None;
     }
     book.set(t, "target", Severity::Caution, lost_since.is_some_and(|s| t - s >= TARGET_PERSIST_NS), || {
-        format!("target {target_kmh:.0} km/h out of reach: projected peak {:.0} km/h", peak.unwrap_or(0.0))
+        AlertText::new("target ")
+            .rounded(Measure::Speed, cfg.track.target_speed_mps)
+            .then(" out of reach: projected peak ")
+            .rounded(Measure::Speed, peak_mps.unwrap_or(0.0))
     });
     let br = d.braking;
     let approach = running && !braking_now && br.is_some_and(|x| !x.passed && x.in_s < lim.braking_approach_s);
     book.set(t, "brake-approach", Severity::Alarm, approach, || {
-        format!("braking point in {:.1} s ({:.0} m)", br.map_or(0.0, |x| x.in_s), br.map_or(0.0, |x| x.distance_m))
+        AlertText::new("braking point in ")
+            .value(Measure::Time, br.map_or(0.0, |x| x.in_s))
+            .then(" (")
+            .value(Measure::Distance, br.map_or(0.0, |x| x.distance_m))
+            .then(")")
     });
     let passed = running && !braking_now && br.is_some_and(|x| x.passed);
     book.set(t, "brake-passed", Severity::Alarm, passed, || {
-        format!("past the braking point by {:.0} m: brake", br.map_or(0.0, |x| -x.distance_m))
+        AlertText::new("past the braking point by ")
+            .value(Measure::Distance, br.map_or(0.0, |x| -x.distance_m))
+            .then(": brake")
     });
     let ty = d.tyre;
     book.set(t, "tyre", Severity::Alarm, ty.is_some_and(|x| x.margin_mps < lim.tyre_margin_low_mps), || {
-        format!("tyre speed margin {:.0} km/h", ty.map_or(0.0, |x| x.margin_mps * 3.6))
+        AlertText::new("tyre speed margin ").rounded(Measure::Speed, ty.map_or(0.0, |x| x.margin_mps))
     });
     book.set(
         t,
@@ -84,10 +88,8 @@ pub fn evaluate(
         Severity::Caution,
         running && ty.is_some_and(|x| x.peak_margin_mps.is_some_and(|m| m < 0.0)),
         || {
-            format!(
-                "projected peak above the tyres' rating by {:.0} km/h",
-                ty.and_then(|x| x.peak_margin_mps).map_or(0.0, |m| -m * 3.6)
-            )
+            AlertText::new("projected peak above the tyres' rating by ")
+                .rounded(Measure::Speed, ty.and_then(|x| x.peak_margin_mps).map_or(0.0, |m| -m))
         },
     );
     let temp_limit = cfg.vehicle.battery.temp_limit_c;
@@ -95,8 +97,51 @@ pub fn evaluate(
     let hot = temp.is_some_and(|x| x >= temp_limit - lim.battery_temp_margin_c);
     let sev = if temp.is_some_and(|x| x >= temp_limit) { Severity::Alarm } else { Severity::Caution };
     book.set(t, "battery-temp", sev, hot, || {
-        format!("pack at {:.1} °C (limit {temp_limit:.0} °C)", temp.unwrap_or(0.0))
+        AlertText::new("pack at ")
+            .value(Measure::Temperature, temp.unwrap_or(0.0))
+            .then(" (limit ")
+            .rounded(Measure::Temperature, temp_limit)
+            .then(")")
     });
+}
+
+/// Below this many seconds the pack is taken to give less than the need
+/// already (the power limit reports exactly 0 then).
+const NOW_S: f64 = 0.05;
+
+/// The boost-low text: how long the pack can still give the power the
+/// target needs, and which limit ends that. It is not the time boost
+/// lasts: a pack below the need still boosts, with less than the target
+/// needs, so a zero is worded as "short of the need", never as "0 s left".
+fn boost_low_text(left: &BoostLeft, deliverable_w: Option<f64>) -> AlertText {
+    let need = |t: AlertText| match left.need_w {
+        Some(w) => t.then("the ").value(Measure::ElectricPower, w).then(" the target needs"),
+        None => t.then("what the target needs"),
+    };
+    let s = left.seconds.unwrap_or(0.0);
+    match left.binding {
+        Some(BoostLimit::Power) if s < NOW_S => {
+            let gives = match deliverable_w {
+                Some(w) => AlertText::new("pack gives ").value(Measure::ElectricPower, w).then(", short of "),
+                None => AlertText::new("pack gives less than "),
+            };
+            need(gives).then(" (derating)")
+        }
+        Some(BoostLimit::Energy) if s < NOW_S => need(AlertText::new("pack at its reserve: cannot give ")),
+        Some(BoostLimit::Thermal) if s < NOW_S => need(AlertText::new("pack at its temperature limit: cannot give ")),
+        binding => {
+            let limit = match binding {
+                Some(BoostLimit::Energy) => "charge",
+                Some(BoostLimit::Power) => "derating",
+                Some(BoostLimit::Thermal) => "temperature",
+                None => "unknown",
+            };
+            need(AlertText::new("pack can give "))
+                .then(" for ")
+                .value(Measure::Time, s)
+                .then(format!(" more ({limit} limit)"))
+        }
+    }
 }
 
 #[cfg(test)]
@@ -143,7 +188,84 @@ mod tests {
         evaluate(&mut book, 2 * S, &cfg, &d, false, &mut LimitState::default());
         assert_eq!(keys(&book), vec!["boost-low", "derating"]);
         let low = book.visible().into_iter().find(|a| a.key == "boost-low").unwrap();
-        assert_eq!(low.message, format!("boost left {:.1} s (thermal limit)", lim.boost_left_low_s - 0.5));
+        assert_eq!(
+            low.message,
+            format!(
+                "pack can give what the target needs for {:.1} s more (temperature limit)",
+                lim.boost_left_low_s - 0.5
+            )
+        );
+    }
+
+    // Issue 15, item 13: `boost left 0.0 s (power limit)` read as "boost
+    // over" while the pack was boosting at 101 kW: the figure is the time the
+    // pack can still give what the target needs, and a zero on the derating
+    // limit means the pack already gives less than that.
+    #[test]
+    fn boost_low_says_what_the_pack_gives_against_the_need() {
+        let left = |binding, seconds| BoostLeft {
+            seconds: Some(seconds),
+            binding: Some(binding),
+            need_w: Some(139e3),
+            ..BoostLeft::default()
+        };
+        let text = |l: BoostLeft| boost_low_text(&l, Some(110e3)).metric();
+        assert_eq!(
+            text(left(BoostLimit::Power, 0.0)),
+            "pack gives 110 kW, short of the 139 kW the target needs (derating)"
+        );
+        assert_eq!(
+            text(left(BoostLimit::Energy, 4.26)),
+            "pack can give the 139 kW the target needs for 4.3 s more (charge limit)"
+        );
+        assert_eq!(
+            text(left(BoostLimit::Power, 2.0)),
+            "pack can give the 139 kW the target needs for 2.0 s more (derating limit)"
+        );
+        assert_eq!(
+            text(left(BoostLimit::Thermal, 0.0)),
+            "pack at its temperature limit: cannot give the 139 kW the target needs"
+        );
+        for (k, s) in [(BoostLimit::Power, 0.0), (BoostLimit::Energy, 3.0), (BoostLimit::Thermal, 1.0)] {
+            let t = text(left(k, s));
+            assert!(!t.contains("boost left") && t.contains("139 kW"), "{t}");
+        }
+        // The pack's power is electrical: kW in the imperial set too.
+        assert_eq!(
+            boost_low_text(&left(BoostLimit::Power, 0.0), Some(110e3)).render(crate::units::UnitSet::Imperial),
+            "pack gives 110 kW, short of the 139 kW the target needs (derating)"
+        );
+    }
+
+    // Issue 15, item 12: alert texts stayed in km/h after `u`. The texts
+    // keep their numbers as values: metric (recorded) as before, imperial
+    // on the screens.
+    #[test]
+    fn limit_texts_read_in_both_sets() {
+        let cfg = ConfigSet::embedded();
+        let mut d = running(80.0);
+        d.tyre = Some(TyreView { rated_mps: 83.0, margin_mps: 3.0, peak_margin_mps: None });
+        d.battery.temp_c = Some(cfg.vehicle.battery.temp_limit_c);
+        d.braking = Some(BrakingView { passed: true, distance_m: -42.0, ..BrakingView::default() });
+        let mut book = AlertBook::default();
+        evaluate(&mut book, S, &cfg, &d, false, &mut LimitState::default());
+        let find = |k: &str| book.visible().into_iter().find(|a| a.key == k).unwrap();
+        let tyre = find("tyre");
+        // 3 m/s = 10.8 km/h = 6.7 mph.
+        assert_eq!(tyre.message, "tyre speed margin 11 km/h");
+        assert_eq!(tyre.text.render(crate::units::UnitSet::Imperial), "tyre speed margin 7 mph");
+        let passed = find("brake-passed");
+        assert_eq!(passed.message, "past the braking point by 42 m: brake");
+        // 42 m = 137.8 ft.
+        assert_eq!(passed.text.render(crate::units::UnitSet::Imperial), "past the braking point by 138 ft: brake");
+        let hot = find("battery-temp");
+        let limit_c = cfg.vehicle.battery.temp_limit_c;
+        assert_eq!(hot.message, format!("pack at {limit_c:.1} °C (limit {limit_c:.0} °C)"));
+        let limit_f = limit_c * 9.0 / 5.0 + 32.0;
+        assert_eq!(
+            hot.text.render(crate::units::UnitSet::Imperial),
+            format!("pack at {limit_f:.1} °F (limit {limit_f:.0} °F)")
+        );
     }
 
     #[test]

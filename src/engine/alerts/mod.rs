@@ -16,5 +16,7 @@ pub mod health;
 pub mod limits;
 pub mod rules;
 pub mod staleness;
+pub mod wording;
 
 pub use book::{Alert, AlertBook, Transition};
+pub use wording::AlertText;

@@ -42,7 +42,7 @@ impl AlertBook {
             }
             let on = st.active;
             let key = format!("rule:{}", r.name);
-            self.set(t_ns, &key, r.severity, on, || r.message.clone());
+            self.set(t_ns, &key, r.severity, on, || r.message.clone().into());
         }
     }
 }

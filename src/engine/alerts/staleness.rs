@@ -4,13 +4,14 @@
 
 use std::collections::BTreeMap;
 
-use super::AlertBook;
+use super::{AlertBook, AlertText};
 use crate::channel::{ChannelId, ChannelTable};
 use crate::config::Severity;
 use crate::decode::can::MessageCount;
 use crate::engine::store::ChannelStore;
 use crate::engine::{RATE_SHORT, RATE_WINDOW_NS, SPEED_AGREE_FRAC, SPEED_AGREE_MPS, SPEED_DISAGREE_NS};
 use crate::event::{NS_PER_S, SourceId, SourceTable, TimeNs};
+use crate::units::Measure;
 
 /// A channel outside its valid range keeps its alert this long after its
 /// last such reading, ns.
@@ -53,7 +54,7 @@ pub fn stale_channels(
             } else {
                 format!("{}, {} and {} more", stale[0], stale[1], stale.len() - 2)
             };
-            format!("{group} stale {age_s:.1} s: {list}")
+            format!("{group} stale {age_s:.1} s: {list}").into()
         });
     }
 }
@@ -99,7 +100,7 @@ pub fn message_rates(book: &mut AlertBook, t: TimeNs, counts: &[MessageCount], s
     for c in counts {
         let s = short.iter().find(|(n, _)| *n == c.name);
         book.set(t, &format!("rate:{}", c.name), Severity::Caution, s.is_some(), || {
-            format!("{} arriving at {:.0} % of its rate: frames lost", c.name, s.map_or(0.0, |x| x.1 * 100.0))
+            format!("{} arriving at {:.0} % of its rate: frames lost", c.name, s.map_or(0.0, |x| x.1 * 100.0)).into()
         });
     }
 }
@@ -116,7 +117,8 @@ pub fn out_of_range(book: &mut AlertBook, t: TimeNs, channels: &ChannelTable, st
         let out = !stc.valid && t - stc.t_ns < RANGE_RECENT_NS;
         let v = stc.value;
         book.set(t, &format!("range:{}", info.name), Severity::Caution, out, || {
-            format!("{} reads {v:.4} {}: outside its valid range, not used", info.name, info.dimension.si_unit())
+            // In SI as decoded: a diagnostic of the signal, not a figure to read.
+            format!("{} reads {v:.4} {}: outside its valid range, not used", info.name, info.dimension.si_unit()).into()
         });
     }
 }
@@ -143,7 +145,11 @@ pub fn speed_agreement(
     }
     let (w, g) = (wheel_mps.unwrap_or(0.0), gnss_mps.unwrap_or(0.0));
     book.set(t, "speed-disagree", Severity::Caution, from.is_some_and(|s| t - s >= SPEED_DISAGREE_NS), || {
-        format!("wheel speed {:.1} m/s and GNSS {:.1} m/s disagree: a sensor may be stuck", w, g)
+        AlertText::new("wheel speed ")
+            .value(Measure::Speed, w)
+            .then(" and GNSS ")
+            .value(Measure::Speed, g)
+            .then(" disagree: a sensor may be stuck")
     });
 }
 

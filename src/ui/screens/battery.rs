@@ -16,6 +16,7 @@ use crate::engine::physics::pack::derating_ratio;
 use crate::ui::app::App;
 use crate::ui::format;
 use crate::ui::widgets::meter::Meter;
+use crate::units::Measure;
 
 pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let Some(s) = app.snapshot() else {
@@ -53,11 +54,13 @@ fn draw_numbers(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         (Some(o), Some(r)) => format!("{:.1} V {:.1}±{:.1} mΩ", o.value, r.value * 1e3, r.sd * 1e3),
         _ => format::UNKNOWN.into(),
     };
-    let heating = b.heating_c_per_s.map_or(format::UNKNOWN.to_string(), |h| format!("{:+.3} °C/s", h));
+    let heating =
+        b.heating_c_per_s.map_or(format::UNKNOWN.to_string(), |h| format::signed(u, Measure::TemperatureRate, h));
+    let limit = format::rounded(u, Measure::Temperature, Some(cfg.temp_limit_c));
     let lines = vec![
         kv(
             "power",
-            format::power(u, b.power_w),
+            format::electric_power(u, b.power_w),
             &[format!("  {} kW/kWh", format::num(b.discharge_rate_kw_per_kwh, 1))],
         ),
         kv(
@@ -67,8 +70,8 @@ fn draw_numbers(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ),
         kv(
             "above res.",
-            b.energy_above_reserve_j.map_or(format::UNKNOWN.into(), |e| format!("{:.2} kWh", e / 3.6e6)),
-            &[format!("  of {:.1} kWh", cfg.energy_j / 3.6e6)],
+            format::value(u, Measure::Energy, b.energy_above_reserve_j),
+            &[format!("  of {}", format::value(u, Measure::Energy, Some(cfg.energy_j)))],
         ),
         kv(
             "model",
@@ -81,18 +84,18 @@ fn draw_numbers(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ),
         kv(
             "HPPC max",
-            format::power(u, b.hppc_max_w),
+            format::electric_power(u, b.hppc_max_w),
             &["  voltage- and current-limited".into(), "  V- and I-limited".into()],
         ),
         kv(
             "reported",
-            format::power(u, b.reported_limit_w),
+            format::electric_power(u, b.reported_limit_w),
             &["  by the battery system".into(), "  by the pack".into()],
         ),
         kv(
             "temperature",
-            b.temp_c.map_or(format::UNKNOWN.into(), |t| format!("{t:.1} °C")),
-            &[format!("  limit {:.0} °C, {heating}", cfg.temp_limit_c), format!("  limit {:.0} °C", cfg.temp_limit_c)],
+            format::value(u, Measure::Temperature, b.temp_c),
+            &[format!("  limit {limit}, {heating}"), format!("  limit {limit}")],
         ),
         kv(
             "in boost",
@@ -135,7 +138,7 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             b.deliverable_w,
             b.rated_w * 1.1,
             Some(b.rated_w),
-            format!("{} {ratio}", format::power(u, b.deliverable_w)),
+            format!("{} {ratio}", format::electric_power(u, b.deliverable_w)),
             t.ahead(),
         ),
         rows[0],
@@ -146,7 +149,7 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             l.need_w,
             b.rated_w * 1.1,
             Some(b.rated_w),
-            format!("{} for target", format::power(u, l.need_w)),
+            format!("{} for target", format::electric_power(u, l.need_w)),
             t.behind(),
         ),
         rows[1],
@@ -154,7 +157,7 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     // The three limits on how long the pack can still give what the target
     // needs; 0 s on the derating line means it already gives less, not that
     // the pack has stopped.
-    let need = format::power(u, l.need_w);
+    let need = format::electric_power(u, l.need_w);
     f.render_widget(Paragraph::new(Line::styled(format!(" boost left at the need ({need}):"), t.label())), rows[2]);
     let lim = |k: BoostLimit, v: Option<f64>| {
         let bind = l.binding == Some(k);

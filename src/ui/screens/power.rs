@@ -17,6 +17,7 @@ use crate::engine::power_curve::PowerPoint;
 use crate::ui::app::App;
 use crate::ui::format;
 use crate::ui::widgets::meter::Meter;
+use crate::units::Measure;
 
 pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let Some(s) = app.snapshot() else {
@@ -45,17 +46,9 @@ fn draw_breakdown(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let rows: Vec<(&str, Option<f64>, String)> = vec![
         ("aero", Some(r.aero_w), format::power(u, Some(r.aero_w))),
         ("rolling", Some(r.rolling_w), format::power(u, Some(r.rolling_w))),
-        (
-            "grade",
-            Some(r.grade_w.abs()),
-            format!("{}{}", if r.grade_w < 0.0 { "−" } else { "" }, format::power(u, Some(r.grade_w.abs()))),
-        ),
+        ("grade", Some(r.grade_w.abs()), format::power(u, Some(r.grade_w))),
         ("road", Some(r.total_w), format!("{} total", format::power(u, Some(r.total_w)))),
-        (
-            "inertia",
-            Some(r.inertial_w.abs()),
-            format!("{}{}", if r.inertial_w < 0.0 { "−" } else { "" }, format::power(u, Some(r.inertial_w.abs()))),
-        ),
+        ("inertia", Some(r.inertial_w.abs()), format::power(u, Some(r.inertial_w))),
         ("demand", Some(r.demand_w.max(0.0)), format!("{} road + inertia", format::power(u, Some(r.demand_w)))),
         ("wheels", r.wheel_w.map(|w| w.max(0.0)), format!("{} measured", format::power(u, r.wheel_w))),
         ("avail.", Some(r.available_w), format!("{} at full demand", format::power(u, Some(r.available_w)))),
@@ -94,8 +87,10 @@ fn draw_breakdown(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
 
 fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
+    let u = app.units;
     let d = &s.derived;
     let e = &d.estimate;
+    let area_u = Measure::Area.unit(u);
     let block = Block::new()
         .borders(Borders::TOP | Borders::LEFT)
         .title(Span::styled(" drag and rolling estimate ", t.heading()));
@@ -114,8 +109,16 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let mut lines = vec![
         Line::from(vec![
             Span::styled(" CdA ", t.label()),
-            Span::styled(format!("{:.3} ± {:.3} m²", e.cda_m2.value, e.cda_m2.sd), t.value()),
-            Span::styled(format!("  (file {:.3})", veh.cda_m2), t.dim()),
+            Span::styled(
+                format!(
+                    "{} ± {} {}",
+                    area_u.number(e.cda_m2.value, false),
+                    area_u.number(e.cda_m2.sd, false),
+                    area_u.symbol
+                ),
+                t.value(),
+            ),
+            Span::styled(format!("  (file {})", area_u.number(veh.cda_m2, false)), t.dim()),
         ]),
         Line::from(vec![
             Span::styled(" Crr ", t.label()),
@@ -124,24 +127,46 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         ]),
         Line::from(vec![Span::raw(" "), state]),
         Line::styled(
-            if narrow {
-                format!(" {} samples, {:.0} m/s span, {} coast", e.samples, e.speed_span_mps, e.coast_samples)
-            } else {
-                format!(
-                    " {} samples over {:.0} m/s of speed; {} coasting",
-                    e.samples, e.speed_span_mps, e.coast_samples
-                )
-            },
+            format!(
+                " {} samples over {} of speed; {} coasting",
+                e.samples,
+                format::rounded(u, Measure::Speed, Some(e.speed_span_mps)),
+                e.coast_samples
+            ),
             t.label(),
         ),
     ];
+    if narrow {
+        // Two short lines rather than one cut: every count keeps its word.
+        lines[3] = Line::styled(format!(" {} samples, {} coasting", e.samples, e.coast_samples), t.label());
+        lines.insert(
+            4,
+            Line::styled(
+                format!(" over {} of speed", format::rounded(u, Measure::Speed, Some(e.speed_span_mps))),
+                t.label(),
+            ),
+        );
+    }
     match e.coast {
         Some((c, r)) if narrow => lines.push(Line::styled(
-            format!(" coast: CdA {:.3}±{:.3} Crr {:.4}±{:.4}", c.value, c.sd, r.value, r.sd),
+            format!(
+                " coast: CdA {}±{} Crr {:.4}±{:.4}",
+                area_u.number(c.value, false),
+                area_u.number(c.sd, false),
+                r.value,
+                r.sd
+            ),
             t.label(),
         )),
         Some((c, r)) => lines.push(Line::styled(
-            format!(" coast-down alone: CdA {:.3} ± {:.3}, Crr {:.4} ± {:.4}", c.value, c.sd, r.value, r.sd),
+            format!(
+                " coast-down alone: CdA {} ± {} {}, Crr {:.4} ± {:.4}",
+                area_u.number(c.value, false),
+                area_u.number(c.sd, false),
+                area_u.symbol,
+                r.value,
+                r.sd
+            ),
             t.label(),
         )),
         None if narrow => lines.push(Line::styled(" coast-down: too little coasting", t.dim())),
@@ -156,14 +181,14 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             if age_s > 5.0 { t.doubtful() } else { t.label() },
         ),
         _ => (
-            format!("ISA at {:.0} m", app.info.config.track.elevation_m),
+            format!("ISA at {}", format::rounded(u, Measure::Height, Some(app.info.config.track.elevation_m))),
             "no weather data: standard atmosphere".to_string(),
             t.doubtful(),
         ),
     };
     let mut air = vec![
         Span::styled(" air ", t.label()),
-        Span::styled(format!("{:.4} kg/m³ ", d.air_density), t.value()),
+        Span::styled(format!("{} ", format::value(u, Measure::Density, Some(d.air_density))), t.value()),
         Span::styled(origin, style),
     ];
     if narrow {
@@ -174,7 +199,7 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         lines.push(Line::from(air));
     }
     let accel = match d.accel_mps2 {
-        Some(a) => format!("{a:.2} m/s² ({})", d.accel_source),
+        Some(a) => format!("{} ({})", format::value(u, Measure::Accel, Some(a)), d.accel_source),
         None => format::UNKNOWN.into(),
     };
     lines.push(Line::from(vec![Span::styled(" accel ", t.label()), Span::styled(accel, t.value())]));

@@ -20,6 +20,7 @@ use crate::ui::format::{self, Units};
 use crate::ui::theme::severity_tag;
 use crate::ui::widgets::figures::{self, Figures};
 use crate::ui::widgets::meter::Meter;
+use crate::units::Measure;
 
 pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let Some(s) = app.snapshot() else {
@@ -75,14 +76,14 @@ fn draw_speed(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         let at = format!("at {}", format::distance(u, Some(d.distance_m)));
         f.render_widget(Paragraph::new(Span::styled(at, t.value())), Rect::new(unit_x, area.y + 1, room, 1));
         if let Some(diff) = d.progress.gnss_minus_wheel_mps {
-            let text = format!("GNSS {:+.1}", u.speed(diff));
+            let text = format!("GNSS {}", format::signed(u, Measure::Speed, diff));
             let style = if diff.abs() > 2.0 { t.doubtful() } else { t.label() };
             f.render_widget(Paragraph::new(Span::styled(text, style)), Rect::new(unit_x, area.y + 2, room, 1));
         }
     }
-    let wind = d
-        .wind_mps
-        .map_or(String::new(), |w| format!(" · {} {:.1} m/s", if w >= 0.0 { "head" } else { "tail" }, w.abs()));
+    let wind = d.wind_mps.map_or(String::new(), |w| {
+        format!(" · {} {}", if w >= 0.0 { "head" } else { "tail" }, format::rounded(u, Measure::Speed, Some(w.abs())))
+    });
     let tyre = d.tyre.map(|ty| {
         format!("tyres {} {} under{wind}", format::num(Some(u.speed(ty.margin_mps)), 0), u.speed_unit())
             .chars()
@@ -169,7 +170,11 @@ fn draw_meters(f: &mut Frame, area: Rect, app: &App, d: &Derived) {
     };
     f.render_widget(meter(app, "boost", secs, 60.0, None, text, style), rows[3]);
     // Deliverable battery power against rated.
-    let text = format!("{} of {} rated", format::power(u, b.deliverable_w), format::power(u, Some(b.rated_w)));
+    let text = format!(
+        "{} of {} rated",
+        format::electric_power(u, b.deliverable_w),
+        format::electric_power(u, Some(b.rated_w))
+    );
     f.render_widget(
         meter(app, "battery", b.deliverable_w, b.rated_w * 1.05, Some(b.rated_w), text, t.ahead()),
         rows[4],
@@ -330,14 +335,19 @@ fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let d = &s.derived;
     let zone = cfg.track.zone_length_m;
     let vmax = (cfg.vehicle.tyre_rated_mps.max(cfg.track.target_speed_mps) * 1.05).max(10.0);
+    // Both axes in the unit set's display units: speed, and distance in km
+    // or mi (the run's figures say the same units).
     let y = |v: f64| u.speed(v);
-    let behind: Vec<(f64, f64)> = app.trace.iter().map(|&(x, v)| (x, y(v))).collect();
+    let xu = u.course_unit();
+    let x = |m: f64| xu.from_si(m);
+    let zone = x(zone);
+    let behind: Vec<(f64, f64)> = app.trace.iter().map(|&(m, v)| (x(m), y(v))).collect();
     let ahead: Vec<(f64, f64)> =
-        d.projection.as_ref().map(|p| p.trajectory.iter().map(|&(x, v)| (x, y(v))).collect()).unwrap_or_default();
+        d.projection.as_ref().map(|p| p.trajectory.iter().map(|&(m, v)| (x(m), y(v))).collect()).unwrap_or_default();
     let target = [(0.0, y(cfg.track.target_speed_mps)), (zone, y(cfg.track.target_speed_mps))];
     let brake: Vec<(f64, f64)> =
-        d.braking.map(|b| (0..=20).map(|i| (b.point_m, y(vmax) * i as f64 / 20.0)).collect()).unwrap_or_default();
-    let stop_by = cfg.track.stop_by_m();
+        d.braking.map(|b| (0..=20).map(|i| (x(b.point_m), y(vmax) * i as f64 / 20.0)).collect()).unwrap_or_default();
+    let stop_by = x(cfg.track.stop_by_m());
     let end: Vec<(f64, f64)> = (0..=20).map(|i| (stop_by, y(vmax) * i as f64 / 20.0)).collect();
     // Drawn in this order: references first, the car and its projection on top.
     let datasets = vec![
@@ -372,14 +382,16 @@ fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             .style(t.ahead())
             .data(&ahead),
     ];
-    let km = |m: f64| format!("{:.1}", m / 1000.0);
+    let along = |d: f64| format!("{d:.1}");
     let chart = Chart::new(datasets)
         .block(
             Block::new()
                 .borders(Borders::TOP)
-                .title(Span::styled(format!(" speed over distance ({}, km) ", u.speed_unit()), t.heading())),
+                .title(Span::styled(format!(" speed over distance ({}, {}) ", u.speed_unit(), xu.symbol), t.heading())),
         )
-        .x_axis(Axis::default().bounds([0.0, zone]).labels([km(0.0), km(zone / 2.0), km(zone)]).style(t.label()))
+        .x_axis(
+            Axis::default().bounds([0.0, zone]).labels([along(0.0), along(zone / 2.0), along(zone)]).style(t.label()),
+        )
         .y_axis(
             Axis::default()
                 .bounds([0.0, y(vmax)])
@@ -415,7 +427,8 @@ fn draw_alerts(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         };
         // Three lines keep the figure at the end of the longer messages.
         // Messages carry names from the data (sources, channels): escaped.
-        let text = wrap(&crate::printable::printable(&a.message), width, 3);
+        // Worded in the unit set shown (the engine keeps the numbers as values).
+        let text = wrap(&crate::printable::printable(&a.text.render(app.units)), width, 3);
         // Keep a line for "… n more" unless this is the last alert.
         let need = 2 + text.len() + usize::from(shown + 1 < s.alerts.len());
         if lines.len() + need > inner.height as usize {
@@ -481,7 +494,7 @@ pub fn draw_small(f: &mut Frame, area: Rect, app: &App) {
         for a in s.alerts.iter().filter(|a| a.active) {
             lines.push(Line::from(vec![
                 Span::styled(severity_tag(a.severity), t.severity(a.severity)),
-                Span::raw(format!(" {}", a.message)),
+                Span::raw(format!(" {}", a.text.render(u))),
             ]));
         }
     }
