@@ -64,8 +64,10 @@ fn three_serial_protocols_at_once() {
         "--headless".into(),
         "--every".into(),
         "500ms".into(),
+        // Long enough for every line below on a busy machine (the session's
+        // time counts from its start, before the adapter is even opened).
         "--for".into(),
-        "3s".into(),
+        "6s".into(),
         "--record-dir".into(),
         dir.path().display().to_string(),
     ]);
