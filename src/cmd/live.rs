@@ -98,6 +98,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         }
         drop(tx);
         let latency = latency_histogram();
+        let verbose = args.run.verbose;
         let live = LiveOptions {
             engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: args.run.every }),
             sources: sources.clone(),
@@ -147,7 +148,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             });
             let app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
             match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
-                Ok(stats) => crate::say!("{}", stats.line()),
+                Ok(stats) => super::draw_stats(&stats, verbose),
                 Err(e) => tracing::error!("screen: {e}"),
             }
             let out = task.await.expect("the pipeline task");

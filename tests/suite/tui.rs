@@ -13,14 +13,19 @@ fn bin() -> String {
     env!("CARGO_BIN_EXE_termvel").to_string()
 }
 
-/// Position of the replay in the status line, in tenths of a second.
+/// Position of the replay in the status line, in tenths of a second: the
+/// first `m:ss.t` from the bottom of the screen (the status line; the mode
+/// word before it is dropped on narrow lines, the total follows it).
 fn position(screen: &str) -> Option<u64> {
-    let i = screen.find("replay ")?;
-    let rest = &screen[i + 7..];
-    let tok = rest.split_whitespace().next()?;
-    let (m, s) = tok.split_once(':')?;
-    let (s, tenth) = s.split_once('.')?;
-    Some(m.parse::<u64>().ok()? * 600 + s.parse::<u64>().ok()? * 10 + tenth.parse::<u64>().ok()?)
+    let parse = |tok: &str| -> Option<u64> {
+        let (m, s) = tok.split_once(':')?;
+        let (s, tenth) = s.split_once('.')?;
+        if s.len() != 2 || tenth.len() != 1 || s.contains(':') {
+            return None;
+        }
+        Some(m.parse::<u64>().ok()? * 600 + s.parse::<u64>().ok()? * 10 + tenth.parse::<u64>().ok()?)
+    };
+    screen.lines().rev().find_map(|l| l.split_whitespace().find_map(parse))
 }
 
 fn recordings(dir: &Path) -> Vec<std::path::PathBuf> {
