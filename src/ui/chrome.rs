@@ -245,18 +245,18 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
     while fields.len() < 4 {
         fields.push(Field::new(vec![vec![]]));
     }
-    // What the user is typing, or a passing message, comes first, with at
-    // least this much room.
+    // What the user is typing, or a passing message, comes first: the
+    // fields shorten to give it room (their short forms keep every figure
+    // and the state), and it is cut only if that is not enough.
     let typed = app.prompt.as_ref().map(|text| (text, " Enter records, Esc cancels "));
     let wanted = match (&typed, &app.message) {
         (Some((text, help)), _) => 8 + text.chars().count() + help.chars().count(),
         (None, Some((m, _))) => m.chars().count() + 2,
         _ => 0,
     };
-    let min_first = wanted.min(40);
     let total = |fields: &[Field]| fields.iter().map(Field::width).sum::<usize>();
     let mut order = SHORTEN_ORDER.iter();
-    while total(&fields) + min_first > width {
+    while total(&fields) + wanted > width {
         let Some(&i) = order.next() else { break };
         fields[i].shorten();
     }
