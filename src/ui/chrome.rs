@@ -112,20 +112,19 @@ impl<'a> Field<'a> {
     fn width(&self) -> usize {
         self.forms[self.at].iter().map(|s| s.width()).sum()
     }
-    /// Takes the next shorter form; false when there is none.
-    fn shorten(&mut self) -> bool {
+    /// Takes the next shorter form, if there is one.
+    fn shorten(&mut self) {
         if self.at + 1 < self.forms.len() {
             self.at += 1;
-            true
-        } else {
-            false
         }
     }
 }
 
 /// Status fields, in the order they shorten when the line is too narrow:
 /// the recording's name (then the word REC alone), the clock of day, the
-/// mode word, the sources (to counts). Figures are never cut.
+/// mode word, the sources (to counts). Figures are never cut. Another field
+/// goes in as one more [`Field`] with its shorter forms, its index named
+/// here.
 const SHORTEN_ORDER: [usize; 6] = [REC, CLOCK, PLAY, REC, SOURCES, REC];
 const SOURCES: usize = 0;
 const CLOCK: usize = 1;
@@ -133,8 +132,8 @@ const PLAY: usize = 2;
 const REC: usize = 3;
 
 /// The status line: sources, clock, position of total, pace, pause,
-/// recording; a message or the mark being typed first, given the room the
-/// status leaves it (never all of it: the state stays readable).
+/// recording; a message or the mark being typed first, with the room the
+/// fields' shortest forms leave it (they keep the position and the state).
 pub fn status(f: &mut Frame, area: Rect, app: &App) {
     let t = &app.theme;
     let st = t.status();
