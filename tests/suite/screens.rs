@@ -380,12 +380,26 @@ fn the_run_chart_legend_shows_the_marks_it_uses() {
         // No legend box on the data (ratatui's: `│target`, `│projected`).
         assert!(!plot.contains("│projected") && !plot.contains("│target"), "{w}×{h}:\n{plot}");
     }
-    // The trace is drawn whole: the references go only into empty cells,
-    // so the car's data cells are those of a chart without them.
-    let text = render(&app, 120, 40);
-    let braille =
-        |t: &str| plot_rows(t).iter().map(|l| l.chars().filter(|c| ('⠁'..='⣿').contains(c)).count()).sum::<usize>();
-    assert!(braille(&text) > 50, "{text}");
+    // Help names every mark of the run chart.
+    app.screen = Screen::Help;
+    app.scroll = 100;
+    let help = render(&app, 120, 40);
+    for mark in ["⣀⡠ driven", "••• projected", "╌╌ target speed", "┆ braking point", "┊ stop-by line", "▼ a mark"]
+    {
+        assert!(help.contains(mark), "help lacks {mark}: {help}");
+    }
+    // Nothing hides data: the reference lines go only into empty cells, so
+    // the trace and the projection have the same cells with the braking
+    // line as without it.
+    app.screen = Screen::Run;
+    let data = |t: &str| {
+        plot_only(t).iter().map(|l| l.chars().filter(|c| ('⠁'..='⣿').contains(c) || *c == '•').count()).sum::<usize>()
+    };
+    let with = render(&app, 120, 40);
+    with_frame(&mut app, |snap, _| snap.derived.braking = None);
+    let without = render(&app, 120, 40);
+    assert!(with.contains('┆') && !plot_only(&without).join("").contains('┆'));
+    assert!(data(&with) > 50 && data(&with) == data(&without), "{with}\n{without}");
 }
 
 // Issue 15, item 9: a 79×24 terminal was called `terminal 79×23`; the
