@@ -23,10 +23,12 @@ pub struct Cli {
 #[derive(Subcommand, Debug)]
 pub enum Command {
     /// Rehearse a run plan with the simulator, on the screens or headless.
+    #[command(mut_arg("config", |a| a.help(REHEARSE_CONFIG_HELP)))]
     Rehearse(RehearseArgs),
     /// Replay a termvel recording or a candump -L log.
     Replay(ReplayArgs),
     /// Watch a run live from SocketCAN and serial inputs.
+    #[command(mut_arg("config", |a| a.help(LIVE_CONFIG_HELP)))]
     Live(LiveArgs),
     /// Summarise a recorded run: peaks, derating, estimates, alerts, data quality.
     Report(ReportArgs),
@@ -43,6 +45,13 @@ pub enum Command {
     /// Follow a run shared through an MQTT broker (`--share` on the reading station).
     Follow(FollowArgs),
 }
+
+/// `--config` of `rehearse` and `live`: [`RunOpts`] words it for replay
+/// (where a recording carries its own set), wrong for these two.
+const REHEARSE_CONFIG_HELP: &str =
+    "Config files or directories to use instead of those the plan names (or the built-in demo set).";
+const LIVE_CONFIG_HELP: &str =
+    "Config files or directories: car, track, signal map, alerts (default: the built-in demo set).";
 
 #[derive(Args, Debug)]
 pub struct ShellFilesArgs {
@@ -112,6 +121,9 @@ pub struct RunOpts {
     /// Config files or directories to use instead of the recording's own (or the built-in demo set).
     #[arg(long = "config", short = 'c', value_name = "PATH")]
     pub config: Vec<PathBuf>,
+    /// After the screens close, say on stderr how they kept up (frames drawn, the longest gap between two); the log has it always.
+    #[arg(long)]
+    pub verbose: bool,
     #[command(flatten)]
     pub share: ShareOpts,
 }
@@ -124,6 +136,7 @@ impl Default for RunOpts {
             no_record: false,
             record_dir: None,
             config: Vec::new(),
+            verbose: false,
             share: ShareOpts::default(),
         }
     }
@@ -367,6 +380,24 @@ fn parse_speed(s: &str) -> Result<f64, String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Issue 15, item 21: the `--config` help of `live` and `rehearse` said
+    // "instead of the recording's own", which they do not have.
+    #[test]
+    fn config_help_fits_each_command() {
+        use clap::CommandFactory;
+        let cmd = Cli::command();
+        let help = |sub: &str| {
+            let s = cmd.find_subcommand(sub).unwrap();
+            let a = s.get_arguments().find(|a| a.get_id() == "config").unwrap();
+            a.get_help().unwrap().to_string()
+        };
+        assert!(help("replay").contains("recording's own"), "{}", help("replay"));
+        for sub in ["live", "rehearse"] {
+            assert!(!help(sub).contains("recording"), "{sub}: {}", help(sub));
+        }
+        assert!(help("rehearse").contains("plan"));
+    }
 
     #[test]
     fn durations() {

@@ -58,7 +58,7 @@ fn the_screens_at_ten_times_a_saturated_bus() {
     let dir = tempfile::tempdir().unwrap();
     let mut adapter = pty::Pty::new();
     let cmd = format!(
-        "{} live --serial {},proto=slcan,bitrate=1000000,name=pt --record-dir {}",
+        "{} live --serial {},proto=slcan,bitrate=1000000,name=pt --record-dir {} --verbose",
         env!("CARGO_BIN_EXE_termvel"),
         adapter.path,
         dir.path().display()

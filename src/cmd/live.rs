@@ -111,6 +111,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         }
         drop(tx);
         let latency = latency_histogram();
+        let verbose = args.run.verbose;
         let live = LiveOptions {
             engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: args.run.every }),
             sources: sources.clone(),
@@ -161,7 +162,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             let mut app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
             app.units = settings.settings.units;
             match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
-                Ok(stats) => crate::say!("{}", stats.line()),
+                Ok(stats) => super::draw_stats(&stats, verbose),
                 Err(e) => tracing::error!("screen: {e}"),
             }
             let out = task.await.expect("the pipeline task");

@@ -141,6 +141,15 @@ pub(crate) fn init_log_file() -> Option<tracing_appender::non_blocking::WorkerGu
     Some(guard)
 }
 
+/// How the screens kept up: a developer's figure, so into the log, and on
+/// stderr only with `--verbose` (the soak test reads it there).
+pub(crate) fn draw_stats(stats: &crate::ui::DrawStats, verbose: bool) {
+    tracing::info!("{}", stats.line());
+    if verbose {
+        crate::say!("{}", stats.line());
+    }
+}
+
 /// Says on stderr where the session's recording went, and what its file
 /// failed to take; true when every event is in it.
 pub(crate) fn report_recording(rec: &crate::stream::RecordingOutcome) -> bool {

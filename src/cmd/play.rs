@@ -143,7 +143,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     });
     let (ui_result, outcome) = outcome;
     super::sharing::finish(publisher);
-    crate::say!("{}", ui_result?.line());
+    super::draw_stats(&ui_result?, spec.run.verbose);
     match outcome {
         Ok(Ok(Ok(o))) => finish(&spec, &o),
         Ok(Ok(Err(e))) => Err(e.into()),

@@ -182,6 +182,8 @@ pub struct Engine {
     samples: Vec<Sample>,
     names: Vec<Arc<str>>,
     marks: Vec<(TimeNs, String)>,
+    /// The latest marks with where they were made, for the snapshots.
+    mark_places: Arc<Vec<snapshot::MarkPlace>>,
     // Estimators and per-sample state.
     road: RoadLoadEstimator,
     pack: PackEstimator,
@@ -225,6 +227,7 @@ impl Engine {
             samples: Vec::with_capacity(64),
             names: Vec::new(),
             marks: Vec::new(),
+            mark_places: Arc::default(),
             derate: DeratingTracker::default(),
             heating: HeatingRate::default(),
             progress: progress::ProgressTracker::default(),
@@ -297,7 +300,18 @@ impl Engine {
                 }
             }
             Payload::Line(_) | Payload::BadLine { .. } => self.health[idx].lines += 1,
-            Payload::Mark(text) => self.marks.push((ev.t_ns, text.clone())),
+            Payload::Mark(text) => {
+                self.marks.push((ev.t_ns, text.clone()));
+                let places = Arc::make_mut(&mut self.mark_places);
+                if places.len() >= snapshot::MAX_MARK_PLACES {
+                    places.remove(0);
+                }
+                places.push(snapshot::MarkPlace {
+                    t_ns: ev.t_ns,
+                    distance_m: self.odo_m,
+                    text: Arc::from(text.as_str()),
+                });
+            }
             Payload::Ack(key) => self.alerts.ack(ev.t_ns, key),
             Payload::Link(state, reason) => {
                 let h = &mut self.health[idx];
@@ -645,6 +659,7 @@ impl Engine {
             derived: self.derived.clone(),
             alerts: self.alerts.visible(),
             marks: self.marks.len(),
+            mark_places: self.mark_places.clone(),
         }
     }
 }
@@ -718,6 +733,33 @@ mod tests {
         e.finish(&sources, &mut |s: Snapshot| last.push((s.t_ns, s.marks)));
         assert_eq!(last, vec![(600 * MS, 4)]);
         assert_eq!(e.now_ns(), Some(350 * MS));
+    }
+
+    // Issue 15, item 19: marks were never shown on any screen: a snapshot
+    // carries the latest marks with the distance run when each came, and
+    // at most MAX_MARK_PLACES of them.
+    #[test]
+    fn snapshots_place_the_latest_marks() {
+        let (mut e, sources, _) = engine();
+        e.odo_m = 1234.5;
+        feed(&mut e, &sources, &Event::new(50 * MS, OPERATOR, Payload::Mark("boost late".into())));
+        e.odo_m = 2000.0;
+        for i in 0..snapshot::MAX_MARK_PLACES as i64 {
+            feed(&mut e, &sources, &mark(60 * MS + i));
+        }
+        let mut last = Vec::new();
+        e.finish(&sources, &mut |s: Snapshot| last.push(s));
+        let s = last.pop().unwrap();
+        assert_eq!(s.marks, snapshot::MAX_MARK_PLACES + 1);
+        assert_eq!(s.mark_places.len(), snapshot::MAX_MARK_PLACES, "the oldest left the list");
+        assert!(s.mark_places.iter().all(|m| m.distance_m == 2000.0));
+        let (mut e, sources, _) = engine();
+        e.odo_m = 1234.5;
+        feed(&mut e, &sources, &Event::new(50 * MS, OPERATOR, Payload::Mark("boost late".into())));
+        let mut last = Vec::new();
+        e.finish(&sources, &mut |s: Snapshot| last.push(s));
+        let m = &last.pop().unwrap().mark_places[0];
+        assert_eq!((m.t_ns, m.distance_m, &*m.text), (50 * MS, 1234.5, "boost late"));
     }
 
     #[test]

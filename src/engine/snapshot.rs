@@ -90,6 +90,24 @@ pub struct Snapshot {
     pub alerts: Vec<Alert>,
     /// Operator marks so far.
     pub marks: usize,
+    /// Where the latest marks were made (at most [`MAX_MARK_PLACES`],
+    /// oldest first), for the screens. Shared between snapshots: a new
+    /// mark makes a new list, a snapshot only clones the pointer.
+    pub mark_places: Arc<Vec<MarkPlace>>,
+}
+
+/// Marks a snapshot places (the screens draw a handful; a recording may hold
+/// any number).
+pub const MAX_MARK_PLACES: usize = 64;
+
+/// An operator mark, where it was made.
+#[derive(Clone, Debug, PartialEq)]
+pub struct MarkPlace {
+    pub t_ns: TimeNs,
+    /// The distance run when the mark came, m.
+    pub distance_m: f64,
+    /// The operator's note, as typed (escape it before drawing).
+    pub text: Arc<str>,
 }
 
 impl Snapshot {

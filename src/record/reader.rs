@@ -777,6 +777,52 @@ impl<R: Read + Seek> RecordingReader<R> {
     }
 }
 
+/// Bytes at the end of a file [`last_event_time`] reads.
+const TAIL_BYTES: u64 = 64 << 10;
+
+/// The stream time of a file's last event, read from its last lines only
+/// (a replay's status shows its total length without reading the whole
+/// file first): the latest time among the last lines that start with one,
+/// so a small reversal at the end (which the time-order stage puts right)
+/// does not shorten it. `None` when the file cannot be read or its tail
+/// holds no timed line; a time that differs from the others by more than
+/// [`TAIL_JUMP_NS`] (an isolated jump, which the reader corrects) is left
+/// out.
+pub fn last_event_time(path: &Path) -> Option<crate::event::TimeNs> {
+    let mut f = File::open(path).ok()?;
+    if !f.metadata().ok()?.is_file() {
+        return None;
+    }
+    let len = f.seek(SeekFrom::End(0)).ok()?;
+    let from = len.saturating_sub(TAIL_BYTES);
+    f.seek(SeekFrom::Start(from)).ok()?;
+    let mut tail = Vec::with_capacity((len - from) as usize);
+    f.take(TAIL_BYTES).read_to_end(&mut tail).ok()?;
+    let mut lines: Vec<&[u8]> = tail.split(|b| *b == b'\n').collect();
+    if from > 0 {
+        // The first piece may be the end of a line cut by the window.
+        lines.remove(0);
+    }
+    let times: Vec<crate::event::TimeNs> = lines
+        .iter()
+        .rev()
+        .filter_map(|l| match l.first() {
+            Some(b'(') => candump::parse_time_between(l, b')').ok().map(|t| t.0),
+            Some(b'[') => candump::parse_time_between(l, b']').ok().map(|t| t.0),
+            _ => None,
+        })
+        .take(64)
+        .collect();
+    let mut sorted = times.clone();
+    sorted.sort_unstable();
+    let median = *sorted.get(sorted.len() / 2)?;
+    times.into_iter().filter(|t| (t - median).abs() <= TAIL_JUMP_NS).max()
+}
+
+/// How far a time at the end of a file may lie from its neighbours' and
+/// still count as the last event's (beyond: an isolated jump).
+const TAIL_JUMP_NS: crate::event::TimeNs = 10 * crate::event::NS_PER_S;
+
 fn split_word(s: &[u8]) -> (&[u8], &[u8]) {
     match s.iter().position(|b| *b == b' ') {
         Some(p) => (&s[..p], &s[p + 1..]),
@@ -807,6 +853,31 @@ impl fmt::Display for LineError {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    // Issue 15, item 17: a replay's status had no total length; the last
+    // event's time comes from the file's tail, the same as reading it all.
+    #[test]
+    fn the_last_event_time_is_read_from_the_tail() {
+        let demo = Path::new(env!("CARGO_MANIFEST_DIR")).join("replays/demo.tvrec");
+        let mut r = RecordingReader::open(&demo).unwrap();
+        let mut last = None;
+        while let Some(ev) = r.next_event() {
+            last = Some(ev.t_ns);
+        }
+        assert_eq!(last_event_time(&demo), last);
+        let dir = tempfile::tempdir().unwrap();
+        let p = dir.path().join("a.log");
+        // A small reversal at the end, an isolated jump, a torn last line.
+        std::fs::write(
+            &p,
+            "(100.000000) can0 123#00\n(101.500000) can0 123#00\n(101.400000) can0 123#00\n\
+             (9999.0) can0 123#00\n(101.600000) can0 123#00\n(101.7000",
+        )
+        .unwrap();
+        assert_eq!(last_event_time(&p), Some(101_600_000_000));
+        std::fs::write(&p, "not a log\n").unwrap();
+        assert_eq!(last_event_time(&p), None);
+    }
 
     /// Reads `body` after a header declaring `can0` (CAN) and `op`
     /// (operator); returns the events and the skipped lines' messages.

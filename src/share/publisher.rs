@@ -666,6 +666,7 @@ mod tests {
             derived: Derived::default(),
             alerts,
             marks: 0,
+            mark_places: Default::default(),
         })
     }
 

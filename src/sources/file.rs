@@ -12,11 +12,14 @@ use crate::record::{Header, ReadStats, RecordingError, RecordingReader};
 pub struct FileSource {
     path: PathBuf,
     reader: RecordingReader<File>,
+    /// The last event's time, read from the file's tail when opened.
+    end_ns: Option<crate::event::TimeNs>,
 }
 
 impl FileSource {
     pub fn open(path: &Path) -> Result<FileSource, RecordingError> {
-        Ok(FileSource { path: path.to_path_buf(), reader: RecordingReader::open(path)? })
+        let reader = RecordingReader::open(path)?;
+        Ok(FileSource { path: path.to_path_buf(), reader, end_ns: crate::record::reader::last_event_time(path) })
     }
 
     pub fn header(&self) -> &Header {
@@ -112,6 +115,10 @@ impl EventSource for FileSource {
 
     fn resume(&mut self, pos: &SourcePosition) -> Result<(), RewindError> {
         Ok(self.reader.resume(&pos.0)?)
+    }
+
+    fn end_ns(&self) -> Option<crate::event::TimeNs> {
+        self.end_ns
     }
 }
 

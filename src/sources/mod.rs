@@ -35,6 +35,11 @@ pub trait EventSource: Send {
     fn position(&self) -> Option<SourcePosition> {
         None
     }
+    /// Stream time of the last event, when known before reading there (a
+    /// file's tail), for a replay's total length.
+    fn end_ns(&self) -> Option<crate::event::TimeNs> {
+        None
+    }
     /// Goes on from a position this source gave.
     fn resume(&mut self, _pos: &SourcePosition) -> Result<(), RewindError> {
         Err(RewindError::NoPositions)

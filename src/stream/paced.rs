@@ -230,7 +230,8 @@ pub async fn play<S: EventSource, K: SnapshotSink>(
     mut controls: mpsc::Receiver<Control>,
     sink: &mut K,
 ) -> Result<PlayerOutcome, PlayerError> {
-    let status = StreamStatus { speed: opts.speed, paused: opts.start_paused, ..StreamStatus::default() };
+    let status =
+        StreamStatus { speed: opts.speed, paused: opts.start_paused, end_ns: src.end_ns(), ..StreamStatus::default() };
     let mut p = Player {
         pipe: Pipeline::new(make_engine(), opts.recorder, status),
         make_engine,

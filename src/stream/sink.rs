@@ -15,6 +15,9 @@ pub struct StreamStatus {
     pub start_ns: Option<TimeNs>,
     /// Stream time of the latest event fed.
     pub position_ns: Option<TimeNs>,
+    /// Stream time of the stream's last event, when the source knows it
+    /// (a file: from its tail), for a replay's total length.
+    pub end_ns: Option<TimeNs>,
     /// Pace (a factor of real time; `f64::INFINITY` for as fast as
     /// possible). Live streams run at 1.
     pub speed: f64,
@@ -45,6 +48,7 @@ impl Default for StreamStatus {
         StreamStatus {
             start_ns: None,
             position_ns: None,
+            end_ns: None,
             speed: 1.0,
             paused: false,
             finished: false,

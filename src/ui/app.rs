@@ -97,6 +97,8 @@ pub enum Action {
 
 /// Ticks a first `q` waits for the second.
 pub const QUIT_ARM_TICKS: u32 = 40;
+/// What a first `q` says.
+pub const QUIT_ASK: &str = "press q again to quit (any other key cancels)";
 /// Ticks a transient message stays on the status line.
 pub const MESSAGE_TICKS: u32 = 60;
 /// Seek steps, ns.
@@ -221,6 +223,14 @@ impl App {
         if key.modifiers.contains(KeyModifiers::CONTROL) && key.code == KeyCode::Char('c') {
             return vec![Action::Quit];
         }
+        // Any other key between the two `q`s cancels the quit: `q`, a
+        // screen key, `q` is two stray keys, not a decision.
+        if self.quit_armed > 0 && (key.code != KeyCode::Char('q') || self.prompt.is_some() || self.filtering) {
+            self.quit_armed = 0;
+            if self.message.as_ref().is_some_and(|m| m.0 == QUIT_ASK) {
+                self.message = None;
+            }
+        }
         // Typing a mark.
         if let Some(text) = &mut self.prompt {
             match key.code {
@@ -299,7 +309,7 @@ impl App {
                     return vec![Action::Quit];
                 }
                 self.quit_armed = QUIT_ARM_TICKS;
-                self.say("press q again to quit");
+                self.say(QUIT_ASK);
                 vec![]
             }
             KeyCode::Char(c @ ('1'..='5' | '?')) => {
@@ -408,7 +418,7 @@ pub const KEYS: &[(&str, &str)] = &[
     ("u", "units: metric or imperial, alerts too (remembered)"),
     ("/  Esc", "channels screen: filter by name / clear the filter"),
     ("↑ ↓  PgUp PgDn", "scroll the channel list"),
-    ("q q  or Ctrl-C", "quit (q twice, so one stray key cannot end a session)"),
+    ("q q  or Ctrl-C", "quit: q twice in a row (another key between cancels)"),
 ];
 
 #[cfg(test)]
@@ -489,6 +499,18 @@ mod tests {
         }
         assert!(a.on_key(key(KeyCode::Char('q'))).is_empty(), "the first press expired");
         assert_eq!(a.on_key(KeyEvent::new(KeyCode::Char('c'), KeyModifiers::CONTROL)), vec![Action::Quit]);
+    }
+
+    // Issue 15, item 21: `q`, another key, `q` still quit.
+    #[test]
+    fn a_key_between_the_two_qs_cancels_the_quit() {
+        let mut a = app();
+        a.on_key(key(KeyCode::Char('q')));
+        assert!(a.message.as_ref().is_some_and(|m| m.0 == QUIT_ASK));
+        a.on_key(key(KeyCode::Char('2')));
+        assert!(!a.quit_armed() && a.message.is_none(), "the other key cancels, and the prompt goes");
+        assert!(a.on_key(key(KeyCode::Char('q'))).is_empty(), "this q only arms again");
+        assert_eq!(a.on_key(key(KeyCode::Char('q'))), vec![Action::Quit]);
     }
 
     #[test]

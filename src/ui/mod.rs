@@ -43,9 +43,7 @@ pub const MIN_HEIGHT: u16 = 24;
 pub fn draw(f: &mut Frame, app: &App) {
     let area = f.area();
     if area.width < MIN_WIDTH || area.height < MIN_HEIGHT {
-        let [body, caution] = Layout::vertical([Constraint::Min(1), Constraint::Length(1)]).areas(area);
-        screens::run::draw_small(f, body, app);
-        chrome::caution(f, caution, app);
+        screens::run::draw_small(f, area, app);
         return;
     }
     let [header, body, caution, status] =

@@ -19,6 +19,7 @@ use crate::util::demo;
 /// snapshot up to then seen.
 pub fn demo_app(secs: f64, color: bool) -> App {
     let mut src = FileSource::open(&demo()).unwrap();
+    let end_ns = termvel::record::reader::last_event_time(&demo());
     let texts = src.header().configs.iter().map(|c| (c.origin.clone(), c.text.clone())).collect();
     let cfg = Arc::new(ConfigSet::from_texts(texts).unwrap());
     let mut app = App::new(
@@ -40,6 +41,7 @@ pub fn demo_app(secs: f64, color: bool) -> App {
             let status = StreamStatus {
                 start_ns: Some(t0),
                 position_ns: Some(s.t_ns),
+                end_ns,
                 speed: 4.0,
                 paused: false,
                 finished: false,
@@ -419,4 +421,230 @@ fn battery_and_power_after_u_read_in_one_set() {
     assert!(text.contains("739 hp") && text.contains(" ft²") && text.contains(" mph"), "{text}");
     assert!(!text.contains(" kW") && !text.contains(" m/s") && !text.contains("km/h"), "{text}");
     assert!(!text.contains('−') && !text.contains("-0 "), "one sign glyph, no negative zero: {text}");
+}
+
+/// `app` with its latest frame changed by `edit` (a hand-made state on a
+/// real snapshot).
+fn with_frame(app: &mut App, edit: impl FnOnce(&mut termvel::engine::Snapshot, &mut StreamStatus)) {
+    let f = app.frame.clone().expect("a frame");
+    let (mut snap, mut status) = ((*f.snapshot).clone(), f.status.clone());
+    edit(&mut snap, &mut status);
+    app.frame = Some(Arc::new(UiFrame { snapshot: Arc::new(snap), status }));
+}
+
+/// The rows of the run chart from its title to the x axis (the legend, then
+/// the plot).
+fn plot_rows(text: &str) -> Vec<&str> {
+    text.lines().skip_while(|l| !l.contains("speed over distance")).take_while(|l| !l.contains('└')).collect()
+}
+
+/// The plot's rows alone: those with the y axis at column 3.
+fn plot_only(text: &str) -> Vec<&str> {
+    plot_rows(text).into_iter().filter(|l| l.chars().nth(3) == Some('│')).collect()
+}
+
+// Issue 15, item 8: on the run chart `target` and `driven` had no sample,
+// `brake ┆` and `stop by ┊` showed glyphs the chart did not use, the
+// braking point and the projection were both `•`, and the legend box covered
+// the brake and stop-by lines. Now a legend line above the chart shows each
+// series' own mark, every mark differs, and no box sits on the data.
+#[test]
+fn the_run_chart_legend_shows_the_marks_it_uses() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    for (w, h) in [(80, 24), (120, 40), (200, 60)] {
+        let text = render(&app, w, h);
+        let rows = plot_rows(&text);
+        let legend: String = rows.iter().take(3).copied().collect();
+        for sample in ["⣀⡠ driven", "••• projected", "╌╌ target", "┆ brake", "┊ stop-by 6.80 km"] {
+            assert!(legend.contains(sample), "{w}×{h}: {sample} missing: {legend}");
+        }
+        let plot: String = plot_only(&text).join("\n");
+        // The marks the legend shows are the chart's: the braking point a
+        // column of ┆ (not the projection's •), stop-by of ┊, the target ╌.
+        for mark in ['┆', '┊', '╌', '•'] {
+            assert!(plot.contains(mark), "{w}×{h}: {mark} not on the chart:\n{plot}");
+        }
+        let brake_col = |l: &str| l.chars().position(|c| c == '┆');
+        let cols: Vec<usize> = plot.lines().filter_map(brake_col).collect();
+        assert!(cols.len() >= 3 && cols.iter().all(|c| *c == cols[0]), "{w}×{h}: the brake line: {cols:?}");
+        // No legend box on the data (ratatui's: `│target`, `│projected`).
+        assert!(!plot.contains("│projected") && !plot.contains("│target"), "{w}×{h}:\n{plot}");
+    }
+    // Help names every mark of the run chart.
+    app.screen = Screen::Help;
+    app.scroll = 100;
+    let help = render(&app, 120, 40);
+    for mark in ["⣀⡠ driven", "••• projected", "╌╌ target speed", "┆ braking point", "┊ stop-by line", "▼ a mark"]
+    {
+        assert!(help.contains(mark), "help lacks {mark}: {help}");
+    }
+    // Nothing hides data: the reference lines go only into empty cells, so
+    // the trace and the projection have the same cells with the braking
+    // line as without it.
+    app.screen = Screen::Run;
+    let data = |t: &str| {
+        plot_only(t).iter().map(|l| l.chars().filter(|c| ('⠁'..='⣿').contains(c) || *c == '•').count()).sum::<usize>()
+    };
+    let with = render(&app, 120, 40);
+    with_frame(&mut app, |snap, _| snap.derived.braking = None);
+    let without = render(&app, 120, 40);
+    assert!(with.contains('┆') && !plot_only(&without).join("").contains('┆'));
+    assert!(data(&with) > 50 && data(&with) == data(&without), "{with}\n{without}");
+}
+
+// Issue 15, item 9: a 79×24 terminal was called `terminal 79×23`; the
+// reduced screen dropped the speed's age, the PAUSED state and the
+// acknowledged marks; its speed unit is the screen's one display unit.
+#[test]
+fn a_79x24_terminal_keeps_age_pause_and_acknowledgements() {
+    let mut app = demo_app(60.0, false);
+    with_frame(&mut app, |snap, status| {
+        status.paused = true;
+        snap.alerts[0].acked = true;
+    });
+    let text = render(&app, 79, 24);
+    assert!(text.contains("terminal 79×24 is below 80×24"), "{text}");
+    assert!(lines_with(&text, "SPEED").iter().any(|l| l.contains("km/h") && l.contains(" old")), "{text}");
+    assert!(text.contains("‖ PAUSED") && text.contains(" / 1:44.6"), "{text}");
+    assert!(text.contains("✓"), "the acknowledged alert: {text}");
+    assert!(text.contains("Advisory only"), "{text}");
+    app.units = app.units.toggle();
+    let text = render(&app, 79, 24);
+    assert!(lines_with(&text, "SPEED").iter().any(|l| l.contains("mph")), "{text}");
+}
+
+// Issue 15, item 10: with no battery data the boost meter read
+// `— no limit (prior)`, which reads as unlimited boost.
+#[test]
+fn no_battery_data_is_said_on_the_boost_meter() {
+    let mut app = demo_app(60.0, false);
+    with_frame(&mut app, |snap, _| {
+        snap.derived.battery = Default::default();
+        snap.derived.boost_left = Default::default();
+    });
+    app.screen = Screen::Run;
+    let text = render(&app, 80, 24);
+    let boost = lines_with(&text, " boost ");
+    assert!(boost.iter().any(|l| l.contains("— no battery data")), "{boost:?}");
+    assert!(!text.contains("no limit"), "{text}");
+}
+
+// Issue 15, item 13: the run screen's boost meter said `boost 0.0 s power`
+// while the battery screen said `boosting now`: it says the time the pack
+// can still give what the target needs, at that power, or that it gives
+// less already.
+#[test]
+fn the_boost_meter_says_what_its_figure_is() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    let text = render(&app, 80, 24);
+    let boost = lines_with(&text, " boost ");
+    assert!(boost.iter().any(|l| l.contains("below 139 kW need now")), "{boost:?}");
+    assert!(!text.contains("0.0 s power"), "{text}");
+    let mut app = demo_app(35.0, false);
+    app.screen = Screen::Run;
+    let text = render(&app, 80, 24);
+    let boost = lines_with(&text, " boost ");
+    assert!(boost.iter().any(|l| l.contains(" s at ") && l.contains(" kW, ")), "{boost:?}");
+}
+
+// Issue 15, item 15: the `┃` on each run-screen meter meant a different
+// thing per row and was not labelled: each row names it with the same
+// glyph, and help explains it.
+#[test]
+fn each_meter_names_its_marker() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    for (w, h) in [(80, 24), (200, 60)] {
+        let text = render(&app, w, h);
+        for (row, name) in [
+            ("demand", "┃581 kW avail."),
+            ("road", "┃ avail."),
+            ("charge", "┃reserve 12 %"),
+            ("battery", "┃245 kW rated"),
+        ] {
+            let l = lines_with(&text, &format!(" {row} "));
+            assert!(l.iter().any(|l| l.contains(name)), "{w}×{h}: {row}: {l:?}");
+        }
+    }
+    app.screen = Screen::Help;
+    app.scroll = 100;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("charge ┃ reserve") && text.contains("┃ rated"), "{text}");
+}
+
+// Issue 15, item 17: below 200 columns the header dropped the car, course
+// and target; a replay's status had no total length.
+#[test]
+fn the_header_keeps_car_course_and_target_and_the_status_the_total() {
+    let mut app = demo_app(60.0, false);
+    for s in [Screen::Run, Screen::Help] {
+        app.screen = s;
+        for (w, h) in [(80, 24), (120, 40), (160, 48), (200, 60)] {
+            let text = render(&app, w, h);
+            let head = text.lines().next().unwrap();
+            assert!(head.contains("Brisk BT-03") && head.contains("Orrin Flats"), "{w}: {head}");
+            assert!(head.contains("target 365 km/h"), "{w}: {head}");
+            let status = text.lines().last().unwrap();
+            assert!(status.contains(" / 1:44.6"), "{w}: {status}");
+        }
+    }
+}
+
+// Issue 15, item 19: marks were never shown on any screen; now the run chart
+// has each at its distance and the latest with its note.
+#[test]
+fn marks_are_shown_on_the_run_chart() {
+    use termvel::engine::snapshot::MarkPlace;
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Run;
+    with_frame(&mut app, |snap, _| {
+        snap.mark_places = Arc::new(vec![
+            MarkPlace { t_ns: snap.t_ns - 20_000_000_000, distance_m: 1500.0, text: "launch".into() },
+            MarkPlace { t_ns: snap.t_ns, distance_m: 4200.0, text: "boost felt late".into() },
+        ]);
+    });
+    for (w, h) in [(80, 24), (120, 40)] {
+        let text = render(&app, w, h);
+        let rows = plot_rows(&text);
+        assert!(rows.iter().any(|l| l.contains("▼ mark boost felt late at 4.20 km")), "{w}×{h}: {rows:?}");
+        let top = plot_only(&text)[0];
+        assert_eq!(top.matches('▼').count(), 2, "{w}×{h}: both marks on the chart's top row: {top}");
+    }
+}
+
+// Issue 15, item 19: a long note at 80 columns ran off and hid the status
+// line, while typed and once made.
+#[test]
+fn a_long_note_leaves_the_status_line_readable() {
+    let mut app = demo_app(60.0, false);
+    with_frame(&mut app, |_, status| status.paused = true);
+    let note = "boost came on late and the right rear felt light past the four kilometre board";
+    app.prompt = Some(note.into());
+    let text = render(&app, 80, 24);
+    let status = text.lines().last().unwrap();
+    assert!(status.contains("mark: …") && status.contains("kilometre board▏"), "the end of the note: {status}");
+    assert!(status.contains(" / 1:44.6") && status.contains("PAUSED"), "{status}");
+    app.prompt = None;
+    app.message = Some((format!("marked: {note}"), 10));
+    let status = render(&app, 80, 24).lines().last().unwrap().to_string();
+    assert!(status.contains("marked: boost") && status.contains("…"), "{status}");
+    assert!(status.contains(" / 1:44.6") && status.contains("PAUSED"), "{status}");
+}
+
+// Issue 15, item 6: at 80×24 the feed screen's bus-load line was cut
+// (`500 k`) and the recording's name in the status line: figures and units
+// stay whole, words shorten.
+#[test]
+fn bus_load_and_the_recordings_name_keep_their_figures() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Feed;
+    let text = render(&app, 80, 24);
+    assert!(text.contains("390 frames/s, 500 kbit/s"), "{text}");
+    for s in Screen::ALL {
+        app.screen = s;
+        let status = render(&app, 80, 24).lines().last().unwrap().to_string();
+        assert!(status.contains("● REC") && status.contains("20260314-074210-replay "), "{}: {status}", s.name());
+    }
 }

@@ -13,14 +13,19 @@ fn bin() -> String {
     env!("CARGO_BIN_EXE_termvel").to_string()
 }
 
-/// Position of the replay in the status line, in tenths of a second.
+/// Position of the replay in the status line, in tenths of a second: the
+/// first `m:ss.t` from the bottom of the screen (the status line; the mode
+/// word before it is dropped on narrow lines, the total follows it).
 fn position(screen: &str) -> Option<u64> {
-    let i = screen.find("replay ")?;
-    let rest = &screen[i + 7..];
-    let tok = rest.split_whitespace().next()?;
-    let (m, s) = tok.split_once(':')?;
-    let (s, tenth) = s.split_once('.')?;
-    Some(m.parse::<u64>().ok()? * 600 + s.parse::<u64>().ok()? * 10 + tenth.parse::<u64>().ok()?)
+    let parse = |tok: &str| -> Option<u64> {
+        let (m, s) = tok.split_once(':')?;
+        let (s, tenth) = s.split_once('.')?;
+        if s.len() != 2 || tenth.len() != 1 || s.contains(':') {
+            return None;
+        }
+        Some(m.parse::<u64>().ok()? * 600 + s.parse::<u64>().ok()? * 10 + tenth.parse::<u64>().ok()?)
+    };
+    screen.lines().rev().find_map(|l| l.split_whitespace().find_map(parse))
 }
 
 fn recordings(dir: &Path) -> Vec<std::path::PathBuf> {
@@ -377,4 +382,32 @@ fn the_unit_set_is_remembered_across_two_runs() {
         .output()
         .unwrap();
     assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
+}
+
+// Issue 15, items 9, 17 and 21: a 79×24 terminal was called 79×23 and lost
+// the pause; a replay's status had no total length; `q`, another key, `q`
+// still quit; the developer's draw figures were printed on every exit.
+#[test]
+fn a_79x24_terminal_a_cancelled_quit_and_the_draw_figures_behind_verbose() {
+    for verbose in [false, true] {
+        let name = if verbose { "quit-verbose" } else { "quit" };
+        let flag = if verbose { " --verbose" } else { "" };
+        let cmd = format!("{} replay {} --no-record --paused{flag}", bin(), demo().display());
+        let t = Tmux::start(name, &cmd, 79, 24);
+        let s = t.wait(15.0, "the small screen, paused", |s| s.contains("PAUSED") && s.contains("SPEED"));
+        assert!(s.contains("terminal 79×24 is below 80×24"), "{s}");
+        assert!(s.contains(" / 1:44.6"), "the replay's total length: {s}");
+        t.keys(&["q"]);
+        t.wait(5.0, "the quit prompt", |s| s.contains("press q again to quit"));
+        t.keys(&["2"]);
+        t.wait(5.0, "the prompt gone", |s| !s.contains("press q again"));
+        t.keys(&["q"]);
+        t.wait(5.0, "the quit prompt again", |s| s.contains("press q again to quit"));
+        std::thread::sleep(Duration::from_millis(500));
+        assert!(!t.screen().contains("[exited"), "q, 2, q quit");
+        t.keys(&["q"]);
+        let end = t.wait(10.0, "the exit", |s| s.contains("[exited"));
+        assert!(end.contains("[exited 0 ]"), "{end}");
+        assert_eq!(end.contains("screens drew"), verbose, "the draw figures only with --verbose: {end}");
+    }
 }

@@ -113,10 +113,7 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
         // to there), not the frames this screen happened to receive.
         Line::styled(format!(" snapshots    {}", app.status().map_or(0, |st| st.snapshots)), t.label()),
         Line::styled(format!(" bus load     {:.1} % worst case", load.worst * 100.0), t.label()),
-        Line::styled(
-            format!("              at {:.0} frames/s, {} kbit/s", load.frames_per_s, load.bitrate / 1000),
-            t.dim(),
-        ),
+        Line::styled(rate_line(load.frames_per_s, load.bitrate, counts.width as usize), t.dim()),
     ];
     let block = Block::new().borders(Borders::TOP).title(Span::styled(" stream ", t.heading()));
     let inner = block.inner(counts);
@@ -181,6 +178,20 @@ pub fn histogram_rows(buckets: &[(u64, u64)], rows: usize) -> Vec<(u64, u64)> {
         out[0].1 += n0;
     }
     out
+}
+
+/// The bus load's second line in `width` columns: aligned under the figure
+/// when there is room, else shorter words; the figures and units stay whole.
+fn rate_line(frames_per_s: f64, bitrate: u32, width: usize) -> String {
+    let kbit = bitrate / 1000;
+    [
+        format!("              at {frames_per_s:.0} frames/s, {kbit} kbit/s"),
+        format!("  at {frames_per_s:.0} frames/s, {kbit} kbit/s"),
+        format!(" {frames_per_s:.0} fr/s, {kbit} kbit/s"),
+    ]
+    .into_iter()
+    .find(|l| l.chars().count() <= width)
+    .unwrap_or_else(|| format!(" {kbit} kbit/s"))
 }
 
 #[cfg(test)]

@@ -124,7 +124,7 @@ fn meter<'a>(
         mark_style: t.limit(),
         text_style: t.value(),
         label_width: 8,
-        text_width: 24,
+        text_width: 26,
     }
 }
 
@@ -133,12 +133,14 @@ fn draw_meters(f: &mut Frame, area: Rect, app: &App, d: &Derived) {
     let u = app.units;
     let rows = Layout::vertical([Constraint::Length(1); 5]).split(area);
     let cfg = &app.info.config;
-    // Demand against available.
+    // The `┃` on each meter marks a different reference; its text names it
+    // with the same glyph (┃ available, ┃ reserve, ┃ rated).
     if let Some(r) = &d.road_load {
         let full = r.available_w.max(r.demand_w).max(1.0) * 1.08;
-        let text = format!("{} of {}", format::power(u, Some(r.demand_w)), format::power(u, Some(r.available_w)));
+        let text =
+            format!("{} of ┃{} avail.", format::power(u, Some(r.demand_w)), format::power(u, Some(r.available_w)));
         f.render_widget(meter(app, "demand", Some(r.demand_w), full, Some(r.available_w), text, t.ahead()), rows[0]);
-        let text = format!("{} road load", format::power(u, Some(r.total_w)));
+        let text = format!("{} road load, ┃ avail.", format::power(u, Some(r.total_w)));
         f.render_widget(meter(app, "road", Some(r.total_w), full, Some(r.available_w), text, t.behind()), rows[1]);
     } else {
         f.render_widget(Paragraph::new(Span::styled("demand  — no speed", t.doubtful())), rows[0]);
@@ -147,31 +149,19 @@ fn draw_meters(f: &mut Frame, area: Rect, app: &App, d: &Derived) {
     let b = &d.battery;
     let reserve = cfg.vehicle.battery.soc_reserve;
     let soc_text = match b.soc {
-        Some(soc) => format!("{:.0} %  reserve {:.0} %", soc * 100.0, reserve * 100.0),
-        None => format::UNKNOWN.into(),
+        Some(soc) => format!("{:.0} %, ┃reserve {:.0} %", soc * 100.0, reserve * 100.0),
+        None => format!("{}, ┃reserve {:.0} %", format::UNKNOWN, reserve * 100.0),
     };
     let low = b.soc.is_some_and(|s| s < reserve + 0.05);
     f.render_widget(
         meter(app, "charge", b.soc, 1.0, Some(reserve), soc_text, if low { t.limit() } else { t.good() }),
         rows[2],
     );
-    // Boost time left and which limit binds.
-    let l = &d.boost_left;
-    let secs = l.seconds;
-    let binding = l.binding.map_or("no limit", |b| b.as_str());
-    let text = format!("{} {binding}{}", format::seconds(secs), if l.curve_fitted { "" } else { " (prior)" });
-    let short = secs.is_some_and(|s| s < cfg.alerts.limits.boost_left_low_s);
-    let style = if short {
-        t.limit()
-    } else if l.curve_fitted {
-        t.good()
-    } else {
-        t.doubtful()
-    };
-    f.render_widget(meter(app, "boost", secs, 60.0, None, text, style), rows[3]);
+    let (text, style) = boost_text(app, d);
+    f.render_widget(meter(app, "boost", d.boost_left.seconds, 60.0, None, text, style), rows[3]);
     // Deliverable battery power against rated.
     let text = format!(
-        "{} of {} rated",
+        "{} of ┃{} rated",
         format::electric_power(u, b.deliverable_w),
         format::electric_power(u, Some(b.rated_w))
     );
@@ -179,6 +169,40 @@ fn draw_meters(f: &mut Frame, area: Rect, app: &App, d: &Derived) {
         meter(app, "battery", b.deliverable_w, b.rated_w * 1.05, Some(b.rated_w), text, t.ahead()),
         rows[4],
     );
+}
+
+/// The boost meter's words: how long the pack can still give the power the
+/// target needs, at that power, and the limit that ends it (charge,
+/// derate, heat: the battery screen's rows), or that it already gives less.
+/// A `?` says the derating curve is still the vehicle file's.
+pub fn boost_text(app: &App, d: &Derived) -> (String, Style) {
+    let t = &app.theme;
+    let u = app.units;
+    let l = &d.boost_left;
+    let prior = if l.curve_fitted { "" } else { " ?" };
+    let need = format::electric_power(u, l.need_w);
+    let short = l.seconds.is_some_and(|s| s < app.info.config.alerts.limits.boost_left_low_s);
+    let style = if short {
+        t.limit()
+    } else if l.curve_fitted {
+        t.good()
+    } else {
+        t.doubtful()
+    };
+    let limit = |b: crate::engine::derived::BoostLimit| match b {
+        crate::engine::derived::BoostLimit::Energy => "charge",
+        crate::engine::derived::BoostLimit::Power => "derate",
+        crate::engine::derived::BoostLimit::Thermal => "heat",
+    };
+    let text = match (l.seconds, l.binding) {
+        _ if d.battery.deliverable_w.is_none() => return ("— no battery data".into(), t.doubtful()),
+        (Some(s), Some(b)) if s < 0.05 && b == crate::engine::derived::BoostLimit::Power => {
+            format!("below {need} need now{prior}")
+        }
+        (Some(s), Some(b)) => format!("{} at {need}, {}{prior}", format::seconds(Some(s)), limit(b)),
+        _ => format!("no limit at {need}{prior}"),
+    };
+    (text, style)
 }
 
 fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
@@ -336,61 +360,40 @@ fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let zone = cfg.track.zone_length_m;
     let vmax = (cfg.vehicle.tyre_rated_mps.max(cfg.track.target_speed_mps) * 1.05).max(10.0);
     // Both axes in the unit set's display units: speed, and distance in km
-    // or mi (the run's figures say the same units).
+    // or mi (the run's figures say the same units). `zone` and the column
+    // of a place are in metres; the chart's x data in the display unit.
     let y = |v: f64| u.speed(v);
     let xu = u.course_unit();
     let x = |m: f64| xu.from_si(m);
-    let zone = x(zone);
     let behind: Vec<(f64, f64)> = app.trace.iter().map(|&(m, v)| (x(m), y(v))).collect();
     let ahead: Vec<(f64, f64)> =
         d.projection.as_ref().map(|p| p.trajectory.iter().map(|&(m, v)| (x(m), y(v))).collect()).unwrap_or_default();
-    let target = [(0.0, y(cfg.track.target_speed_mps)), (zone, y(cfg.track.target_speed_mps))];
-    let brake: Vec<(f64, f64)> =
-        d.braking.map(|b| (0..=20).map(|i| (x(b.point_m), y(vmax) * i as f64 / 20.0)).collect()).unwrap_or_default();
-    let stop_by = x(cfg.track.stop_by_m());
-    let end: Vec<(f64, f64)> = (0..=20).map(|i| (stop_by, y(vmax) * i as f64 / 20.0)).collect();
-    // Drawn in this order: references first, the car and its projection on top.
+    let block = Block::new()
+        .borders(Borders::TOP)
+        .title(Span::styled(format!(" speed over distance ({}, {}) ", u.speed_unit(), xu.symbol), t.heading()));
+    let inner = block.inner(area);
+    f.render_widget(block, area);
+    // The legend is a line of its own above the chart (ratatui's legend box
+    // has no samples and covered the brake and stop-by lines), each series
+    // with the very mark it is drawn with; two lines when narrow.
+    let legend = legend_lines(app, s, inner.width as usize);
+    let [legend_row, chart_area] =
+        Layout::vertical([Constraint::Length(legend.len() as u16), Constraint::Min(3)]).areas(inner);
+    f.render_widget(Paragraph::new(legend), legend_row);
+    // The car's trace and its projection are the datasets; the reference
+    // lines (target, braking point, stop-by) and the marks are drawn after,
+    // into the cells the data left empty, so they never hide it.
     let datasets = vec![
-        Dataset::default()
-            .name("target")
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Line)
-            .style(t.label())
-            .data(&target),
-        Dataset::default()
-            .name("stop by ┊")
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Scatter)
-            .style(t.dim())
-            .data(&end),
-        Dataset::default()
-            .name("brake ┆")
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(t.limit())
-            .data(&brake),
-        Dataset::default()
-            .name("driven")
-            .marker(Marker::Braille)
-            .graph_type(GraphType::Line)
-            .style(t.behind())
-            .data(&behind),
-        Dataset::default()
-            .name("projected •••")
-            .marker(Marker::Dot)
-            .graph_type(GraphType::Scatter)
-            .style(t.ahead())
-            .data(&ahead),
+        Dataset::default().marker(Marker::Braille).graph_type(GraphType::Line).style(t.behind()).data(&behind),
+        Dataset::default().marker(Marker::Dot).graph_type(GraphType::Scatter).style(t.ahead()).data(&ahead),
     ];
-    let along = |d: f64| format!("{d:.1}");
+    let along = |m: f64| format!("{:.1}", x(m));
     let chart = Chart::new(datasets)
-        .block(
-            Block::new()
-                .borders(Borders::TOP)
-                .title(Span::styled(format!(" speed over distance ({}, {}) ", u.speed_unit(), xu.symbol), t.heading())),
-        )
         .x_axis(
-            Axis::default().bounds([0.0, zone]).labels([along(0.0), along(zone / 2.0), along(zone)]).style(t.label()),
+            Axis::default()
+                .bounds([0.0, x(zone)])
+                .labels([along(0.0), along(zone / 2.0), along(zone)])
+                .style(t.label()),
         )
         .y_axis(
             Axis::default()
@@ -398,9 +401,116 @@ fn draw_trace(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
                 .labels(["0".to_string(), format!("{:.0}", y(vmax) / 2.0), format!("{:.0}", y(vmax))])
                 .style(t.label()),
         )
-        .legend_position(Some(ratatui::widgets::LegendPosition::BottomRight))
-        .hidden_legend_constraints((Constraint::Ratio(1, 2), Constraint::Ratio(1, 2)));
-    f.render_widget(chart, area);
+        .legend_position(None);
+    f.render_widget(chart, chart_area);
+    let Some(plot) = plot_area(f.buffer_mut(), chart_area) else { return };
+    let col = |x_m: f64| -> Option<u16> {
+        (0.0..=zone).contains(&x_m).then(|| plot.x + ((x_m / zone) * (plot.width - 1) as f64).round() as u16)
+    };
+    let row = |v: f64| -> Option<u16> {
+        let r = (1.0 - y(v) / y(vmax)) * (plot.height - 1) as f64;
+        (0.0..=(plot.height - 1) as f64).contains(&r).then(|| plot.y + r.round() as u16)
+    };
+    let buf = f.buffer_mut();
+    let mut put = |x: u16, yy: u16, sym: &str, style: Style| {
+        let cell = &mut buf[(x, yy)];
+        if cell.symbol() == " " {
+            cell.set_symbol(sym).set_style(style);
+        }
+    };
+    if let Some(r) = row(cfg.track.target_speed_mps) {
+        for x in plot.x..plot.x + plot.width {
+            put(x, r, TARGET_MARK, t.label());
+        }
+    }
+    if let Some(c) = col(cfg.track.stop_by_m()) {
+        for r in plot.y..plot.y + plot.height {
+            put(c, r, STOP_BY_MARK, t.dim());
+        }
+    }
+    if let Some(c) = d.braking.and_then(|b| col(b.point_m)) {
+        for r in plot.y..plot.y + plot.height {
+            put(c, r, BRAKE_MARK, t.limit());
+        }
+    }
+    // Marks at the distance they were made, on the plot's top row.
+    for m in s.mark_places.iter() {
+        if let Some(c) = col(m.distance_m) {
+            let cell = &mut buf[(c, plot.y)];
+            cell.set_symbol(MARK_MARK).set_style(t.heading());
+        }
+    }
+}
+
+/// The run chart's marks, the same in the legend, on the chart and in help.
+pub const TARGET_MARK: &str = "╌";
+pub const BRAKE_MARK: &str = "┆";
+pub const STOP_BY_MARK: &str = "┊";
+pub const MARK_MARK: &str = "▼";
+
+/// The run chart's legend: each series with a sample of its mark, the
+/// reference lines, and the latest mark with its note and place, laid out
+/// in at most two lines of `width` (an item is never split; the note is
+/// cut to the room left, the place stays whole).
+fn legend_lines(app: &App, s: &Snapshot, width: usize) -> Vec<Line<'static>> {
+    let t = &app.theme;
+    let u = app.units;
+    let cfg = &app.info.config;
+    let item = |mark: String, mark_style: Style, words: String| {
+        vec![Span::styled(format!(" {mark} "), mark_style), Span::styled(words, t.label())]
+    };
+    let mut items = vec![
+        item("⣀⡠".into(), t.behind(), "driven".into()),
+        item("•••".into(), t.ahead(), "projected".into()),
+        item(format!("{TARGET_MARK}{TARGET_MARK}"), t.label(), "target".into()),
+        item(BRAKE_MARK.into(), t.limit(), "brake".into()),
+        item(STOP_BY_MARK.into(), t.dim(), format!("stop-by {}", format::distance(u, Some(cfg.track.stop_by_m())))),
+    ];
+    let w = |it: &Vec<Span>| it.iter().map(|s| s.width()).sum::<usize>();
+    let mut lines: Vec<Vec<Span<'static>>> = vec![Vec::new()];
+    for it in items.drain(..) {
+        let cur: usize = lines.last().map_or(0, |l| l.iter().map(|s| s.width()).sum());
+        if cur > 0 && cur + w(&it) > width {
+            lines.push(Vec::new());
+        }
+        lines.last_mut().expect("a line").extend(it);
+    }
+    if let Some(m) = s.mark_places.last() {
+        let at = format!(" at {}", format::distance(u, Some(m.distance_m)));
+        let cur: usize = lines.last().map_or(0, |l| l.iter().map(|s| s.width()).sum());
+        let note = crate::printable::printable(&m.text).into_owned();
+        // Where it goes: the end of the last line if the whole note fits
+        // there, else a line of its own (the second at most).
+        let fixed = format!(" {MARK_MARK} mark ").chars().count() + at.chars().count();
+        let n = note.chars().count();
+        let room_here = width.saturating_sub(cur + fixed);
+        if n > room_here && lines.len() < 2 {
+            lines.push(Vec::new());
+        }
+        let cur: usize = lines.last().map_or(0, |l| l.iter().map(|s| s.width()).sum());
+        let room = width.saturating_sub(cur + fixed);
+        let note = if n > room { note.chars().take(room.saturating_sub(1)).collect::<String>() + "…" } else { note };
+        let line = lines.last_mut().expect("a line");
+        line.push(Span::styled(format!(" {MARK_MARK} "), t.heading()));
+        line.push(Span::styled(format!("mark {note}{at}"), t.label()));
+    }
+    lines.truncate(2);
+    lines.into_iter().map(Line::from).collect()
+}
+
+/// The chart's plotting area, found from the axes ratatui drew (the corner
+/// `└` where they meet): the cells right of the y axis and above the x axis.
+fn plot_area(buf: &ratatui::buffer::Buffer, area: Rect) -> Option<Rect> {
+    for yy in (area.y..area.y + area.height).rev() {
+        for x in area.x..area.x + area.width {
+            if buf[(x, yy)].symbol() == "└" {
+                let w = area.x + area.width - (x + 1);
+                let h = yy - area.y;
+                return (w >= 2 && h >= 2).then(|| Rect::new(x + 1, area.y, w, h));
+            }
+        }
+    }
+    None
 }
 
 fn draw_alerts(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
@@ -477,9 +587,14 @@ fn wrap(text: &str, width: usize, max: usize) -> Vec<String> {
     lines
 }
 
-/// The run screen for terminals below 80×24: speed, alerts, and what is hidden.
+/// The run screen for terminals below 80×24: speed with its source and age,
+/// the alerts with their state, the caution and the status line (position,
+/// pause, recording), and what is hidden. `area` is the whole terminal, so
+/// the size it names is the terminal's.
 pub fn draw_small(f: &mut Frame, area: Rect, app: &App) {
     let t = &app.theme;
+    let [body, caution, status] =
+        Layout::vertical([Constraint::Min(1), Constraint::Length(1), Constraint::Length(1)]).areas(area);
     let mut lines = vec![Line::styled(
         format!("terminal {}×{} is below 80×24: showing speed and alerts only;", area.width, area.height),
         t.doubtful(),
@@ -487,18 +602,44 @@ pub fn draw_small(f: &mut Frame, area: Rect, app: &App) {
     lines.push(Line::styled("enlarge it for the projection, meters and charts.", t.doubtful()));
     if let Some(s) = app.snapshot() {
         let u: Units = app.units;
+        let d = &s.derived;
+        let (age, stale) = match s.channel_named(d.speed_source) {
+            Some(c) => (format::age(c.age_s), c.stale),
+            None => (format::UNKNOWN.to_string(), true),
+        };
         lines.push(Line::from(vec![
             Span::styled("SPEED ", t.heading()),
-            Span::styled(format!("{} {}", format::speed(u, s.derived.speed_mps), u.speed_unit()), t.figure()),
+            Span::styled(
+                format!("{} {}", format::speed(u, d.speed_mps), u.speed_unit()),
+                if stale || d.speed_mps.is_none() { t.doubtful() } else { t.figure() },
+            ),
+            Span::styled(
+                format!("  {} · {age} old{}", d.speed_source, if stale { " STALE" } else { "" }),
+                if stale { t.doubtful() } else { t.label() },
+            ),
         ]));
-        for a in s.alerts.iter().filter(|a| a.active) {
+        for a in &s.alerts {
+            // The same marks as the full screen: ● active, ○ cleared, ✓ acknowledged.
+            let state = match (a.active, a.acked) {
+                (true, false) => "●",
+                (true, true) => "● ✓",
+                (false, false) => "○",
+                (false, true) => "○ ✓",
+            };
+            let style = if a.acked || !a.active { t.dim() } else { t.severity(a.severity) };
             lines.push(Line::from(vec![
-                Span::styled(severity_tag(a.severity), t.severity(a.severity)),
-                Span::raw(format!(" {}", a.text.render(u))),
+                Span::styled(severity_tag(a.severity), style),
+                Span::styled(format!(" {state} "), t.label()),
+                Span::styled(
+                    crate::printable::printable(&a.text.render(u)).into_owned(),
+                    if a.active && !a.acked { t.value() } else { t.dim() },
+                ),
             ]));
         }
     }
-    f.render_widget(Paragraph::new(lines).wrap(ratatui::widgets::Wrap { trim: true }), area);
+    f.render_widget(Paragraph::new(lines).wrap(ratatui::widgets::Wrap { trim: true }), body);
+    crate::ui::chrome::caution(f, caution, app);
+    crate::ui::chrome::status(f, status, app);
 }
 
 #[cfg(test)]
