@@ -39,6 +39,10 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
         (_, false) => None,
     };
     let tls = TlsFiles { ca: args.ca, cert: args.cert, key: args.key };
+    // The URL with its TLS files, checked before anything runs (exit 2).
+    if let Err(e) = url.options("termvel-check", None, &tls) {
+        return super::unusable(e);
+    }
     let (out_tx, out_rx) = tokio::sync::mpsc::channel(64);
     let settings = FollowSettings {
         url: url.clone(),

@@ -6,6 +6,7 @@
 //! that cannot be read or a key that does not match its certificate is a
 //! clear error at the start, not a link that never comes up.
 
+use std::os::unix::fs::PermissionsExt;
 use std::path::PathBuf;
 use std::sync::Arc;
 use std::time::Duration;
@@ -43,6 +44,11 @@ pub enum BrokerError {
     /// This station's key file could not be read, or holds no private key.
     #[error("cannot use the key file {path}: {error}")]
     KeyFile { path: PathBuf, error: String },
+    /// The key file can be read by its group or others.
+    #[error(
+        "the key file {path} can be read by others (mode {mode:03o}): refusing it; make it readable by you only (chmod 600 {path})"
+    )]
+    KeyExposed { path: PathBuf, mode: u32 },
     /// The certificate and the key do not go together (or TLS refused them).
     #[error("the certificate {cert} and the key {key} cannot be used together: {error}")]
     ClientAuth { cert: PathBuf, key: PathBuf, error: String },
@@ -112,6 +118,10 @@ impl TlsFiles {
             return Err(cert_err("no certificate in it".into()));
         }
         let key_err = |error: String| BrokerError::KeyFile { path: key_path.clone(), error };
+        let mode = std::fs::metadata(key_path).map_err(|e| key_err(e.to_string()))?.permissions().mode() & 0o777;
+        if mode & 0o077 != 0 {
+            return Err(BrokerError::KeyExposed { path: key_path.clone(), mode });
+        }
         let pem = std::fs::read(key_path).map_err(|e| key_err(e.to_string()))?;
         // Never the key's bytes in a message: only what kind of trouble.
         let key = PrivateKeyDer::from_pem_slice(&pem).map_err(|_| key_err("no private key in it".into()))?;
@@ -225,6 +235,8 @@ fn rustls_error(e: &ConnectionError) -> Option<&rustls::Error> {
         ConnectionError::Tls(TlsError::TLS(r)) => return Some(r),
         ConnectionError::Tls(TlsError::Io(io)) | ConnectionError::Io(io) => io,
         ConnectionError::MqttState(StateError::Io(io)) => io,
+        // The broker's alert read as the first bytes of its answer.
+        ConnectionError::MqttState(StateError::Deserialization(rumqttc::Error::Io(io))) => io,
         _ => return None,
     };
     io.get_ref()?.downcast_ref::<rustls::Error>()

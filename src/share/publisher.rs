@@ -859,6 +859,49 @@ mod tests {
         assert_eq!(left, vec![4, 5], "the newest wait; the queue closes with the tap");
     }
 
+    // Issue 16, item 5: the end of a shared run waited for the publisher
+    // (up to its drain bound, with the broker gone) by sleeping on the
+    // runtime's own thread, so the screens' and the stream's tasks stood
+    // still meanwhile. Now the wait runs off the runtime: a task on a
+    // one-thread runtime keeps ticking while the publisher drains.
+    #[test]
+    fn finishing_inside_a_runtime_does_not_hold_it() {
+        let port = std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
+        let settings = ShareSettings {
+            url: BrokerUrl::parse(&format!("mqtt://127.0.0.1:{port}")).unwrap(),
+            topics: Topics::new("t").unwrap(),
+            credentials: None,
+            tls: TlsFiles::default(),
+            description: json!({}),
+            say_on_stderr: false,
+            events: false,
+            control: None,
+        };
+        let (mut tap, publisher) = Publisher::start(settings).unwrap();
+        // A message held for a link that never comes: the drain waits its bound.
+        tap.offer(&snap(1, vec![alert("target", 1, true, false)]));
+        drop(tap);
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().unwrap();
+        let (ticks, took) = rt.block_on(async {
+            let ticks = Arc::new(AtomicU64::new(0));
+            let t = ticks.clone();
+            let ticker = tokio::spawn(async move {
+                loop {
+                    tokio::time::sleep(Duration::from_millis(10)).await;
+                    t.fetch_add(1, Ordering::Relaxed);
+                }
+            });
+            let started = Instant::now();
+            let stats = publisher.finish_async().await;
+            ticker.abort();
+            assert!(stats.messages_not_shared.load(Ordering::Relaxed) > 0, "the held message was counted");
+            (ticks.load(Ordering::Relaxed), started.elapsed())
+        });
+        assert!(took >= Duration::from_secs(1), "the drain waited for the link ({took:?})");
+        let expected = took.as_millis() as u64 / 10;
+        assert!(ticks >= expected / 4, "{ticks} ticks in {took:?}: the runtime was held");
+    }
+
     // Issue 16, item 2: raw events go in batches of 100 ms of stream time,
     // numbered, each saying how many events came before it; the last
     // partial batch goes when the tap is dropped; engine notes are not input.

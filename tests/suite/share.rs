@@ -20,7 +20,7 @@ use crate::util::{root, stderr, stdout, termvel};
 /// publisher rightly drops snapshots it cannot send in time.
 static ONE_AT_A_TIME: std::sync::Mutex<()> = std::sync::Mutex::new(());
 
-fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
+pub(crate) fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
     ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner())
 }
 
@@ -96,19 +96,19 @@ impl Drop for Broker {
 }
 
 /// A loopback port nothing listens on (just now).
-fn free_port() -> u16 {
+pub(crate) fn free_port() -> u16 {
     TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).unwrap().local_addr().unwrap().port()
 }
 
 /// A headless follower running in the background.
-struct Follower {
+pub(crate) struct Follower {
     child: Child,
     lines: mpsc::Receiver<String>,
 }
 
 impl Follower {
     /// Starts `termvel follow` and waits until it is subscribed.
-    fn start(url: &str, topic: &str, extra: &[&str]) -> Follower {
+    pub(crate) fn start(url: &str, topic: &str, extra: &[&str]) -> Follower {
         let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
             .args(["follow", url, "--topic", topic, "--headless"])
             .args(extra)
@@ -138,7 +138,7 @@ impl Follower {
     }
 
     /// Every line until the follower ends (at most `within`).
-    fn finish(mut self, within: Duration) -> Vec<Value> {
+    pub(crate) fn finish(mut self, within: Duration) -> Vec<Value> {
         let until = Instant::now() + within;
         let mut out = Vec::new();
         loop {
@@ -157,11 +157,11 @@ impl Follower {
     }
 }
 
-fn kind_of(v: &Value) -> &str {
+pub(crate) fn kind_of(v: &Value) -> &str {
     v["kind"].as_str().unwrap_or("")
 }
 
-fn parse_lines(s: &str) -> Vec<Value> {
+pub(crate) fn parse_lines(s: &str) -> Vec<Value> {
     s.lines().map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("{e}: {l}"))).collect()
 }
 
