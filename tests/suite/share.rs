@@ -521,3 +521,81 @@ fn a_follower_refuses_hostile_messages() {
     }
     assert!(!err.contains('\u{1b}'), "no escape reaches the terminal");
 }
+
+/// A headless follower that keeps only its last stdout line (its summary):
+/// twenty of them print tens of thousands of lines the test need not parse.
+fn quiet_follower(url: &str, topic: &str) -> (Child, std::thread::JoinHandle<Option<String>>) {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["follow", url, "--topic", topic, "--headless", "--for", "300s"])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let out = child.stdout.take().unwrap();
+    let last = std::thread::spawn(move || BufReader::new(out).lines().map_while(Result::ok).last());
+    let err = BufReader::new(child.stderr.take().unwrap());
+    let (ready_tx, ready) = mpsc::channel();
+    std::thread::spawn(move || {
+        for l in err.lines().map_while(Result::ok) {
+            if l.contains("termvel: following") {
+                let _ = ready_tx.send(());
+            }
+        }
+    });
+    ready.recv_timeout(Duration::from_secs(30)).expect("the follower subscribed within 30 s");
+    (child, last)
+}
+
+// Issue 16, item 4 (figures): a rehearsal published at full rate (paced
+// x1: every snapshot, ten a second, as a real run makes them) to 20
+// headless followers: each receives at least 99 % of the snapshots. Publish-to-follower latency is printed (the
+// median of the followers' p50 and the worst p99); only a generous sanity
+// bound is asserted, since a loaded 2-core machine says little about time.
+#[test]
+fn twenty_followers_each_receive_the_snapshots() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let followers: Vec<_> = (0..20).map(|_| quiet_follower(&url, "pit/many")).collect();
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--no-record",
+        "--speed",
+        "1",
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/many",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let out = stdout(&run);
+    let summary: Value = serde_json::from_str(out.lines().last().unwrap()).unwrap();
+    let share = &summary["share"];
+    let made = share["snapshots"].as_u64().unwrap();
+    let (mut p50s, mut p99s, mut received) = (Vec::new(), Vec::new(), Vec::new());
+    for (mut child, last) in followers {
+        let last = last.join().unwrap().expect("a summary line");
+        assert!(child.wait().unwrap().success());
+        let f: Value = serde_json::from_str(&last).unwrap();
+        let f = &f["summary"]["follow"];
+        assert_eq!(f["ended"], true, "{f}");
+        received.push(f["messages"]["snapshot"].as_u64().unwrap_or(0));
+        p50s.push(f["latency_us"]["p50"].as_u64().unwrap());
+        p99s.push(f["latency_us"]["p99"].as_u64().unwrap());
+    }
+    p50s.sort_unstable();
+    let worst_p99 = *p99s.iter().max().unwrap();
+    let fewest = *received.iter().min().unwrap();
+    eprintln!(
+        "20 followers: {made} snapshots made, {} published; fewest received {fewest}; latency p50 {:.1} ms (median of the followers'), p99 {:.1} ms (the worst follower's)",
+        share["snapshots_published"],
+        p50s[p50s.len() / 2] as f64 / 1000.0,
+        worst_p99 as f64 / 1000.0
+    );
+    for (i, r) in received.iter().enumerate() {
+        assert!(*r as f64 >= 0.99 * made as f64, "follower {i}: {r} of {made} snapshots");
+    }
+    assert!(worst_p99 < 5_000_000, "p99 {worst_p99} µs: something is stuck, not merely slow");
+}
