@@ -91,7 +91,11 @@ pub async fn follow(
     mut on_message: impl FnMut(Received<'_>),
     stop: impl Future<Output = ()>,
 ) -> Result<FollowReport, FollowError> {
-    let client_id = format!("termvel-follow-{}", std::process::id());
+    // Unique within the process too: the broker drops the older of two
+    // clients with one id (several followers in one process, as in a bench).
+    static FOLLOWERS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = FOLLOWERS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let client_id = format!("termvel-follow-{}-{n}", std::process::id());
     let options = settings.url.options(&client_id, settings.credentials.as_ref(), &settings.tls)?;
     let (client, mut eventloop) = AsyncClient::new(options, 16);
     eventloop.set_network_options(super::broker::network_options());
