@@ -208,7 +208,7 @@ pub struct ShareTap {
     links: Vec<Option<LinkState>>,
     /// The alerts shown now, for checking followers' acknowledgements
     /// (with `--share-accept-control`; the connection task reads it).
-    shown: Option<Arc<Mutex<Vec<Alert>>>>,
+    shown: Option<Shown>,
     /// Whether raw events are shared, and the batch being filled.
     events_on: bool,
     batch: Vec<crate::event::Event>,
@@ -432,15 +432,19 @@ struct Work {
     stats: Arc<ShareStats>,
     /// With `--share-accept-control`: the stream's control channel and the
     /// alerts shown now.
-    control: Option<(mpsc::Sender<Control>, Arc<Mutex<Vec<Alert>>>)>,
+    control: Option<(mpsc::Sender<Control>, Shown)>,
 }
+
+/// The alerts shown now: written by the tap on the driver's side, read by
+/// the connection task to check followers' acknowledgements.
+type Shown = Arc<Mutex<Vec<Alert>>>;
 
 /// What the connection task needs to take followers' control messages.
 struct ControlDesk {
     topics: Topics,
     client: AsyncClient,
     stream: mpsc::Sender<Control>,
-    shown: Arc<Mutex<Vec<Alert>>>,
+    shown: Shown,
     stats: Arc<ShareStats>,
     say: bool,
 }
