@@ -30,6 +30,13 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
     };
     // --send-from-stdin: the sender is the broker's username (the ACL's %u).
     let sender = match (&credentials, args.send_from_stdin) {
+        (Some(c), true) if !control::usable_sender(&c.username) => {
+            return super::unusable(format!(
+                "--send-from-stdin: the username \"{}\" cannot name a topic level (no '/', '+', '#' or control characters, at most {} bytes)",
+                crate::printable::clipped(&c.username, 64),
+                control::MAX_SENDER_BYTES
+            ));
+        }
         (Some(c), true) => Some(c.username.clone()),
         (None, true) => {
             return super::unusable(
@@ -60,8 +67,9 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
     if let (Some(user), Some(awaiting)) = (&sender, &awaiting) {
         let _guard = rt.enter();
         let (topic, a) = (topics.control(user), awaiting.clone());
-        std::thread::spawn(move || send_from_stdin(topic, a, out_tx));
-        tokio::spawn(say_overdue(awaiting.clone()));
+        // A thread of its own: reading standard input blocks.
+        std::thread::spawn(move || control::send_lines(std::io::stdin().lock(), &topic, &a, &out_tx));
+        tokio::spawn(control::say_overdue(awaiting.clone()));
     }
     let stdout = std::io::stdout();
     let mut out = std::io::BufWriter::new(stdout.lock());
@@ -123,44 +131,4 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
         let _ = out.flush();
     }
     Ok(ExitCode::SUCCESS)
-}
-
-/// `--send-from-stdin`: each line a command (`ack KEY`, `mark [NOTE]`),
-/// checked here, numbered and sent to `topic`; a bad line is said and
-/// skipped. Standard input ending sends nothing more (following goes on).
-/// A thread of its own: reading standard input blocks.
-fn send_from_stdin(
-    topic: String,
-    awaiting: Arc<Mutex<control::Awaiting>>,
-    out: tokio::sync::mpsc::Sender<(String, Vec<u8>)>,
-) {
-    use std::io::BufRead;
-    for line in std::io::stdin().lock().lines().map_while(Result::ok) {
-        if line.trim().is_empty() {
-            continue;
-        }
-        match control::parse_command(&line) {
-            Ok(req) => {
-                let body = awaiting.lock().unwrap_or_else(|e| e.into_inner()).send(&req, std::time::Instant::now());
-                crate::say!("termvel: sent \"{}\"", req.describe());
-                if out.blocking_send((topic.clone(), serde_json::to_vec(&body).unwrap_or_default())).is_err() {
-                    break;
-                }
-            }
-            Err(why) => crate::say!("termvel: not sent: {why}"),
-        }
-    }
-}
-
-/// Says, as it happens, each message the reading station has not answered
-/// within [`control::ANSWER_WAIT`].
-async fn say_overdue(awaiting: Arc<Mutex<control::Awaiting>>) {
-    let mut tick = tokio::time::interval(Duration::from_millis(250));
-    loop {
-        tick.tick().await;
-        let lines = awaiting.lock().unwrap_or_else(|e| e.into_inner()).overdue(std::time::Instant::now(), false);
-        for line in lines {
-            crate::say!("{line}");
-        }
-    }
 }

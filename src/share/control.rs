@@ -230,6 +230,12 @@ fn has_unsafe(v: &Value) -> bool {
 /// Field names that would name a sender.
 const SENDER_FIELDS: [&str; 6] = ["from", "sender", "user", "username", "by", "who"];
 
+/// Whether `user` can be a control topic's last level: not empty, at most
+/// [`MAX_SENDER_BYTES`], printable, no `/`, `+` or `#`.
+pub fn usable_sender(user: &str) -> bool {
+    !user.is_empty() && user.len() <= MAX_SENDER_BYTES && is_safe(user) && !user.contains(['/', '+', '#'])
+}
+
 /// Checks one message received on `topic` (`retained`: delivered from the
 /// broker's store) against the alerts shown now. Checks in order: the
 /// sender (the topic's last level), retained, size, JSON object, schema,
@@ -237,7 +243,7 @@ const SENDER_FIELDS: [&str; 6] = ["from", "sender", "user", "username", "by", "w
 /// active, not yet acknowledged) or the note's length.
 pub fn check(topics: &Topics, topic: &str, retained: bool, bytes: &[u8], alerts: &[Alert]) -> Result<Order, Refusal> {
     let from = topics.control_sender(topic).ok_or(Refusal::Sender)?;
-    if from.is_empty() || from.len() > MAX_SENDER_BYTES || !is_safe(from) || from.contains(['/', '+', '#']) {
+    if !usable_sender(from) {
         return Err(Refusal::Sender);
     }
     if retained {
@@ -479,6 +485,47 @@ impl Awaiting {
     }
 }
 
+/// A follower's commands, one a line from `input` (`ack KEY`, `mark
+/// [NOTE]`; `termvel follow --send-from-stdin`): each checked
+/// ([`parse_command`]; a bad line is said on stderr and not sent),
+/// numbered in `awaiting` and handed to `out` for `topic`. Returns when the
+/// input ends or `out` closes. Blocking: run it on a thread of its own.
+pub fn send_lines(
+    input: impl std::io::BufRead,
+    topic: &str,
+    awaiting: &std::sync::Mutex<Awaiting>,
+    out: &tokio::sync::mpsc::Sender<(String, Vec<u8>)>,
+) {
+    for line in input.lines().map_while(Result::ok) {
+        if line.trim().is_empty() {
+            continue;
+        }
+        match parse_command(&line) {
+            Ok(req) => {
+                let body = awaiting.lock().unwrap_or_else(|e| e.into_inner()).send(&req, std::time::Instant::now());
+                crate::say!("termvel: sent \"{}\"", req.describe());
+                if out.blocking_send((topic.to_string(), serde_json::to_vec(&body).unwrap_or_default())).is_err() {
+                    break;
+                }
+            }
+            Err(why) => crate::say!("termvel: not sent: {why}"),
+        }
+    }
+}
+
+/// Says on stderr, as it happens, each message of `awaiting` the reading
+/// station has not answered within [`ANSWER_WAIT`]. Runs until dropped.
+pub async fn say_overdue(awaiting: std::sync::Arc<std::sync::Mutex<Awaiting>>) {
+    let mut tick = tokio::time::interval(std::time::Duration::from_millis(250));
+    loop {
+        tick.tick().await;
+        let lines = awaiting.lock().unwrap_or_else(|e| e.into_inner()).overdue(std::time::Instant::now(), false);
+        for line in lines {
+            crate::say!("{line}");
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -605,6 +652,20 @@ mod tests {
         let refused = answer("pit-eng", m["id"].as_u64(), &Err(Refusal::Busy));
         assert!(w.answer(&refused).unwrap().contains("refused \"mark x\""));
         assert_eq!(w.json(), json!({"sent": 3, "accepted": 1, "refused": 1, "unanswered": 1}));
+    }
+
+    #[test]
+    fn lines_are_checked_numbered_and_sent() {
+        let awaiting = std::sync::Mutex::new(Awaiting::new("pit-eng", 5));
+        let (tx, mut rx) = tokio::sync::mpsc::channel(8);
+        send_lines(&b"ack target\n\nquit\nmark boost late\n"[..], "pit/control/pit-eng", &awaiting, &tx);
+        let sent: Vec<(String, Value)> =
+            std::iter::from_fn(|| rx.try_recv().ok()).map(|(t, b)| (t, serde_json::from_slice(&b).unwrap())).collect();
+        assert_eq!(sent.len(), 2, "the bad line is not sent");
+        assert_eq!(sent[0].0, "pit/control/pit-eng");
+        assert_eq!(sent[0].1, ack_payload("target", 5));
+        assert_eq!(sent[1].1, mark_payload(Some("boost late"), 6));
+        assert!(usable_sender("pit-eng") && !usable_sender("a/b") && !usable_sender("") && !usable_sender("x\u{1b}"));
     }
 
     #[test]

@@ -19,7 +19,8 @@
 //!   the reading station's checks on them.
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
 //!
-//! Imports: `engine`, `stream` (the sink contract), `headless` (the
+//! Imports: `engine`, `stream` (the sink contract, and the operator
+//! actions followers' acknowledgements and marks become), `headless` (the
 //! snapshot JSON), `record` (an event as a recording line), `config` and
 //! vocabulary. Nothing here imports `ui` or `cmd`.
 

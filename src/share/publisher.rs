@@ -13,6 +13,13 @@
 //! snapshots are dropped (a follower wants the latest, not the past) and
 //! messages wait up to [`HOLD_FOR`] (at most [`HOLD_MAX`] of them), then
 //! are counted as not shared.
+//!
+//! With `--share-accept-control` the connection task also subscribes to
+//! the followers' control topics; each message is checked
+//! ([`super::control::check`]) against the alerts shown now (which the tap
+//! keeps for it), an accepted one is handed to the stream's control channel
+//! with `try_reserve_many` (never waiting: a full channel is a refusal,
+//! `busy`), and every sender gets an answer.
 
 use std::collections::VecDeque;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
