@@ -131,7 +131,7 @@ fn tls_client_certificates_right_expired_unknown_and_a_broker_not_signed() {
     assert_eq!(none.status.code(), Some(1), "{}", stderr(&none));
     assert!(stderr(&none).contains("TLS: the broker refused the handshake"), "{}", stderr(&none));
 
-    let share = |cert: &str| {
+    let share = |cert: &str, ca: &str| {
         termvel(&[
             "rehearse",
             "--headless",
@@ -140,21 +140,28 @@ fn tls_client_certificates_right_expired_unknown_and_a_broker_not_signed() {
             "--share",
             &url,
             "--share-ca",
-            &ca,
+            ca,
             "--share-cert",
             &pki.file(&format!("{cert}.crt")),
             "--share-key",
             &pki.file(&format!("{cert}.key")),
         ])
     };
-    let run = share("good");
+    let run = share("good", &ca);
     assert!(run.status.success(), "{}", stderr(&run));
     let summary = parse_lines(&stdout(&run)).pop().unwrap();
     assert_eq!(summary["share"]["connections"], 1, "{}", summary["share"]);
-    let run = share("old");
-    assert_eq!(run.status.code(), Some(0), "the local run goes on: {}", stderr(&run));
-    assert!(stderr(&run).contains("share link down"), "{}", stderr(&run));
-    assert!(stderr(&run).contains("refused this station's certificate: expired"), "{}", stderr(&run));
+    for (cert, ca_file, said) in [
+        ("old", ca.as_str(), "refused this station's certificate: expired"),
+        ("good", other.as_str(), "broker's certificate is not signed by the CA given"),
+    ] {
+        let run = share(cert, ca_file);
+        assert_eq!(run.status.code(), Some(0), "the local run goes on: {}", stderr(&run));
+        assert!(stderr(&run).contains("share link down"), "{}", stderr(&run));
+        assert!(stderr(&run).contains(said), "{}", stderr(&run));
+        let summary = parse_lines(&stdout(&run)).pop().unwrap();
+        assert_eq!(summary["share"]["connections"], 0, "{}", summary["share"]);
+    }
 
     // A key others can read is refused before anything runs.
     let exposed = pki.file("exposed.key");
