@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Installs what termvel's tests need on a fresh machine of this kind, and
 # nothing when it is already there: Debian packages (tmux for the terminal
-# tests; mosquitto and mosquitto-clients for the sharing tests; qemu-system-x86 and busybox-static for the SocketCAN VM test, whose
+# tests; mosquitto, mosquitto-clients and openssl for the sharing tests; qemu-system-x86 and busybox-static for the SocketCAN VM test, whose
 # script fetches Debian's kernel package itself), and a Python venv in .venv with the independent reference
 # libraries the cross-checks use (python-can, pyarrow, scipy). Safe to run again.
 set -euo pipefail
@@ -14,6 +14,8 @@ dpkg -s busybox-static >/dev/null 2>&1 || need_apt+=(busybox-static)
 # The MQTT broker and its command-line clients for the sharing tests (tests/suite/share.rs).
 command -v mosquitto >/dev/null 2>&1 || [ -x /usr/sbin/mosquitto ] || need_apt+=(mosquitto)
 command -v mosquitto_sub >/dev/null 2>&1 || need_apt+=(mosquitto-clients)
+# openssl makes the CA, broker and client certificates of the TLS tests (tests/suite/share_security.rs).
+command -v openssl >/dev/null 2>&1 || need_apt+=(openssl)
 if ((${#need_apt[@]})); then
   sudo=""
   [ "$(id -u)" -eq 0 ] || sudo="sudo"

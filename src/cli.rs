@@ -158,6 +158,15 @@ pub struct ShareOpts {
     /// CA certificate (PEM) that signed the broker's, for mqtts:// (default: the system's).
     #[arg(long, value_name = "FILE", requires = "share")]
     pub share_ca: Option<PathBuf>,
+    /// This station's certificate (PEM), for a broker that asks for one (mqtts://; needs --share-key and --share-ca).
+    #[arg(long, value_name = "FILE", requires_all = ["share", "share_key"])]
+    pub share_cert: Option<PathBuf>,
+    /// The private key (PEM) of --share-cert, readable by you only.
+    #[arg(long, value_name = "FILE", requires_all = ["share", "share_cert"])]
+    pub share_key: Option<PathBuf>,
+    /// Take acknowledgements and marks that followers send back (PREFIX/control/USERNAME; the broker's ACL says who may). Off by default: a run takes no orders unless asked.
+    #[arg(long, requires = "share")]
+    pub share_accept_control: bool,
     /// Also share the raw events, in batches every 100 ms of stream time, so another station can keep a full recording.
     #[arg(long, requires = "share")]
     pub share_events: bool,
@@ -183,6 +192,15 @@ pub struct FollowArgs {
     /// CA certificate (PEM) that signed the broker's, for mqtts://.
     #[arg(long, value_name = "FILE")]
     pub ca: Option<PathBuf>,
+    /// This station's certificate (PEM), for a broker that asks for one (mqtts://; needs --key and --ca).
+    #[arg(long, value_name = "FILE", requires = "key")]
+    pub cert: Option<PathBuf>,
+    /// The private key (PEM) of --cert, readable by you only.
+    #[arg(long, value_name = "FILE", requires = "cert")]
+    pub key: Option<PathBuf>,
+    /// Read acknowledgements and marks from standard input, one a line (`ack KEY`, `mark [NOTE]`), and send them to the reading station (which must run with --share-accept-control; the broker's ACL says who may send).
+    #[arg(long, requires = "headless")]
+    pub send_from_stdin: bool,
 }
 
 #[derive(Args, Debug)]

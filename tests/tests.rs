@@ -32,6 +32,9 @@
 //!   resizing, and the recording afterwards.
 //! - `share`: sharing a run through a real MQTT broker (mosquitto on a
 //!   free loopback port): followers, a late joiner, an absent broker.
+//! - `share_security`: the same with TLS client certificates (made with
+//!   openssl), an ACL, and followers' acknowledgements and marks, hostile
+//!   ones among them.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
 //!   files without lines, CRLF, escapes on output, long config lines.
@@ -79,6 +82,8 @@ mod report;
 mod screens;
 #[path = "suite/share.rs"]
 mod share;
+#[path = "suite/share_security.rs"]
+mod share_security;
 #[path = "suite/signals.rs"]
 mod signals;
 #[path = "suite/time_and_format.rs"]

@@ -85,12 +85,15 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             Err(e) => return super::unusable(e),
         }
     };
-    let (tap, publisher) = match super::sharing::start(&args.run, "live", &config, &sources) {
-        Ok(s) => s,
-        Err(reason) => return super::unusable(reason),
-    };
+    // Issue 16, item 5: the recording first; sharing starts only for a
+    // run that will happen.
     let recorder = match start_recording(&args.run, "live", &config, &sources) {
         Ok(r) => r,
+        Err(reason) => return super::unusable(reason),
+    };
+    let (ctl_tx, ctl_rx) = mpsc::channel(64);
+    let (tap, publisher) = match super::sharing::start(&args.run, "live", &config, &sources, &ctl_tx) {
+        Ok(s) => s,
         Err(reason) => return super::unusable(reason),
     };
     let _log = if args.run.headless { None } else { init_log_file() };
@@ -120,7 +123,6 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             latency: Some(latency.clone()),
             duration: args.for_ns.map(|ns| std::time::Duration::from_nanos(ns as u64)),
         };
-        let (ctl_tx, ctl_rx) = mpsc::channel(64);
         if args.run.headless {
             // Ctrl-C, SIGTERM and SIGHUP end the session cleanly (the recording is closed).
             let ctl = ctl_tx.clone();
@@ -144,7 +146,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             summary.recording = super::recording_summary(&out.recording);
             let mut json = summary.json();
             json["live"] = realtime::figures(&out, &latency);
-            if let Some(share) = super::sharing::finish(publisher) {
+            if let Some(share) = super::sharing::finish_async(publisher).await {
                 json["share"] = share;
             }
             printer.finish_json(&json);
@@ -166,7 +168,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 Err(e) => tracing::error!("screen: {e}"),
             }
             let out = task.await.expect("the pipeline task");
-            super::sharing::finish(publisher);
+            // Issue 16, item 5: waiting for the publisher to drain (up to
+            // its bound) holds no worker of this runtime.
+            super::sharing::finish_async(publisher).await;
             (out, None)
         }
     });

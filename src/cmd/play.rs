@@ -58,12 +58,17 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
             Err(e) => return super::unusable(e),
         }
     };
-    let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config, src.sources()) {
-        Ok(s) => s,
-        Err(reason) => return super::unusable(reason),
-    };
+    // Issue 16, item 5: the recording first; sharing starts only for a
+    // run that will happen (a refused recording left a retained `online`).
     let recorder = match start_recording(&spec.run, spec.command, &spec.config, src.sources()) {
         Ok(r) => r,
+        Err(reason) => return super::unusable(reason),
+    };
+    // The stream's controls: the screens' keys, and followers' accepted
+    // acknowledgements and marks (--share-accept-control).
+    let (ctl_tx, ctl_rx) = mpsc::channel(64);
+    let (tap, publisher) = match super::sharing::start(&spec.run, spec.command, &spec.config, src.sources(), &ctl_tx) {
+        Ok(s) => s,
         Err(reason) => return super::unusable(reason),
     };
     let opts = EngineOptions { snapshot_every_ns: spec.run.every };
@@ -85,9 +90,10 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         let stdout = std::io::stdout();
         let mut printer = JsonPrinter::new(std::io::BufWriter::new(stdout.lock()));
         let rt = tokio::runtime::Builder::new_current_thread().enable_time().build()?;
-        let (_tx, rx) = mpsc::channel(16);
         let mut sink = ShareSink::new(&mut printer, tap);
-        let outcome = rt.block_on(paced::play(src, make_engine, popts, rx, &mut sink))?;
+        let outcome = rt.block_on(paced::play(src, make_engine, popts, ctl_rx, &mut sink));
+        drop(ctl_tx);
+        let outcome = outcome?;
         drop(sink);
         let mut summary = summary_json(&outcome);
         if let Some(share) = super::sharing::finish(publisher) {
@@ -121,7 +127,6 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
     let (frames_tx, frames_rx) = watch::channel(None);
-    let (ctl_tx, ctl_rx) = mpsc::channel(64);
     let (done_tx, done_rx) = oneshot::channel();
     let mut app = App::new(
         SessionInfo { mode: spec.mode.clone(), config: spec.config.clone() },

@@ -8,16 +8,23 @@ use crate::config::ConfigSet;
 use crate::event::SourceTable;
 use crate::share::payload::{self, RunDescription};
 use crate::share::publisher::{Publisher, ShareTap, unix_ns};
-use crate::share::{BrokerUrl, Credentials, ShareSettings, Topics};
+use crate::share::{BrokerUrl, Credentials, ShareSettings, TlsFiles, Topics};
+use crate::stream::Control;
+use tokio::sync::mpsc;
 
 /// Starts publishing when `--share` is given (`None` when not); `Err` is
 /// the one-line reason the options are unusable. An absent broker is not
-/// an error: the run goes on and the link shows down.
+/// an error: the run goes on and the link shows down. `controls` is the
+/// stream's control channel, where followers' accepted acknowledgements
+/// and marks go with `--share-accept-control`. Call it after the recording
+/// is open: a run refused after this would leave a retained `online` (or
+/// the broker's `offline`) for a run that never was.
 pub fn start(
     run: &RunOpts,
     command: &str,
     config: &ConfigSet,
     sources: &SourceTable,
+    controls: &mpsc::Sender<Control>,
 ) -> Result<(Option<ShareTap>, Option<Publisher>), String> {
     let Some(url) = &run.share.share else { return Ok((None, None)) };
     let url = BrokerUrl::parse(url).map_err(|e| e.to_string())?;
@@ -34,22 +41,44 @@ pub fn start(
         url: url.clone(),
         topics: topics.clone(),
         credentials,
-        ca: run.share.share_ca.clone(),
+        tls: TlsFiles {
+            ca: run.share.share_ca.clone(),
+            cert: run.share.share_cert.clone(),
+            key: run.share.share_key.clone(),
+        },
         description,
         say_on_stderr: run.headless,
         events: run.share.share_events,
+        control: run.share.share_accept_control.then(|| controls.clone()),
     };
     let (tap, publisher) = Publisher::start(settings).map_err(|e| e.to_string())?;
     crate::say!("termvel: sharing to {} under {}/", url.display(), topics.prefix());
+    if run.share.share_accept_control {
+        crate::say!(
+            "termvel: taking acknowledgements and marks from followers on {} (the broker's ACL says who may send)",
+            topics.control_all()
+        );
+    }
     Ok((Some(tap), Some(publisher)))
 }
 
 /// Waits for the publisher to drain, says what was shared on stderr, and
-/// gives the summary's `share` block. The tap must be dropped first.
+/// gives the summary's `share` block. The tap must be dropped first. This
+/// blocks its thread; inside a runtime use [`finish_async`].
 pub fn finish(publisher: Option<Publisher>) -> Option<Value> {
     let p = publisher?;
     let (url, topics) = (p.url.clone(), p.topics.clone());
     let stats = p.finish();
+    crate::say!("{}", stats.line(&url));
+    Some(stats.json(&url, &topics))
+}
+
+/// [`finish`] inside a runtime: the wait (up to the drain bound) does not
+/// hold one of its workers.
+pub async fn finish_async(publisher: Option<Publisher>) -> Option<Value> {
+    let p = publisher?;
+    let (url, topics) = (p.url.clone(), p.topics.clone());
+    let stats = p.finish_async().await;
     crate::say!("{}", stats.line(&url));
     Some(stats.json(&url, &topics))
 }

@@ -32,9 +32,13 @@ pub struct FollowSettings {
     pub url: BrokerUrl,
     pub topics: Topics,
     pub credentials: Option<Credentials>,
-    pub ca: Option<std::path::PathBuf>,
+    /// The TLS files for `mqtts://` (CA, client certificate and key).
+    pub tls: super::broker::TlsFiles,
     /// Say link changes on stderr.
     pub say_on_stderr: bool,
+    /// Messages to publish (topic, payload): a follower's acknowledgements
+    /// and marks ([`super::control`]); `None` sends nothing.
+    pub outgoing: Option<tokio::sync::mpsc::Receiver<(String, Vec<u8>)>>,
 }
 
 /// One accepted message.
@@ -87,19 +91,38 @@ pub async fn follow(
     mut on_message: impl FnMut(Received<'_>),
     stop: impl Future<Output = ()>,
 ) -> Result<FollowReport, FollowError> {
-    let client_id = format!("termvel-follow-{}", std::process::id());
-    let options = settings.url.options(&client_id, settings.credentials.as_ref(), settings.ca.as_deref())?;
+    // Unique within the process too: the broker drops the older of two
+    // clients with one id (several followers in one process, as in a bench).
+    static FOLLOWERS: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+    let n = FOLLOWERS.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let client_id = format!("termvel-follow-{}-{n}", std::process::id());
+    let options = settings.url.options(&client_id, settings.credentials.as_ref(), &settings.tls)?;
     let (client, mut eventloop) = AsyncClient::new(options, 16);
     eventloop.set_network_options(super::broker::network_options());
     let mut report = FollowReport::default();
     let mut backoff = BACKOFF_FIRST;
     let mut ever_connected = false;
     let mut told_ready = false;
+    let mut outgoing = settings.outgoing;
     tokio::pin!(stop);
     loop {
         let ev = tokio::select! {
             _ = &mut stop => break,
             ev = eventloop.poll() => ev,
+            out = async { outgoing.as_mut().expect("guarded").recv().await }, if outgoing.is_some() => {
+                match out {
+                    // QoS 1: the broker takes it (an MQTT 3.1.1 broker says
+                    // nothing when its ACL then drops it: the answer says).
+                    // Never waits: the event loop is not polled meanwhile.
+                    Some((topic, body)) => {
+                        if client.try_publish(topic, QoS::AtLeastOnce, false, body).is_err() && settings.say_on_stderr {
+                            crate::say!("termvel: a control message could not be queued (the link is busy)");
+                        }
+                    }
+                    None => outgoing = None,
+                }
+                continue;
+            }
         };
         match ev {
             Ok(Event::Incoming(Packet::ConnAck(_))) => {
@@ -117,6 +140,8 @@ pub async fn follow(
                     ready();
                 }
             }
+            // Other followers' control messages are the reading station's to check.
+            Ok(Event::Incoming(Packet::Publish(p))) if settings.topics.control_sender(&p.topic).is_some() => {}
             Ok(Event::Incoming(Packet::Publish(p))) => match payload::check(&p.payload) {
                 Ok((kind, value)) => {
                     *report.by_kind.entry(kind.as_str()).or_default() += 1;
@@ -142,7 +167,10 @@ pub async fn follow(
             Ok(_) => {}
             Err(e) => {
                 let why = describe(&e);
-                if let ConnectionError::ConnectionRefused(_) = e {
+                // Refused, or a certificate problem: retrying would not help.
+                if matches!(e, ConnectionError::ConnectionRefused(_))
+                    || super::broker::certificate_problem(&e).is_some()
+                {
                     return Err(FollowError::Refused { url: settings.url.display(), why });
                 }
                 report.link_losses += 1;

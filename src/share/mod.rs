@@ -15,13 +15,17 @@
 //! - [`topics`]: the topic of each kind of message under a prefix.
 //! - [`payload`]: the JSON payloads and their schema version.
 //! - [`publisher`]: the sink, the queues and the publishing thread.
+//! - [`control`]: acknowledgements and marks sent back by followers, and
+//!   the reading station's checks on them.
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
 //!
-//! Imports: `engine`, `stream` (the sink contract), `headless` (the
+//! Imports: `engine`, `stream` (the sink contract, and the operator
+//! actions followers' acknowledgements and marks become), `headless` (the
 //! snapshot JSON), `record` (an event as a recording line), `config` and
 //! vocabulary. Nothing here imports `ui` or `cmd`.
 
 pub mod broker;
+pub mod control;
 pub mod credentials;
 pub mod follower;
 pub mod payload;
@@ -29,7 +33,7 @@ pub mod publisher;
 pub mod queue;
 pub mod topics;
 
-pub use broker::{BrokerError, BrokerUrl};
+pub use broker::{BrokerError, BrokerUrl, TlsFiles};
 pub use credentials::{Credentials, CredentialsError};
 pub use publisher::{ShareSettings, ShareSink, ShareStats};
 pub use topics::{TopicError, Topics};

@@ -33,10 +33,13 @@ pub enum Kind {
     Mark,
     Health,
     Events,
+    /// The reading station's answer to a follower's control message
+    /// ([`super::control::answer`]).
+    ControlAnswer,
 }
 
 impl Kind {
-    pub const ALL: [Kind; 8] = [
+    pub const ALL: [Kind; 9] = [
         Kind::Description,
         Kind::Status,
         Kind::Snapshot,
@@ -45,6 +48,7 @@ impl Kind {
         Kind::Mark,
         Kind::Health,
         Kind::Events,
+        Kind::ControlAnswer,
     ];
 
     pub fn as_str(self) -> &'static str {
@@ -57,6 +61,7 @@ impl Kind {
             Kind::Mark => "mark",
             Kind::Health => "health",
             Kind::Events => "events",
+            Kind::ControlAnswer => "control_answer",
         }
     }
 

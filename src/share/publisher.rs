@@ -13,6 +13,13 @@
 //! snapshots are dropped (a follower wants the latest, not the past) and
 //! messages wait up to [`HOLD_FOR`] (at most [`HOLD_MAX`] of them), then
 //! are counted as not shared.
+//!
+//! With `--share-accept-control` the connection task also subscribes to
+//! the followers' control topics; each message is checked
+//! ([`super::control::check`]) against the alerts shown now (which the tap
+//! keeps for it), an accepted one is handed to the stream's control channel
+//! with `try_reserve_many` (never waiting: a full channel is a refusal,
+//! `busy`), and every sender gets an answer.
 
 use std::collections::VecDeque;
 use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
@@ -23,7 +30,8 @@ use rumqttc::{AsyncClient, ConnectionError, Event, LastWill, Outgoing, Packet, Q
 use serde_json::{Value, json};
 use tokio::sync::{mpsc, watch};
 
-use super::broker::{BrokerError, BrokerUrl};
+use super::broker::{BrokerError, BrokerUrl, TlsFiles};
+use super::control::{self, ControlCounts, Refusal};
 use super::credentials::Credentials;
 use super::payload;
 use super::queue::DropOldest;
@@ -31,7 +39,7 @@ use super::topics::Topics;
 use crate::engine::snapshot::SourceView;
 use crate::engine::{Alert, Snapshot};
 use crate::event::{LinkState, NS_PER_S, SourceTable, TimeNs};
-use crate::stream::{SnapshotSink, StreamStatus};
+use crate::stream::{Control, SnapshotSink, StreamStatus};
 
 /// Snapshots waiting for the broker: latest wins beyond this. At 10 a
 /// second of stream time that is 6.4 s at x1, 0.8 s at x8; enough to ride
@@ -73,14 +81,19 @@ pub struct ShareSettings {
     pub url: BrokerUrl,
     pub topics: Topics,
     pub credentials: Option<Credentials>,
-    /// CA certificate (PEM) for `mqtts://`; default the system's roots.
-    pub ca: Option<std::path::PathBuf>,
+    /// The TLS files for `mqtts://` (CA, client certificate and key).
+    pub tls: TlsFiles,
     /// The retained run description ([`payload::description`]).
     pub description: Value,
     /// Say link changes on stderr (headless); on the screens they go to the log.
     pub say_on_stderr: bool,
     /// Share the raw events in batches (`--share-events`).
     pub events: bool,
+    /// Take acknowledgements and marks from followers
+    /// (`--share-accept-control`): the stream's control channel, which
+    /// accepted orders are sent to as operator actions. `None`: none taken,
+    /// the control topics are not even subscribed.
+    pub control: Option<mpsc::Sender<Control>>,
 }
 
 /// What the publisher did, counted while it runs (read at the end, or by a
@@ -111,6 +124,8 @@ pub struct ShareStats {
     pub connections: AtomicU64,
     /// The latest link error, for the user.
     pub last_error: Mutex<Option<String>>,
+    /// Control messages from followers (`Some` with `--share-accept-control`).
+    pub control: Mutex<Option<ControlCounts>>,
 }
 
 impl ShareStats {
@@ -131,6 +146,7 @@ impl ShareStats {
             "connections": n(&self.connections),
             "link_losses": n(&self.link_losses),
             "last_error": self.last_error.lock().map(|e| e.clone()).unwrap_or(None),
+            "control": self.control.lock().ok().and_then(|c| c.as_ref().map(ControlCounts::json)),
         })
     }
 
@@ -147,6 +163,14 @@ impl ShareStats {
             n(&self.messages_published),
             n(&self.messages_not_shared),
         );
+        if let Ok(Some(c)) = self.control.lock().as_deref() {
+            s.push_str(&format!(
+                "; control messages from followers: {} acknowledgements and {} marks accepted, {} refused",
+                c.acks,
+                c.marks,
+                c.refused_total()
+            ));
+        }
         if n(&self.connections) == 0 {
             s.push_str("; the broker was never reached");
             if let Ok(Some(e)) = self.last_error.lock().as_deref() {
@@ -189,6 +213,9 @@ pub struct ShareTap {
     marks: usize,
     health_at: Option<TimeNs>,
     links: Vec<Option<LinkState>>,
+    /// The alerts shown now, for checking followers' acknowledgements
+    /// (with `--share-accept-control`; the connection task reads it).
+    shown: Option<Shown>,
     /// Whether raw events are shared, and the batch being filled.
     events_on: bool,
     batch: Vec<crate::event::Event>,
@@ -232,6 +259,9 @@ impl ShareTap {
                 }
             }
             self.alerts = snap.alerts.clone();
+            if let Some(shown) = &self.shown {
+                *shown.lock().unwrap_or_else(|e| e.into_inner()) = snap.alerts.clone();
+            }
             self.send(Message::Alerts(t, snap.alerts.clone()));
         }
         if snap.marks != self.marks {
@@ -317,6 +347,8 @@ impl<K: SnapshotSink> SnapshotSink for ShareSink<'_, K> {
 /// The publisher's thread, to wait for at the end.
 pub struct Publisher {
     thread: std::thread::JoinHandle<()>,
+    /// Closed (its sender dropped) when the thread's work ends.
+    done: std::sync::mpsc::Receiver<()>,
     pub stats: Arc<ShareStats>,
     pub url: BrokerUrl,
     pub topics: Topics,
@@ -328,7 +360,7 @@ impl Publisher {
     /// the [`ShareSink`].
     pub fn start(settings: ShareSettings) -> Result<(ShareTap, Publisher), ShareError> {
         let client_id = format!("termvel-{}-{}", std::process::id(), settings.topics.prefix().replace('/', "-"));
-        let mut options = settings.url.options(&client_id, settings.credentials.as_ref(), settings.ca.as_deref())?;
+        let mut options = settings.url.options(&client_id, settings.credentials.as_ref(), &settings.tls)?;
         options.set_last_will(LastWill::new(
             settings.topics.status(),
             serde_json::to_vec(&payload::status("offline")).unwrap_or_default(),
@@ -336,6 +368,10 @@ impl Publisher {
             true,
         ));
         let stats = Arc::new(ShareStats::default());
+        let shown = settings.control.as_ref().map(|_| Arc::new(Mutex::new(Vec::new())));
+        if settings.control.is_some() {
+            *stats.control.lock().unwrap_or_else(|e| e.into_inner()) = Some(ControlCounts::default());
+        }
         let snapshots = DropOldest::new(SNAPSHOT_QUEUE);
         let (tx, rx) = mpsc::channel(MESSAGE_QUEUE);
         // Two workers: the connection keeps reading and writing while the
@@ -347,11 +383,14 @@ impl Publisher {
             description: serde_json::to_vec(&settings.description).unwrap_or_default(),
             say: settings.say_on_stderr,
             stats: stats.clone(),
+            control: settings.control.zip(shown.clone()),
         };
         let queue = snapshots.clone();
-        let thread = std::thread::Builder::new()
-            .name("termvel-share".into())
-            .spawn(move || rt.block_on(work.run(options, queue, rx)))?;
+        let (done_tx, done) = std::sync::mpsc::channel::<()>();
+        let thread = std::thread::Builder::new().name("termvel-share".into()).spawn(move || {
+            rt.block_on(work.run(options, queue, rx));
+            drop(done_tx);
+        })?;
         let tap = ShareTap {
             snapshots,
             messages: tx,
@@ -360,26 +399,34 @@ impl Publisher {
             marks: 0,
             health_at: None,
             links: Vec::new(),
+            shown,
             events_on: settings.events,
             batch: Vec::new(),
             batch_sources: SourceTable::default(),
             batches: 0,
             batched_events: 0,
         };
-        Ok((tap, Publisher { thread, stats, url: settings.url, topics: settings.topics }))
+        Ok((tap, Publisher { thread, done, stats, url: settings.url, topics: settings.topics }))
     }
 
     /// Waits for the publisher to drain and end (the tap must be dropped
-    /// first), at most [`DRAIN_FOR`] and a little more.
+    /// first), at most [`DRAIN_FOR`] and a little more. This blocks its
+    /// thread: inside a runtime, use [`Publisher::finish_async`].
     pub fn finish(self) -> Arc<ShareStats> {
-        let until = Instant::now() + DRAIN_FOR + Duration::from_secs(1);
-        while !self.thread.is_finished() && Instant::now() < until {
-            std::thread::sleep(Duration::from_millis(10));
-        }
+        // Disconnected when the work ends (or the thread panicked).
+        let _ = self.done.recv_timeout(DRAIN_FOR + Duration::from_secs(1));
         if self.thread.is_finished() {
             let _ = self.thread.join();
         }
         self.stats
+    }
+
+    /// [`Publisher::finish`] without holding a runtime's worker: the wait
+    /// runs on the blocking pool, so the screens' and the stream's tasks
+    /// go on meanwhile.
+    pub async fn finish_async(self) -> Arc<ShareStats> {
+        let stats = self.stats.clone();
+        tokio::task::spawn_blocking(move || self.finish()).await.unwrap_or(stats)
     }
 }
 
@@ -390,6 +437,78 @@ struct Work {
     description: Vec<u8>,
     say: bool,
     stats: Arc<ShareStats>,
+    /// With `--share-accept-control`: the stream's control channel and the
+    /// alerts shown now.
+    control: Option<(mpsc::Sender<Control>, Shown)>,
+}
+
+/// The alerts shown now: written by the tap on the driver's side, read by
+/// the connection task to check followers' acknowledgements.
+type Shown = Arc<Mutex<Vec<Alert>>>;
+
+/// What the connection task needs to take followers' control messages.
+struct ControlDesk {
+    topics: Topics,
+    client: AsyncClient,
+    stream: mpsc::Sender<Control>,
+    shown: Shown,
+    stats: Arc<ShareStats>,
+    say: bool,
+}
+
+impl ControlDesk {
+    /// Checks one message on a control topic, hands an accepted order to
+    /// the stream, counts, says the first refusals, and answers the sender.
+    fn take(&self, p: &rumqttc::Publish) {
+        let result = {
+            let shown = self.shown.lock().unwrap_or_else(|e| e.into_inner());
+            control::check(&self.topics, &p.topic, p.retain, &p.payload, &shown)
+        };
+        let result = result.and_then(|order| {
+            let actions = order.actions();
+            // All of an order's actions or none (the acknowledgement
+            // without the mark naming its sender would lose who made it).
+            let permits = self.stream.try_reserve_many(actions.len()).map_err(|_| Refusal::Busy)?;
+            for (permit, a) in permits.zip(actions) {
+                permit.send(Control::Operator(a));
+            }
+            Ok(order)
+        });
+        let mut counts = self.stats.control.lock().unwrap_or_else(|e| e.into_inner());
+        let Some(counts) = counts.as_mut() else { return };
+        let line = match &result {
+            Ok(order) => {
+                counts.accepted(order);
+                Some(format!(
+                    "termvel: accepted from {}: {}",
+                    crate::printable::clipped(&order.from, 64),
+                    order.request.describe()
+                ))
+            }
+            Err(r) => counts.refused(&p.topic, r).map(|l| format!("termvel: refused a control message on {l}")),
+        };
+        if let Some(line) = line {
+            if self.say {
+                crate::say!("{line}");
+            }
+            tracing::warn!("{line}");
+        }
+        // Answer a sender that can be named in a topic (one printable level).
+        let Some(to) = self.topics.control_sender(&p.topic) else { return };
+        if matches!(result, Err(Refusal::Sender)) {
+            return;
+        }
+        let id = match &result {
+            Ok(o) => o.id,
+            Err(_) => control::id_of(&p.payload),
+        };
+        let body = to_vec(&control::answer(to, id, &result));
+        if self.client.try_publish(self.topics.answers(to), QoS::AtLeastOnce, false, body).is_ok() {
+            self.stats.messages_published.fetch_add(1, Ordering::Relaxed);
+        } else {
+            self.stats.messages_not_shared.fetch_add(1, Ordering::Relaxed);
+        }
+    }
 }
 
 impl Work {
@@ -411,6 +530,14 @@ impl Work {
         let (link_tx, mut link_rx) = watch::channel(false);
         // The connection: polled on its own task; on an error the link is
         // down, and the next poll reconnects after a growing pause.
+        let desk = self.control.as_ref().map(|(stream, shown)| ControlDesk {
+            topics: self.topics.clone(),
+            client: client.clone(),
+            stream: stream.clone(),
+            shown: shown.clone(),
+            stats: self.stats.clone(),
+            say: self.say,
+        });
         let conn = {
             let stats = self.stats.clone();
             let url = self.url.display();
@@ -429,6 +556,15 @@ impl Work {
                             stats.connections.fetch_add(1, Ordering::Relaxed);
                             stats.link_up.store(true, Ordering::Relaxed);
                             let _ = link_tx.send(true);
+                            // Clean sessions: subscribe on every connection.
+                            if let Some(d) = &desk {
+                                let _ = d.client.try_subscribe(d.topics.control_all(), QoS::AtLeastOnce);
+                            }
+                        }
+                        Ok(Event::Incoming(Packet::Publish(p))) => {
+                            if let Some(d) = &desk {
+                                d.take(&p);
+                            }
                         }
                         Ok(Event::Outgoing(Outgoing::Disconnect)) => leaving = true,
                         Ok(_) => {}
@@ -615,6 +751,9 @@ pub fn unix_ns() -> i64 {
 /// A link error in the user's words.
 pub fn describe(e: &ConnectionError) -> String {
     use rumqttc::ConnectReturnCode as C;
+    if let Some(why) = super::broker::certificate_problem(e) {
+        return why;
+    }
     match e {
         ConnectionError::ConnectionRefused(C::BadUserNamePassword) => {
             "the broker refused the username or password".into()
@@ -647,6 +786,7 @@ mod tests {
             marks: 0,
             health_at: None,
             links: Vec::new(),
+            shown: None,
             events_on,
             batch: Vec::new(),
             batch_sources: SourceTable::default(),
@@ -730,6 +870,49 @@ mod tests {
             v
         });
         assert_eq!(left, vec![4, 5], "the newest wait; the queue closes with the tap");
+    }
+
+    // Issue 16, item 5: the end of a shared run waited for the publisher
+    // (up to its drain bound, with the broker gone) by sleeping on the
+    // runtime's own thread, so the screens' and the stream's tasks stood
+    // still meanwhile. Now the wait runs off the runtime: a task on a
+    // one-thread runtime keeps ticking while the publisher drains.
+    #[test]
+    fn finishing_inside_a_runtime_does_not_hold_it() {
+        let port = std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port();
+        let settings = ShareSettings {
+            url: BrokerUrl::parse(&format!("mqtt://127.0.0.1:{port}")).unwrap(),
+            topics: Topics::new("t").unwrap(),
+            credentials: None,
+            tls: TlsFiles::default(),
+            description: json!({}),
+            say_on_stderr: false,
+            events: false,
+            control: None,
+        };
+        let (mut tap, publisher) = Publisher::start(settings).unwrap();
+        // A message held for a link that never comes: the drain waits its bound.
+        tap.offer(&snap(1, vec![alert("target", 1, true, false)]));
+        drop(tap);
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().unwrap();
+        let (ticks, took) = rt.block_on(async {
+            let ticks = Arc::new(AtomicU64::new(0));
+            let t = ticks.clone();
+            let ticker = tokio::spawn(async move {
+                loop {
+                    tokio::time::sleep(Duration::from_millis(10)).await;
+                    t.fetch_add(1, Ordering::Relaxed);
+                }
+            });
+            let started = Instant::now();
+            let stats = publisher.finish_async().await;
+            ticker.abort();
+            assert!(stats.messages_not_shared.load(Ordering::Relaxed) > 0, "the held message was counted");
+            (ticks.load(Ordering::Relaxed), started.elapsed())
+        });
+        assert!(took >= Duration::from_secs(1), "the drain waited for the link ({took:?})");
+        let expected = took.as_millis() as u64 / 10;
+        assert!(ticks >= expected / 4, "{ticks} ticks in {took:?}: the runtime was held");
     }
 
     // Issue 16, item 2: raw events go in batches of 100 ms of stream time,

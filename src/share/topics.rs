@@ -11,6 +11,12 @@
 //! | `PREFIX/marks` | operator marks | 1 | no |
 //! | `PREFIX/health` | source health (links, rates, losses), once a second | 1 | yes |
 //! | `PREFIX/events` | raw event batches every 100 ms of stream time (`--share-events`) | 1 | no |
+//! | `PREFIX/control/USERNAME` | a follower's acknowledgement or mark ([`super::control`]); read only with `--share-accept-control` | 1 | no |
+//! | `PREFIX/answers/USERNAME` | the reading station's answer to each control message: accepted or refused, and why | 1 | no |
+//!
+//! The last level of a control topic is the sender's username: a broker
+//! whose ACL has `pattern write PREFIX/control/%u` guarantees it, so the
+//! reading station takes the sender from the topic, never from the payload.
 
 /// Why a topic prefix is refused.
 #[derive(Debug, thiserror::Error, PartialEq)]
@@ -81,6 +87,23 @@ impl Topics {
     pub fn events(&self) -> String {
         self.at("events")
     }
+    /// Where `user` sends acknowledgements and marks.
+    pub fn control(&self, user: &str) -> String {
+        format!("{}/control/{user}", self.prefix)
+    }
+    /// Every sender's control topic, for the reading station's subscription.
+    pub fn control_all(&self) -> String {
+        self.at("control/+")
+    }
+    /// The sender of a message on a control topic (its last level), or
+    /// `None` when `topic` is not one.
+    pub fn control_sender<'t>(&self, topic: &'t str) -> Option<&'t str> {
+        topic.strip_prefix(self.prefix.as_str())?.strip_prefix("/control/")
+    }
+    /// Where the reading station answers `user`'s control messages.
+    pub fn answers(&self, user: &str) -> String {
+        format!("{}/answers/{user}", self.prefix)
+    }
     /// Every topic of the run, for a follower's subscription.
     pub fn all(&self) -> String {
         self.at("#")
@@ -97,6 +120,12 @@ mod tests {
         assert_eq!(t.snapshot(), "team/run1/snapshot");
         assert_eq!(t.alert_change(), "team/run1/alerts/change");
         assert_eq!(t.all(), "team/run1/#");
+        assert_eq!(t.control("pit-eng"), "team/run1/control/pit-eng");
+        assert_eq!(t.control_all(), "team/run1/control/+");
+        assert_eq!(t.control_sender("team/run1/control/pit-eng"), Some("pit-eng"));
+        assert_eq!(t.control_sender("team/run1/snapshot"), None);
+        assert_eq!(t.control_sender("team/run10/control/x"), None, "another prefix");
+        assert_eq!(t.answers("pit-eng"), "team/run1/answers/pit-eng");
         for bad in ["", "/a", "a/", "a//b", "a/+", "a/#", "$SYS", "a\u{1b}[2J"] {
             assert!(Topics::new(bad).is_err(), "{bad:?}");
         }

@@ -20,7 +20,7 @@ use crate::util::{root, stderr, stdout, termvel};
 /// publisher rightly drops snapshots it cannot send in time.
 static ONE_AT_A_TIME: std::sync::Mutex<()> = std::sync::Mutex::new(());
 
-fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
+pub(crate) fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
     ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner())
 }
 
@@ -96,19 +96,19 @@ impl Drop for Broker {
 }
 
 /// A loopback port nothing listens on (just now).
-fn free_port() -> u16 {
+pub(crate) fn free_port() -> u16 {
     TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).unwrap().local_addr().unwrap().port()
 }
 
 /// A headless follower running in the background.
-struct Follower {
+pub(crate) struct Follower {
     child: Child,
     lines: mpsc::Receiver<String>,
 }
 
 impl Follower {
     /// Starts `termvel follow` and waits until it is subscribed.
-    fn start(url: &str, topic: &str, extra: &[&str]) -> Follower {
+    pub(crate) fn start(url: &str, topic: &str, extra: &[&str]) -> Follower {
         let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
             .args(["follow", url, "--topic", topic, "--headless"])
             .args(extra)
@@ -138,7 +138,7 @@ impl Follower {
     }
 
     /// Every line until the follower ends (at most `within`).
-    fn finish(mut self, within: Duration) -> Vec<Value> {
+    pub(crate) fn finish(mut self, within: Duration) -> Vec<Value> {
         let until = Instant::now() + within;
         let mut out = Vec::new();
         loop {
@@ -157,11 +157,11 @@ impl Follower {
     }
 }
 
-fn kind_of(v: &Value) -> &str {
+pub(crate) fn kind_of(v: &Value) -> &str {
     v["kind"].as_str().unwrap_or("")
 }
 
-fn parse_lines(s: &str) -> Vec<Value> {
+pub(crate) fn parse_lines(s: &str) -> Vec<Value> {
     s.lines().map(|l| serde_json::from_str(l).unwrap_or_else(|e| panic!("{e}: {l}"))).collect()
 }
 
@@ -520,4 +520,82 @@ fn a_follower_refuses_hostile_messages() {
         assert!(err.contains(why), "{why}: {err}");
     }
     assert!(!err.contains('\u{1b}'), "no escape reaches the terminal");
+}
+
+/// A headless follower that keeps only its last stdout line (its summary):
+/// twenty of them print tens of thousands of lines the test need not parse.
+fn quiet_follower(url: &str, topic: &str) -> (Child, std::thread::JoinHandle<Option<String>>) {
+    let mut child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["follow", url, "--topic", topic, "--headless", "--for", "300s"])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    let out = child.stdout.take().unwrap();
+    let last = std::thread::spawn(move || BufReader::new(out).lines().map_while(Result::ok).last());
+    let err = BufReader::new(child.stderr.take().unwrap());
+    let (ready_tx, ready) = mpsc::channel();
+    std::thread::spawn(move || {
+        for l in err.lines().map_while(Result::ok) {
+            if l.contains("termvel: following") {
+                let _ = ready_tx.send(());
+            }
+        }
+    });
+    ready.recv_timeout(Duration::from_secs(30)).expect("the follower subscribed within 30 s");
+    (child, last)
+}
+
+// Issue 16, item 4 (figures): a rehearsal published at full rate (paced
+// x1: every snapshot, ten a second, as a real run makes them) to 20
+// headless followers: each receives at least 99 % of the snapshots. Publish-to-follower latency is printed (the
+// median of the followers' p50 and the worst p99); only a generous sanity
+// bound is asserted, since a loaded 2-core machine says little about time.
+#[test]
+fn twenty_followers_each_receive_the_snapshots() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let followers: Vec<_> = (0..20).map(|_| quiet_follower(&url, "pit/many")).collect();
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--no-record",
+        "--speed",
+        "1",
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/many",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let out = stdout(&run);
+    let summary: Value = serde_json::from_str(out.lines().last().unwrap()).unwrap();
+    let share = &summary["share"];
+    let made = share["snapshots"].as_u64().unwrap();
+    let (mut p50s, mut p99s, mut received) = (Vec::new(), Vec::new(), Vec::new());
+    for (mut child, last) in followers {
+        let last = last.join().unwrap().expect("a summary line");
+        assert!(child.wait().unwrap().success());
+        let f: Value = serde_json::from_str(&last).unwrap();
+        let f = &f["summary"]["follow"];
+        assert_eq!(f["ended"], true, "{f}");
+        received.push(f["messages"]["snapshot"].as_u64().unwrap_or(0));
+        p50s.push(f["latency_us"]["p50"].as_u64().unwrap());
+        p99s.push(f["latency_us"]["p99"].as_u64().unwrap());
+    }
+    p50s.sort_unstable();
+    let worst_p99 = *p99s.iter().max().unwrap();
+    let fewest = *received.iter().min().unwrap();
+    eprintln!(
+        "20 followers: {made} snapshots made, {} published; fewest received {fewest}; latency p50 {:.1} ms (median of the followers'), p99 {:.1} ms (the worst follower's)",
+        share["snapshots_published"],
+        p50s[p50s.len() / 2] as f64 / 1000.0,
+        worst_p99 as f64 / 1000.0
+    );
+    for (i, r) in received.iter().enumerate() {
+        assert!(*r as f64 >= 0.99 * made as f64, "follower {i}: {r} of {made} snapshots");
+    }
+    assert!(worst_p99 < 5_000_000, "p99 {worst_p99} µs: something is stuck, not merely slow");
 }
