@@ -1,19 +1,160 @@
 //! `termvel follow`: a run shared through an MQTT broker, followed from
-//! another station. Headless for now: every message that passes the
-//! checks, one JSON line each, then a summary line.
+//! another station.
+//!
+//! On the screens (the default) the run is rebuilt here: the retained
+//! description gives the config set and the sources, the raw event batches
+//! (`--share-events` on the reading station) feed this station's own engine
+//! through the real-time driver, so every number on these screens is
+//! derived here, and is the reading station's when nothing was lost. The
+//! screens are read-only. `--record-dir` records the followed run from the
+//! batches (lost batches noted where they were).
+//!
+//! `--headless` prints every message that passes the checks, one JSON line
+//! each, then a summary line; it needs no event batches.
 
 use std::io::Write;
 use std::process::ExitCode;
+use std::sync::{Arc, Mutex, MutexGuard};
 use std::time::Duration;
 
+use serde_json::Value;
+use tokio::sync::{mpsc, oneshot, watch};
+
 use crate::cli::FollowArgs;
-use crate::share::follower::{self, FollowSettings};
+use crate::engine::{Engine, EngineOptions, Snapshot};
+use crate::event::{Event, SourceTable};
+use crate::share::follower::{self, FollowReport, FollowSettings, Received};
+use crate::share::payload::Kind;
+use crate::share::remote::{BatchOrder, RemoteRun, RemoteStats, parse_batch};
 use crate::share::{BrokerUrl, Credentials, Topics};
+use crate::sources::link::SessionClock;
+use crate::stream::realtime::{self, LiveOptions, LiveOutcome};
+use crate::stream::{StreamStatus, latency_histogram};
+use crate::ui::app::{App, Mode, SessionInfo, ShareLink};
+use crate::ui::frames::UiSink;
+
+/// Events waiting between the broker's task and the engine: at a saturated
+/// bus (about 9 000 events a second of stream) some 30 s of stream. A batch
+/// that does not fit is not taken (counted, and noted as lost).
+pub const INPUT_EVENTS: usize = 1 << 18;
+
+/// What the broker's task hands on, shared with the screens' probe.
+struct Intake {
+    run: Option<RemoteRun>,
+    /// The run's sources as the event lines grow them.
+    sources: SourceTable,
+    order: BatchOrder,
+    /// To the engine; `None` when no engine runs (headless, not recording)
+    /// and once following ended (the engine's input closes).
+    to_engine: Option<mpsc::Sender<Event>>,
+    sources_tx: watch::Sender<SourceTable>,
+    described: Option<oneshot::Sender<Result<RemoteRun, String>>>,
+    /// Event batches before the description came (nothing to read them with).
+    before_description: u64,
+    /// The first problems with batches, for stderr.
+    problems: Vec<String>,
+    link_up: bool,
+    /// The reading station's word: online, ended, offline.
+    publisher: Option<String>,
+    /// Another run began under the topic: following stops.
+    new_run: bool,
+    quit: watch::Sender<bool>,
+}
+
+impl Intake {
+    fn take(&mut self, m: &Received<'_>) {
+        match m.kind {
+            Kind::Description => match &self.run {
+                None => {
+                    let r = RemoteRun::from_description(m.value);
+                    if let Ok(run) = &r {
+                        self.sources = run.sources.clone();
+                        self.sources_tx.send_replace(run.sources.clone());
+                        self.run = Some(run.clone());
+                    }
+                    if let Some(tx) = self.described.take() {
+                        let _ = tx.send(r.map_err(|e| e.to_string()));
+                    }
+                }
+                // Republished on every reconnection: the same run. A new
+                // start is another run under the same topic.
+                Some(r) if m.value["started_unix_ns"].as_i64() != Some(r.started_unix_ns) => {
+                    self.new_run = true;
+                    let _ = self.quit.send(true);
+                }
+                Some(_) => {}
+            },
+            Kind::Status => self.publisher = m.value["state"].as_str().map(str::to_string),
+            Kind::Events => self.events(m.value),
+            _ => {}
+        }
+    }
+
+    fn events(&mut self, v: &Value) {
+        let Some(tx) = self.to_engine.clone() else { return };
+        if self.run.is_none() {
+            self.before_description += 1;
+            return;
+        }
+        if tx.is_closed() {
+            return;
+        }
+        match parse_batch(v, &mut self.sources) {
+            Ok(b) => {
+                for l in &b.bad_lines {
+                    self.problem(l.clone());
+                }
+                if tx.capacity() < b.events.len() + 1 {
+                    // The engine is behind: this batch is not taken, and
+                    // the next one taken shows the hole.
+                    self.order.stats.dropped_here += 1;
+                    return;
+                }
+                if self.sources_tx.borrow().len() != self.sources.len() {
+                    self.sources_tx.send_replace(self.sources.clone());
+                }
+                for ev in self.order.take(b) {
+                    let _ = tx.try_send(ev);
+                }
+            }
+            Err(e) => {
+                self.order.stats.bad_batches += 1;
+                self.problem(e.to_string());
+            }
+        }
+    }
+
+    fn problem(&mut self, p: String) {
+        if self.problems.len() < 10 {
+            self.problems.push(p);
+        }
+    }
+
+    /// The status line's words on the link.
+    fn link(&self) -> ShareLink {
+        let s = &self.order.stats;
+        let mut words = Vec::new();
+        match self.publisher.as_deref() {
+            Some("ended") => words.push("run ended".to_string()),
+            Some("offline") => words.push("reading station offline".to_string()),
+            _ => {}
+        }
+        if let Some(l) = &s.late {
+            let at = l.t_ns.map_or(String::new(), |t| format!(" at {}", crate::ui::format::clock(t)));
+            words.push(format!("joined late{at}: sums start there"));
+        }
+        if s.batches_lost > 0 {
+            words.push(format!("{} batches lost", s.batches_lost));
+        }
+        ShareLink { up: self.link_up, detail: words.join(" · ") }
+    }
+}
+
+fn lock(i: &Mutex<Intake>) -> MutexGuard<'_, Intake> {
+    i.lock().unwrap_or_else(|e| e.into_inner())
+}
 
 pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
-    if !args.headless {
-        return super::unusable("follow draws no screens yet: give --headless (JSON lines)");
-    }
     let url = match BrokerUrl::parse(&args.url) {
         Ok(u) => u,
         Err(e) => return super::unusable(e),
@@ -26,53 +167,284 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
         Ok(c) => c,
         Err(e) => return super::unusable(e),
     };
-    let settings =
-        FollowSettings { url: url.clone(), topics: topics.clone(), credentials, ca: args.ca, say_on_stderr: true };
-    let rt = tokio::runtime::Builder::new_current_thread().enable_all().build()?;
-    let stdout = std::io::stdout();
-    let mut out = std::io::BufWriter::new(stdout.lock());
-    let mut broken = false;
+    let settings = FollowSettings {
+        url: url.clone(),
+        topics: topics.clone(),
+        credentials,
+        ca: args.ca.clone(),
+        say_on_stderr: true,
+    };
+    let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
+    rt.block_on(follow(args, settings))
+}
+
+/// What the broker's task ends with: its report (or why it failed), and
+/// the headless output, to close with the summary.
+type FollowDone = (Result<FollowReport, follower::FollowError>, Printer);
+
+/// Headless output: each accepted message as one JSON line, written whole
+/// and flushed so a reader sees it when it comes.
+struct Printer {
+    out: std::io::BufWriter<std::io::Stdout>,
+    on: bool,
+    broken: bool,
+}
+
+impl Printer {
+    fn line(&mut self, v: &Value) {
+        if self.on
+            && !self.broken
+            && (serde_json::to_writer(&mut self.out, v).is_err()
+                || self.out.write_all(b"\n").is_err()
+                || self.out.flush().is_err())
+        {
+            self.broken = true;
+        }
+    }
+}
+
+async fn follow(args: FollowArgs, settings: FollowSettings) -> anyhow::Result<ExitCode> {
+    let (url, prefix) = (settings.url.display(), settings.topics.prefix().to_string());
+    // The engine runs on the screens, and headless when recording.
+    let engine_wanted = !args.headless || args.record_dir.is_some();
+    let (ev_tx, ev_rx) = mpsc::channel(INPUT_EVENTS);
+    let (sources_tx, sources_rx) = watch::channel(SourceTable::default());
+    let (desc_tx, mut desc_rx) = oneshot::channel();
+    let (quit_tx, mut quit_rx) = watch::channel(false);
+    let intake = Arc::new(Mutex::new(Intake {
+        run: None,
+        sources: SourceTable::default(),
+        order: BatchOrder::default(),
+        to_engine: engine_wanted.then_some(ev_tx),
+        sources_tx,
+        described: Some(desc_tx),
+        before_description: 0,
+        problems: Vec::new(),
+        link_up: false,
+        publisher: None,
+        new_run: false,
+        quit: quit_tx.clone(),
+    }));
     let limit = args.for_ns.map(|ns| Duration::from_nanos(ns as u64));
-    let result = rt.block_on(follower::follow(
-        settings,
-        || crate::say!("termvel: following {} under {}/", url.display(), topics.prefix()),
-        |m| {
-            // Each line whole and at once, so a reader sees it when it comes.
-            if !broken
-                && (serde_json::to_writer(&mut out, m.value).is_err()
-                    || out.write_all(b"\n").is_err()
-                    || out.flush().is_err())
-            {
-                broken = true;
-            }
-        },
-        async move {
-            match limit {
-                Some(d) => {
-                    tokio::select! {
-                        _ = tokio::time::sleep(d) => {}
-                        _ = tokio::signal::ctrl_c() => {}
+    let mut printer = Printer { out: std::io::BufWriter::new(std::io::stdout()), on: args.headless, broken: false };
+    let mut follow_task = {
+        let (on_link, on_msg, done) = (intake.clone(), intake.clone(), intake.clone());
+        let (url, prefix) = (url.clone(), prefix.clone());
+        tokio::spawn(async move {
+            let stop = async move {
+                let for_limit = async {
+                    match limit {
+                        Some(d) => tokio::time::sleep(d).await,
+                        None => std::future::pending().await,
                     }
+                };
+                tokio::select! {
+                    _ = for_limit => {}
+                    _ = tokio::signal::ctrl_c() => {}
+                    _ = quit_rx.wait_for(|q| *q) => {}
                 }
-                None => {
-                    let _ = tokio::signal::ctrl_c().await;
-                }
+            };
+            let r = follower::follow_with_link(
+                settings,
+                || crate::say!("termvel: following {url} under {prefix}/"),
+                |up| lock(&on_link).link_up = up,
+                |m| {
+                    printer.line(m.value);
+                    lock(&on_msg).take(&m);
+                },
+                stop,
+            )
+            .await;
+            // The engine's input ends with the following.
+            lock(&done).to_engine = None;
+            (r, printer) as FollowDone
+        })
+    };
+
+    if !engine_wanted {
+        let done = follow_task.await?;
+        return finish_headless(done, &intake, (&url, &prefix), None);
+    }
+
+    // The run's description first: the engine and the screens need its config.
+    if !args.headless {
+        crate::say!("termvel: waiting for the shared run's description under {prefix}/ (Ctrl-C to stop)");
+    }
+    let described = tokio::select! {
+        d = &mut desc_rx => d.ok(),
+        done = &mut follow_task => {
+            let done = done?;
+            if args.headless {
+                return finish_headless(done, &intake, (&url, &prefix), None);
+            }
+            if let Err(e) = done.0 {
+                crate::say!("termvel: {e}");
+                return Ok(ExitCode::from(super::EXIT_FAILED));
+            }
+            return super::unusable(format!("no shared run under {prefix}/ on {url}: no description came"));
+        }
+    };
+    let run = match described {
+        Some(Ok(run)) if run.event_batches => run,
+        other => {
+            let why = match other {
+                Some(Err(e)) => e,
+                _ => format!(
+                    "the shared run under {prefix}/ carries no event batches, so this station cannot derive it on its own engine{}: start the reading station with --share-events (or follow with --headless)",
+                    if args.headless { " or record it" } else { "" }
+                ),
+            };
+            crate::say!("termvel: {why}");
+            if args.headless {
+                // Headless follows without batches; only the recording asked for is not made.
+                lock(&intake).to_engine = None;
+                let done = follow_task.await?;
+                let code = finish_headless(done, &intake, (&url, &prefix), None)?;
+                return Ok(if code == ExitCode::SUCCESS { ExitCode::from(super::EXIT_UNUSABLE) } else { code });
+            }
+            let _ = quit_tx.send(true);
+            let _ = follow_task.await;
+            return Ok(ExitCode::from(super::EXIT_UNUSABLE));
+        }
+    };
+    let config = Arc::new(run.config.clone());
+    let recorder = match &args.record_dir {
+        Some(dir) => match crate::record::create_recording(dir, "follow", &config, &run.sources) {
+            Ok((w, p)) => {
+                crate::say!("termvel: recording to {}", p.display());
+                Some((w, p))
+            }
+            Err(e) => {
+                let _ = quit_tx.send(true);
+                let _ = follow_task.await;
+                return super::unusable(format!("cannot create a recording in {}: {e}", dir.display()));
             }
         },
-    ));
+        None => None,
+    };
+    let opts = LiveOptions {
+        engine: Engine::new(config.clone(), EngineOptions { snapshot_every_ns: run.snapshot_every_ns }),
+        sources: run.sources.clone(),
+        clock: SessionClock::start(),
+        recorder,
+        latency: None,
+        duration: None,
+    };
+    let (ctl_tx, ctl_rx) = mpsc::channel(64);
+    let (stop_tx, _stop_rx) = watch::channel(false);
+
+    if args.headless {
+        let driver = tokio::spawn(async move {
+            let mut sink = |_s: Arc<Snapshot>, _st: &StreamStatus| {};
+            realtime::follow(opts, ev_rx, sources_rx, ctl_rx, stop_tx, &mut sink).await
+        });
+        let done = follow_task.await?;
+        drop(ctl_tx);
+        let outcome = driver.await?;
+        return finish_headless(done, &intake, (&url, &prefix), Some(&outcome));
+    }
+
+    let (frames_tx, frames_rx) = watch::channel(None);
+    let (done_tx, done_rx) = oneshot::channel();
+    let driver = tokio::spawn(async move {
+        let mut ui = UiSink::new(frames_tx);
+        let out = realtime::follow(opts, ev_rx, sources_rx, ctl_rx, stop_tx, &mut ui).await;
+        let _ = done_tx.send(());
+        out
+    });
+    let _log = super::init_log_file();
+    let mut app = App::new(
+        SessionInfo { mode: Mode::Follow { topic: prefix.clone() }, config: config.clone() },
+        crate::ui::theme::Theme::from_env(),
+    );
+    let probe = intake.clone();
+    app.share_probe = Some(Box::new(move || lock(&probe).link()));
+    let ui_result = crate::ui::run(app, frames_rx, ctl_tx, latency_histogram(), done_rx).await;
+    let _ = quit_tx.send(true);
+    let (report, _) = follow_task.await?;
+    let outcome = tokio::time::timeout(Duration::from_secs(10), driver).await;
+    crate::say!("{}", ui_result?.line());
+    let outcome = match outcome {
+        Ok(Ok(o)) => o,
+        Ok(Err(e)) => return Err(anyhow::anyhow!("the engine's task failed: {e}")),
+        Err(_) => return Err(anyhow::anyhow!("the engine's task did not stop within 10 s")),
+    };
+    let report = match report {
+        Ok(r) => r,
+        Err(e) => {
+            crate::say!("termvel: {e}");
+            return Ok(ExitCode::from(super::EXIT_FAILED));
+        }
+    };
+    let complete = say_received(&report, &intake, &url, &prefix, Some(&outcome));
+    Ok(super::code(complete))
+}
+
+/// Says on stderr what was refused, received and lost, and where the
+/// recording went; true when the recording (if any) holds every event
+/// received.
+fn say_received(
+    report: &FollowReport,
+    intake: &Mutex<Intake>,
+    url: &str,
+    prefix: &str,
+    outcome: Option<&LiveOutcome>,
+) -> bool {
+    for r in &report.refusals {
+        crate::say!("termvel: refused a message on {r}");
+    }
+    let i = lock(intake);
+    for p in &i.problems {
+        crate::say!("termvel: {p}");
+    }
+    if i.new_run {
+        crate::say!("termvel: another run began under {prefix}/: following stopped (follow again to see it)");
+    }
+    let Some(outcome) = outcome else { return true };
+    let s = &i.order.stats;
+    crate::say!("termvel: followed {url} under {prefix}/: {} event batches ({} events) taken", s.batches, s.events);
+    if let Some(l) = &s.late {
+        crate::say!("termvel: joined late: {}", l.note().trim_start_matches("share: "));
+    }
+    if s.batches_lost > 0 || s.dropped_here > 0 {
+        crate::say!(
+            "termvel: {} event batches ({} events) lost in {} gaps ({} of them not taken here in time); the recording notes each gap",
+            s.batches_lost,
+            s.events_lost,
+            s.gaps.len(),
+            s.dropped_here
+        );
+    }
+    super::report_recording(&outcome.recording)
+}
+
+/// Closes a headless follow: the summary line (with `remote`, what the
+/// engine took, when recording), stderr, the exit status.
+fn finish_headless(
+    (result, mut printer): FollowDone,
+    intake: &Mutex<Intake>,
+    (url, prefix): (&str, &str),
+    outcome: Option<&LiveOutcome>,
+) -> anyhow::Result<ExitCode> {
     let report = match result {
         Ok(r) => r,
         Err(e) => {
             crate::say!("termvel: {e}");
-            return Ok(ExitCode::from(1));
+            return Ok(ExitCode::from(super::EXIT_FAILED));
         }
     };
-    for r in &report.refusals {
-        crate::say!("termvel: refused a message on {r}");
+    let complete = say_received(&report, intake, url, prefix, outcome);
+    if !printer.broken {
+        let mut follow = report.json();
+        if let Some(o) = outcome {
+            let stats: RemoteStats = lock(intake).order.stats.clone();
+            follow["remote"] = stats.json();
+            if let Some(r) = super::recording_summary(&o.recording) {
+                follow["recording"] = serde_json::to_value(r).unwrap_or_default();
+            }
+        }
+        printer.on = true;
+        printer.line(&serde_json::json!({ "summary": { "follow": follow } }));
     }
-    if !broken {
-        let _ = writeln!(out, "{}", serde_json::json!({ "summary": { "follow": report.json() } }));
-        let _ = out.flush();
-    }
-    Ok(ExitCode::SUCCESS)
+    Ok(super::code(complete))
 }

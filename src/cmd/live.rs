@@ -145,7 +145,8 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
                 let _ = done_tx.send(());
                 out
             });
-            let app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
+            let mut app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
+            app.share_probe = super::sharing::probe(&publisher);
             match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
                 Ok(stats) => crate::say!("{}", stats.line()),
                 Err(e) => tracing::error!("screen: {e}"),

@@ -115,6 +115,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
         crate::ui::theme::Theme::from_env(),
     );
     app.history = Some(history);
+    app.share_probe = super::sharing::probe(&publisher);
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
             let mut ui = UiSink::new(frames_tx);

@@ -16,6 +16,8 @@
 //! - [`payload`]: the JSON payloads and their schema version.
 //! - [`publisher`]: the sink, the queues and the publishing thread.
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
+//! - [`remote`]: the run rebuilt on a follower from its description and
+//!   event batches (its own engine), with lost batches noted where they were.
 //!
 //! Imports: `engine`, `stream` (the sink contract), `headless` (the
 //! snapshot JSON), `record` (an event as a recording line), `config` and
@@ -27,6 +29,7 @@ pub mod follower;
 pub mod payload;
 pub mod publisher;
 pub mod queue;
+pub mod remote;
 pub mod topics;
 
 pub use broker::{BrokerError, BrokerUrl};

@@ -67,11 +67,28 @@ struct State<'k, K> {
     snaps: Vec<Snapshot>,
     /// Stamp of the last event applied: none is applied before it.
     last_applied_ns: TimeNs,
+    /// A followed run's source table as its input grows it (a CAN
+    /// interface met in an event line); `None` live, where it is fixed.
+    grow: Option<watch::Receiver<SourceTable>>,
 }
 
 impl<K: SnapshotSink> State<'_, K> {
     fn handle(&mut self, mut ev: Event) {
+        if let Payload::Note(text) = ev.payload {
+            // No source sends notes: a followed run's input puts its own
+            // (batches lost, a late start) where they belong.
+            let t = ev.t_ns.max(self.last_applied_ns);
+            self.pipe.annotate(t, text, &self.sources);
+            return;
+        }
         self.events += 1;
+        self.pipe.status.start_ns.get_or_insert(ev.t_ns);
+        if ev.source.0 as usize >= self.sources.len()
+            && let Some(g) = &self.grow
+        {
+            // The input adds a source to its table before it sends the first event of it.
+            self.sources = g.borrow().clone();
+        }
         let arrival = ev.t_ns;
         ev.t_ns = ev.t_ns.max(self.last_applied_ns);
         self.last_applied_ns = ev.t_ns;
@@ -102,12 +119,45 @@ impl<K: SnapshotSink> State<'_, K> {
 /// had already sent are drained and recorded before this returns.
 pub async fn run<K: SnapshotSink>(
     opts: LiveOptions,
+    input: mpsc::Receiver<Event>,
+    controls: mpsc::Receiver<Control>,
+    stop: watch::Sender<bool>,
+    sink: &mut K,
+) -> LiveOutcome {
+    drive(opts, input, controls, stop, sink, None).await
+}
+
+/// As [`run`], for a run followed from a broker (`termvel follow`): the
+/// input is the publisher's own events, its clock ticks among them, so no
+/// tick is added here (the follower's engine sees what the reading
+/// station's saw); the stream's start is its first event; notes in the
+/// input are this session's own, recorded where they stand. `opts.clock`
+/// only times the recorder's flushes; `sources` is the table as the input
+/// grows it (updated before the first event of a new source is sent).
+pub async fn follow<K: SnapshotSink>(
+    opts: LiveOptions,
+    input: mpsc::Receiver<Event>,
+    sources: watch::Receiver<SourceTable>,
+    controls: mpsc::Receiver<Control>,
+    stop: watch::Sender<bool>,
+    sink: &mut K,
+) -> LiveOutcome {
+    drive(opts, input, controls, stop, sink, Some(sources)).await
+}
+
+/// `grow`: a followed run's growing source table; also says that the input
+/// brings its own clock ticks.
+async fn drive<K: SnapshotSink>(
+    opts: LiveOptions,
     mut input: mpsc::Receiver<Event>,
     mut controls: mpsc::Receiver<Control>,
     stop: watch::Sender<bool>,
     sink: &mut K,
+    grow: Option<watch::Receiver<SourceTable>>,
 ) -> LiveOutcome {
-    let status = StreamStatus { start_ns: Some(opts.clock.start_ns()), ..StreamStatus::default() };
+    let ticks = grow.is_none();
+    let start_ns = if ticks { Some(opts.clock.start_ns()) } else { None };
+    let status = StreamStatus { start_ns, ..StreamStatus::default() };
     let mut st = State {
         pipe: Pipeline::new(opts.engine, opts.recorder, status),
         sources: opts.sources,
@@ -117,6 +167,7 @@ pub async fn run<K: SnapshotSink>(
         sink,
         snaps: Vec::new(),
         last_applied_ns: TimeNs::MIN,
+        grow,
     };
     let mut tick = tokio::time::interval(TICK);
     tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
@@ -137,8 +188,10 @@ pub async fn run<K: SnapshotSink>(
                 }
             }
             _ = tick.tick() => {
-                let t = st.clock.now_ns();
-                st.handle(Event::new(t, SESSION, Payload::Tick));
+                if ticks {
+                    let t = st.clock.now_ns();
+                    st.handle(Event::new(t, SESSION, Payload::Tick));
+                }
                 st.pipe.flush(&st.sources);
             }
             c = controls.recv(), if controls_open => match c {

@@ -56,10 +56,32 @@ impl Screen {
 /// What kind of session the screens show.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Mode {
-    Replay { file: String },
-    Rehearsal { plan: String },
+    Replay {
+        file: String,
+    },
+    Rehearsal {
+        plan: String,
+    },
     Live,
+    /// A run shared through a broker, followed read-only (`termvel follow`).
+    Follow {
+        topic: String,
+    },
 }
+
+/// The link to a broker as the status line shows it: a publishing
+/// station's (`--share`) or a follower's. The command builds it from what
+/// its publisher or follower counts; the screens only draw it.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct ShareLink {
+    pub up: bool,
+    /// What was not shared or received, and other words (`3 not shared`,
+    /// `station offline`); empty for none.
+    pub detail: String,
+}
+
+/// Reads the link's state now (called at the frame rate: must be cheap).
+pub type ShareProbe = Box<dyn Fn() -> ShareLink + Send>;
 
 /// Fixed facts of the session.
 #[derive(Clone, Debug)]
@@ -129,6 +151,10 @@ pub struct App {
     own_history: ChartHistory,
     /// The CAN bus load of the signal map (config alone), for the feed screen.
     pub bus_load: crate::decode::busload::BusLoad,
+    /// The share link's probe, when the run is shared or followed.
+    pub share_probe: Option<ShareProbe>,
+    /// The share link as last read, and since when (Unix s) it is up or down.
+    pub share: Option<(ShareLink, i64)>,
 }
 
 impl App {
@@ -152,7 +178,23 @@ impl App {
             latency: LatencyView::default(),
             history: None,
             own_history: ChartHistory::default(),
+            share_probe: None,
+            share: None,
         }
+    }
+
+    /// The share link for the status line (`share ▲ up`, `share ▼ down
+    /// since 14:03:07Z`, and what was not shared), if the run is shared.
+    pub fn share_text(&self) -> Option<String> {
+        let (l, since) = self.share.as_ref()?;
+        let (_, _, _, h, m, s) = crate::civil_time::utc_parts(*since);
+        let mut t =
+            if l.up { "share ▲ up".to_string() } else { format!("share ▼ down since {h:02}:{m:02}:{s:02}Z") };
+        if !l.detail.is_empty() {
+            t.push_str(" · ");
+            t.push_str(&l.detail);
+        }
+        Some(t)
     }
 
     pub fn snapshot(&self) -> Option<&Snapshot> {
@@ -198,6 +240,16 @@ impl App {
 
     /// A clock tick (the frame rate): age the transient state.
     pub fn on_tick(&mut self) {
+        if let Some(probe) = &self.share_probe {
+            let now = probe();
+            let unix_s =
+                std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs() as i64);
+            let since = match &self.share {
+                Some((old, since)) if old.up == now.up => *since,
+                _ => unix_s,
+            };
+            self.share = Some((now, since));
+        }
         self.quit_armed = self.quit_armed.saturating_sub(1);
         if let Some((_, n)) = &mut self.message {
             *n = n.saturating_sub(1);
@@ -273,6 +325,22 @@ impl App {
                 }
                 _ => {}
             }
+            return vec![];
+        }
+        let followed = matches!(self.info.mode, Mode::Follow { .. });
+        if followed && matches!(key.code, KeyCode::Char('a' | 'm')) {
+            self.say("follow: read-only; acknowledge and mark on the reading station");
+            return vec![];
+        }
+        if followed
+            && matches!(
+                key.code,
+                KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's')
+                    | KeyCode::Left
+                    | KeyCode::Right
+            )
+        {
+            self.say("follow: pause, pace, seek and step do not apply to a followed run");
             return vec![];
         }
         let live = self.info.mode == Mode::Live;
@@ -457,6 +525,43 @@ mod tests {
             a.on_key(key(KeyCode::Char('a'))),
             vec![Action::Player(Control::Operator(Operator::Ack("*".into())))]
         );
+    }
+
+    // Issue 16, item 2: a followed run is read-only: the replay keys say
+    // they do not apply, screen and unit keys work.
+    #[test]
+    fn a_followed_run_says_the_replay_keys_do_not_apply() {
+        let mut a = App::new(
+            SessionInfo { mode: Mode::Follow { topic: "pit/run".into() }, config: Arc::new(ConfigSet::embedded()) },
+            Theme { color: false },
+        );
+        for k in [KeyCode::Char(' '), KeyCode::Left, KeyCode::Char('>'), KeyCode::Char('-'), KeyCode::Char('s')] {
+            assert!(a.on_key(key(k)).is_empty(), "{k:?} does nothing when following");
+            assert!(a.message.as_ref().is_some_and(|(m, _)| m.contains("do not apply to a followed run")));
+        }
+        a.on_key(key(KeyCode::Char('2')));
+        assert_eq!(a.screen, Screen::Power);
+        a.on_key(key(KeyCode::Char('u')));
+        assert_eq!(a.units, Units::Imperial);
+    }
+
+    // Issue 16, item 2: the share link's state is read at the frame rate,
+    // with the time it last changed.
+    #[test]
+    fn the_share_link_is_read_on_each_tick() {
+        let up = Arc::new(std::sync::atomic::AtomicBool::new(true));
+        let mut a = app();
+        let u = up.clone();
+        a.share_probe = Some(Box::new(move || ShareLink {
+            up: u.load(std::sync::atomic::Ordering::Relaxed),
+            detail: "2 not shared".into(),
+        }));
+        assert_eq!(a.share_text(), None, "nothing until read");
+        a.on_tick();
+        assert_eq!(a.share_text().as_deref(), Some("share ▲ up · 2 not shared"));
+        up.store(false, std::sync::atomic::Ordering::Relaxed);
+        a.on_tick();
+        assert!(a.share_text().is_some_and(|t| t.starts_with("share ▼ down since ")), "{:?}", a.share_text());
     }
 
     #[test]

@@ -86,6 +86,7 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
             Mode::Replay { .. } => "replay",
             Mode::Rehearsal { .. } => "rehearsal",
             Mode::Live => "live",
+            Mode::Follow { .. } => "follow",
         };
         // The time of the snapshot on the screen, from the first event.
         let pos = match (st.start_ns, snap) {
@@ -100,11 +101,14 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
         } else {
             "▶"
         };
-        if app.info.mode == Mode::Live {
+        if matches!(app.info.mode, Mode::Live | Mode::Follow { .. }) {
             // Live: the time since the session started; no pace or pause.
             parts.push(Span::styled(format!("│ {mode} {pos} "), t.status()));
         } else {
             parts.push(Span::styled(format!("│ {mode} {pos} {speed} {state} "), t.status()));
+        }
+        if let Some(share) = app.share_text() {
+            parts.push(Span::styled(format!("│ {share} "), t.status()));
         }
         match &st.recording {
             // The file does not take writes: say so, with what is waiting
@@ -126,6 +130,11 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
             }
             None => parts.push(Span::styled("│ not recording ", t.status())),
         }
+    }
+    if app.status().is_none()
+        && let Some(share) = app.share_text()
+    {
+        parts.push(Span::styled(format!("│ {share} "), t.status()));
     }
     let used: usize = parts.iter().map(|s| s.width()).sum();
     if used < area.width as usize {
