@@ -32,6 +32,9 @@
 //!   resizing, and the recording afterwards.
 //! - `share`: sharing a run through a real MQTT broker (mosquitto on a
 //!   free loopback port): followers, a late joiner, an absent broker.
+//! - `follow`: `termvel follow` on its own engine: a follower's recording
+//!   replaying bit for bit to the reading station's, a run without event
+//!   batches refused on the screens, the screens followed in tmux.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
 //!   files without lines, CRLF, escapes on output, long config lines.
@@ -61,6 +64,8 @@ mod crosscheck;
 mod determinism;
 #[path = "suite/envelope.rs"]
 mod envelope;
+#[path = "suite/follow.rs"]
+mod follow;
 #[path = "suite/ground_truth.rs"]
 mod ground_truth;
 #[path = "suite/kill.rs"]
