@@ -381,4 +381,87 @@ mod tests {
         assert_eq!(marks, vec![Payload::Mark("boost on".into())]);
         assert_eq!(out.recording.events, out.events, "every event taken is recorded");
     }
+
+    // Issue 16, item 3: a followed run is fed the publisher's own events:
+    // no tick of this station's is added, its notes (batches lost between
+    // two times) are recorded where they stand, a source the input adds
+    // later is known to the recording, and the stream starts at its first
+    // event.
+    #[tokio::test(start_paused = true)]
+    async fn a_followed_run_records_its_gap_notes_and_adds_no_ticks() {
+        let config = Arc::new(ConfigSet::embedded());
+        let mut sources = SourceTable::default();
+        let gnss = sources.intern("gnss0", SourceKind::Nmea);
+        let dir = tempfile::tempdir().unwrap();
+        let rec = crate::record::create_recording(dir.path(), "follow", &config, &sources).unwrap();
+        let path = rec.1.clone();
+        let opts = LiveOptions {
+            engine: Engine::new(config, EngineOptions::default()),
+            sources: sources.clone(),
+            clock: SessionClock::start(),
+            recorder: Some(rec),
+            latency: None,
+            duration: None,
+        };
+        let (tx, input) = mpsc::channel(64);
+        let (grow_tx, grow) = watch::channel(sources.clone());
+        let (_ctl, controls) = mpsc::channel(4);
+        let (stop, _stopped) = watch::channel(false);
+        let s = 1_000_000_000;
+        let line = |t, src| Event::new(t, src, Payload::Line(b"$GPRMC,x*00".to_vec()));
+        let note = "share: 2 event batches lost between 5.100 s and 5.400 s (7 events)".to_string();
+        let mut grown = sources.clone();
+        let can1 = grown.intern("can1", SourceKind::Can);
+        let frame = crate::event::CanFrame::Data(
+            crate::event::DataFrame::new(crate::event::CanId::standard(0x10).unwrap(), &[1]).unwrap(),
+        );
+        let feed = tokio::spawn(async move {
+            tx.send(line(5 * s, gnss)).await.unwrap();
+            tx.send(Event::new(5 * s + 100_000_000, SESSION, Payload::Tick)).await.unwrap();
+            // A second of wall time: a live run would add ten ticks here.
+            tokio::time::sleep(Duration::from_secs(1)).await;
+            tx.send(Event::new(5 * s + 400_000_000, SESSION, Payload::Note(note))).await.unwrap();
+            grow_tx.send_replace(grown);
+            tx.send(Event::new(5 * s + 400_000_000, can1, Payload::Can(frame))).await.unwrap();
+            tx.send(line(5 * s + 500_000_000, gnss)).await.unwrap();
+        });
+        let mut last_status = None;
+        let mut sink = |_s: Arc<Snapshot>, st: &StreamStatus| last_status = Some(st.clone());
+        let out = follow(opts, input, grow, controls, stop, &mut sink).await;
+        drop(sink);
+        feed.await.unwrap();
+        assert_eq!(out.reason, "every source ended");
+        assert_eq!(last_status.and_then(|st| st.start_ns), Some(5 * s), "the stream starts at its first event");
+        let mut r = RecordingReader::open(&path).unwrap();
+        let read: Vec<Event> = std::iter::from_fn(|| r.next_event())
+            .filter(|e| !matches!(&e.payload, Payload::Note(n) if !n.starts_with("share: ")))
+            .collect();
+        let events: Vec<(TimeNs, String, Payload)> =
+            read.into_iter().map(|e| (e.t_ns, r.header.sources.name(e.source).to_string(), e.payload)).collect();
+        let kinds: Vec<(TimeNs, &str, &str)> = events
+            .iter()
+            .map(|(t, n, p)| {
+                let k = match p {
+                    Payload::Tick => "tick",
+                    Payload::Note(_) => "note",
+                    Payload::Line(_) => "line",
+                    Payload::Can(_) => "can",
+                    _ => "other",
+                };
+                (*t, n.as_str(), k)
+            })
+            .collect();
+        assert_eq!(
+            kinds,
+            vec![
+                (5 * s, "gnss0", "line"),
+                (5 * s + 100_000_000, "session", "tick"),
+                (5 * s + 400_000_000, "session", "note"),
+                (5 * s + 400_000_000, "can1", "can"),
+                (5 * s + 500_000_000, "gnss0", "line"),
+            ],
+            "the publisher's tick only, the gap's note where the gap is"
+        );
+        assert_eq!(out.events, 4, "the note is not an input event");
+    }
 }

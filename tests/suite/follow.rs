@@ -185,7 +185,8 @@ fn a_shared_run_without_event_batches_is_refused_on_the_screens() {
 // shared with its event batches, followed on the screens of another: the
 // follower shows the run (speed, the run screen, its link up, that it
 // joined late), a screen key switches screens, a replay key says it does
-// not apply; the publishing station shows its link up too.
+// not apply; the publishing station shows its link up too, and both show
+// the link down within a second of the broker stopping.
 #[test]
 fn a_rehearsal_on_one_terminal_is_followed_on_another() {
     let _one = one_at_a_time();
@@ -215,6 +216,21 @@ fn a_rehearsal_on_one_terminal_is_followed_on_another() {
     follower.wait(5.0, "the replay key's answer", |s| s.contains("do not apply to a followed run"));
     follower.keys(&["u"]);
     follower.wait(5.0, "mph", |s| s.contains("mph"));
+    // The broker stopped: both screens say the link is down within a
+    // second; back, both say it is up again.
+    let killed_at = Instant::now();
+    let stopped = broker.kill();
+    follower.wait(2.0, "the follower's link down", |s| s.contains("share ▼ down since "));
+    let follower_down = killed_at.elapsed();
+    station.wait(2.0, "the station's link down", |s| s.contains("share ▼ down since "));
+    let station_down = killed_at.elapsed();
+    eprintln!("link down shown {follower_down:?} (follower) and {station_down:?} (station) after the kill");
+    assert!(follower_down < Duration::from_secs(1) && station_down < Duration::from_secs(1));
+    let broker = Broker::restart(stopped);
+    let restarted_at = Instant::now();
+    follower.wait(5.0, "the follower's link up again", |s| s.contains("share ▲ up"));
+    station.wait(5.0, "the station's link up again", |s| s.contains("share ▲ up"));
+    eprintln!("link up again shown {:?} after the restart", restarted_at.elapsed());
     follower.keys(&["q", "q"]);
     let end = follower.wait(10.0, "the follower's exit", |s| s.contains("[exited"));
     assert!(end.contains("[exited 0 ]"), "{end}");
@@ -222,4 +238,5 @@ fn a_rehearsal_on_one_terminal_is_followed_on_another() {
     station.keys(&["q", "q"]);
     let end = station.wait(10.0, "the station's exit", |s| s.contains("[exited"));
     assert!(end.contains("[exited 0 ]"), "{end}");
+    drop(broker);
 }
