@@ -58,6 +58,9 @@ struct Intake {
     publisher: Option<String>,
     /// Another run began under the topic: following stops.
     new_run: bool,
+    /// The publisher's snapshots seen (not shown: a sign the run is going
+    /// on while no batch comes).
+    snapshots: u64,
     quit: watch::Sender<bool>,
 }
 
@@ -86,6 +89,7 @@ impl Intake {
             },
             Kind::Status => self.publisher = m.value["state"].as_str().map(str::to_string),
             Kind::Events => self.events(m.value),
+            Kind::Snapshot => self.snapshots += 1,
             _ => {}
         }
     }
@@ -142,6 +146,11 @@ impl Intake {
         if let Some(l) = &s.late {
             let at = l.t_ns.map_or(String::new(), |t| format!(" at {}", crate::ui::format::clock(t)));
             words.push(format!("joined late{at}: sums start there"));
+        }
+        if s.batches == 0 && self.snapshots > 0 {
+            // The run goes on, its batches do not come (an ACL, a broker
+            // limit): say it rather than wait in silence.
+            words.push("no event batches received (the run's snapshots are)".to_string());
         }
         if s.batches_lost > 0 {
             words.push(format!("{} batches lost", s.batches_lost));
@@ -223,6 +232,7 @@ async fn follow(args: FollowArgs, settings: FollowSettings) -> anyhow::Result<Ex
         link_up: false,
         publisher: None,
         new_run: false,
+        snapshots: 0,
         quit: quit_tx.clone(),
     }));
     let limit = args.for_ns.map(|ns| Duration::from_nanos(ns as u64));

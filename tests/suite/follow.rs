@@ -240,3 +240,64 @@ fn a_rehearsal_on_one_terminal_is_followed_on_another() {
     assert!(end.contains("[exited 0 ]"), "{end}");
     drop(broker);
 }
+
+/// Publishes `body` on `topic` with mosquitto_pub (QoS 1; retained if asked).
+fn publish(broker: &Broker, topic: &str, body: &str, retain: bool) {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("body.json");
+    std::fs::write(&file, body).unwrap();
+    let mut c = Command::new("mosquitto_pub");
+    c.args(["-h", "127.0.0.1", "-p", &broker.port.to_string(), "-q", "1", "-t", topic]).arg("-f").arg(&file);
+    if retain {
+        c.arg("-r");
+    }
+    assert!(c.status().expect("mosquitto_pub runs (mosquitto-clients)").success());
+}
+
+// Issue 16, item 3: batches lost on the way (numbers 3 and 4 never came)
+// leave a recording that says where, in a session note at the hole; the
+// summary counts them and stderr says so; the recording replays.
+#[test]
+fn lost_batches_are_noted_in_the_followers_recording() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    // A real description: a rehearsal's, taken from the broker.
+    let run = termvel(&["rehearse", "--headless", "--as-fast-as-possible", "--no-record", "--share", &url]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let (_, out, _) = Follow::start(&[&url, "--headless", "--for", "2s"]).finish(Duration::from_secs(20));
+    let mut d: serde_json::Value = out
+        .lines()
+        .map(|l| serde_json::from_str::<serde_json::Value>(l).unwrap())
+        .find(|v| v["kind"] == "description")
+        .expect("the retained description");
+    d["event_batches"] = serde_json::json!(true);
+    publish(&broker, "pit/gap/description", &d.to_string(), true);
+
+    let dir = tempfile::tempdir().unwrap();
+    let rec_dir = dir.path().to_str().unwrap();
+    let f = Follow::start(&[&url, "--topic", "pit/gap", "--headless", "--for", "20s", "--record-dir", rec_dir]);
+    let batch = |seq: u64, before: u64, t_ms: [u64; 2]| {
+        let lines: String = t_ms.iter().map(|t| format!("[{}.{:03}000] session tick\n", t / 1000, t % 1000)).collect();
+        serde_json::json!({"schema": 1, "kind": "events", "seq": seq, "events_before": before, "count": 2,
+            "first_t_ns": t_ms[0] * 1_000_000, "lines": lines})
+        .to_string()
+    };
+    for (seq, before, t) in [(1, 0, [1000, 1050]), (2, 2, [1100, 1150]), (5, 8, [1400, 1450]), (6, 10, [1500, 1550])] {
+        publish(&broker, "pit/gap/events", &batch(seq, before, t), false);
+    }
+    publish(&broker, "pit/gap/status", r#"{"schema":1,"kind":"status","state":"ended"}"#, false);
+    let (code, out, err) = f.finish(Duration::from_secs(30));
+    assert_eq!(code, Some(0), "{err}");
+    assert!(err.contains("2 event batches (4 events) lost in 1 gaps"), "{err}");
+    let summary: serde_json::Value = serde_json::from_str(out.lines().last().unwrap()).unwrap();
+    let remote = &summary["summary"]["follow"]["remote"];
+    assert_eq!((remote["batches_lost"].as_u64(), remote["events_lost"].as_u64()), (Some(2), Some(4)), "{remote}");
+    assert_eq!(remote["event_batches"], 4, "{remote}");
+    let recording = only_file(dir.path());
+    let text = std::fs::read_to_string(&recording).unwrap();
+    let note = "[1.400000] session note share: 2 event batches lost between 1.150 s and 1.400 s (4 events)\n";
+    let at = text.find(note).unwrap_or_else(|| panic!("the note is in the recording:\n{text}"));
+    assert!(text[..at].contains("[1.150000] session tick\n") && text[at..].contains("[1.400000] session tick\n"));
+    assert!(replayed_snapshots(&recording).len() >= 5);
+}
