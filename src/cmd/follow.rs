@@ -356,10 +356,16 @@ async fn follow(args: FollowArgs, settings: FollowSettings) -> anyhow::Result<Ex
 
     let (frames_tx, frames_rx) = watch::channel(None);
     let (done_tx, done_rx) = oneshot::channel();
+    let (closed_tx, mut closed_rx) = watch::channel(false);
     let driver = tokio::spawn(async move {
         let mut ui = UiSink::new(frames_tx);
         let out = realtime::follow(opts, ev_rx, sources_rx, ctl_rx, stop_tx, &mut ui).await;
         let _ = done_tx.send(());
+        // The run ended (the publisher said so): the screens keep its last
+        // frame until the user quits. The sink lives until then: a closed
+        // channel would wake the screens' loop at once, over and over.
+        let _ = closed_rx.wait_for(|c| *c).await;
+        drop(ui);
         out
     });
     let _log = super::init_log_file();
@@ -370,6 +376,7 @@ async fn follow(args: FollowArgs, settings: FollowSettings) -> anyhow::Result<Ex
     let probe = intake.clone();
     app.share_probe = Some(Box::new(move || lock(&probe).link()));
     let ui_result = crate::ui::run(app, frames_rx, ctl_tx, latency_histogram(), done_rx).await;
+    let _ = closed_tx.send(true);
     let _ = quit_tx.send(true);
     let (report, _) = follow_task.await?;
     let outcome = tokio::time::timeout(Duration::from_secs(10), driver).await;

@@ -301,3 +301,53 @@ fn lost_batches_are_noted_in_the_followers_recording() {
     assert!(text[..at].contains("[1.150000] session tick\n") && text[at..].contains("[1.400000] session tick\n"));
     assert!(replayed_snapshots(&recording).len() >= 5);
 }
+
+/// Processor time (user + system, s) a process has used so far.
+fn cpu_s(pid: u32) -> f64 {
+    let stat = std::fs::read_to_string(format!("/proc/{pid}/stat")).unwrap();
+    let after = &stat[stat.rfind(')').unwrap() + 2..];
+    let f: Vec<&str> = after.split_whitespace().collect();
+    // utime and stime are fields 14 and 15 of the line, 12 and 13 after the name.
+    (f[11].parse::<f64>().unwrap() + f[12].parse::<f64>().unwrap()) / 100.0
+}
+
+// Issue 16, item 1: when the followed run ends, the screens keep its last
+// frame, say it ended, and sit idle until the user quits (the engine's
+// task ending must not leave the screens' loop waking for ever).
+#[test]
+fn a_followed_run_that_ends_stays_on_the_screens_idle() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let bin = env!("CARGO_BIN_EXE_termvel");
+    let follower = Tmux::start("ended", &format!("{bin} follow {url} --topic pit/end"), 100, 30);
+    follower.wait(20.0, "the follower waiting", |s| s.contains("waiting for the shared run's description"));
+    let run = termvel(&[
+        "rehearse",
+        "--headless",
+        "--speed",
+        "32",
+        "--no-record",
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/end",
+        "--share-events",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let s = follower.wait(20.0, "the run's end", |s| s.contains("run ended") && s.contains("SPEED"));
+    assert!(!s.contains("joined late"), "it followed from the first batch:\n{s}");
+    let pid = follower.pid();
+    let before = cpu_s(pid);
+    std::thread::sleep(Duration::from_secs(2));
+    let used = cpu_s(pid) - before;
+    // Measured on the test machine (debug build, 100×30): about 0.45 s
+    // drawing twenty frames a second; about 1 s when the engine's task
+    // ending left the screens' loop woken over and over.
+    eprintln!("the ended follower used {used:.2} s of processor time in 2 s");
+    assert!(used < 0.75, "the ended follower used {used} s of processor time in 2 s");
+    follower.keys(&["q", "q"]);
+    let end = follower.wait(10.0, "the exit", |s| s.contains("[exited"));
+    eprintln!("{}", end.trim_start());
+    assert!(end.contains("[exited 0 ]"), "{end}");
+}
