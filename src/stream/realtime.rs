@@ -428,7 +428,6 @@ mod tests {
         let mut last_status = None;
         let mut sink = |_s: Arc<Snapshot>, st: &StreamStatus| last_status = Some(st.clone());
         let out = follow(opts, input, grow, controls, stop, &mut sink).await;
-        drop(sink);
         feed.await.unwrap();
         assert_eq!(out.reason, "every source ended");
         assert_eq!(last_status.and_then(|st| st.start_ns), Some(5 * s), "the stream starts at its first event");
