@@ -147,6 +147,9 @@ impl Intake {
             let at = l.t_ns.map_or(String::new(), |t| format!(" at {}", crate::ui::format::clock(t)));
             words.push(format!("joined late{at}: sums start there"));
         }
+        if self.new_run {
+            words.push("another run began under the topic: follow again to see it".to_string());
+        }
         if s.batches == 0 && self.snapshots > 0 {
             // The run goes on, its batches do not come (an ACL, a broker
             // limit): say it rather than wait in silence.
@@ -181,7 +184,9 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
         topics: topics.clone(),
         credentials,
         ca: args.ca.clone(),
-        say_on_stderr: true,
+        // On the screens the status line shows the link: a line on stderr
+        // would be drawn over them.
+        say_on_stderr: args.headless,
     };
     let rt = tokio::runtime::Builder::new_multi_thread().worker_threads(2).enable_all().build()?;
     rt.block_on(follow(args, settings))
@@ -418,6 +423,12 @@ fn say_received(
         crate::say!("termvel: another run began under {prefix}/: following stopped (follow again to see it)");
     }
     let Some(outcome) = outcome else { return true };
+    if i.before_description > 0 {
+        crate::say!(
+            "termvel: {} event batches came before the run's description and could not be read",
+            i.before_description
+        );
+    }
     let s = &i.order.stats;
     crate::say!("termvel: followed {url} under {prefix}/: {} event batches ({} events) taken", s.batches, s.events);
     if let Some(l) = &s.late {

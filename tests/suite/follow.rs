@@ -222,6 +222,10 @@ fn a_rehearsal_on_one_terminal_is_followed_on_another() {
     let stopped = broker.kill();
     follower.wait(2.0, "the follower's link down", |s| s.contains("share ▼ down since "));
     let follower_down = killed_at.elapsed();
+    std::thread::sleep(Duration::from_millis(300));
+    // On the status line, not written over the screens on stderr.
+    let s = follower.screen();
+    assert!(!s.contains("termvel: follow link"), "a line was written over the screens:\n{s}");
     station.wait(2.0, "the station's link down", |s| s.contains("share ▼ down since "));
     let station_down = killed_at.elapsed();
     eprintln!("link down shown {follower_down:?} (follower) and {station_down:?} (station) after the kill");
