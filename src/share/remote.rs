@@ -176,7 +176,8 @@ impl Gap {
     /// The session note a recording keeps where the gap is.
     pub fn note(&self) -> String {
         format!(
-            "share: {} event batch{} lost between {} and {} ({} events)",
+            "{}{} event batch{} lost between {} and {} ({} events)",
+            crate::record::SHARE_NOTE_PREFIX,
             self.batches,
             if self.batches == 1 { "" } else { "es" },
             secs(self.after_t_ns),
@@ -198,7 +199,8 @@ pub struct Late {
 impl Late {
     pub fn note(&self) -> String {
         format!(
-            "share: followed from event batch {} at {}: {} events before it were not received (sums such as energy and distance start here)",
+            "{}followed from event batch {} at {}: {} events before it were not received (sums such as energy and distance start here)",
+            crate::record::SHARE_NOTE_PREFIX,
             self.seq,
             secs(self.t_ns),
             self.events_before

@@ -304,6 +304,12 @@ fn lost_batches_are_noted_in_the_followers_recording() {
     let at = text.find(note).unwrap_or_else(|| panic!("the note is in the recording:\n{text}"));
     assert!(text[..at].contains("[1.150000] session tick\n") && text[at..].contains("[1.400000] session tick\n"));
     assert!(replayed_snapshots(&recording).len() >= 5);
+    // The report lists what the recording lacks.
+    let report = termvel(&["report", recording.to_str().unwrap()]);
+    assert!(report.status.success(), "{}", stderr(&report));
+    let text = stdout(&report);
+    assert!(text.contains("not received from the reading station (1)"), "{text}");
+    assert!(text.contains("2 event batches lost between 1.150 s and 1.400 s (4 events)"), "{text}");
 }
 
 /// Processor time (user + system, s) a process has used so far.
