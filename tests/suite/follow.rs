@@ -345,7 +345,7 @@ fn a_followed_run_that_ends_stays_on_the_screens_idle() {
         "--share-events",
     ]);
     assert!(run.status.success(), "{}", stderr(&run));
-    let s = follower.wait(20.0, "the run's end", |s| s.contains("run ended") && s.contains("SPEED"));
+    let s = follower.wait(60.0, "the run's end", |s| s.contains("run ended") && s.contains("SPEED"));
     assert!(!s.contains("joined late"), "it followed from the first batch:\n{s}");
     let pid = follower.pid();
     let before = cpu_s(pid);
