@@ -180,9 +180,12 @@ pub struct FollowArgs {
     /// Topic prefix of the shared run.
     #[arg(long, value_name = "PREFIX", default_value = "termvel")]
     pub topic: String,
-    /// Print every message received as a JSON line (the only way to follow, for now).
+    /// Print every message received as a JSON line instead of drawing the screens (the screens need the reading station's --share-events; this does not).
     #[arg(long)]
     pub headless: bool,
+    /// Record the followed run into this directory (from the shared event batches; a follower records only when asked: the reading station's recording is the record of truth).
+    #[arg(long, value_name = "DIR")]
+    pub record_dir: Option<PathBuf>,
     /// Stop after this long (e.g. 90s, 10min); default: until the run ends or Ctrl-C.
     #[arg(long = "for", value_name = "DURATION", value_parser = parse_session_length)]
     pub for_ns: Option<TimeNs>,
@@ -201,6 +204,9 @@ pub struct FollowArgs {
     /// Read acknowledgements and marks from standard input, one a line (`ack KEY`, `mark [NOTE]`), and send them to the reading station (which must run with --share-accept-control; the broker's ACL says who may send).
     #[arg(long, requires = "headless")]
     pub send_from_stdin: bool,
+    /// On the screens, send `a` (acknowledge the alerts shown) and `m` (a mark) to the reading station (which must run with --share-accept-control; the broker's ACL says who may send). Without it the screens are read-only.
+    #[arg(long, conflicts_with = "headless")]
+    pub send_keys: bool,
 }
 
 #[derive(Args, Debug)]

@@ -35,6 +35,9 @@
 //! - `share_security`: the same with TLS client certificates (made with
 //!   openssl), an ACL, and followers' acknowledgements and marks, hostile
 //!   ones among them.
+//! - `follow`: `termvel follow` on its own engine: a follower's recording
+//!   replaying bit for bit to the reading station's, a run without event
+//!   batches refused on the screens, the screens followed in tmux.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
 //!   files without lines, CRLF, escapes on output, long config lines.
@@ -64,6 +67,8 @@ mod crosscheck;
 mod determinism;
 #[path = "suite/envelope.rs"]
 mod envelope;
+#[path = "suite/follow.rs"]
+mod follow;
 #[path = "suite/ground_truth.rs"]
 mod ground_truth;
 #[path = "suite/kill.rs"]

@@ -163,6 +163,7 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
             });
             let mut app = App::new(SessionInfo { mode: Mode::Live, config: config.clone() }, crate::ui::theme::Theme::from_env());
             app.units = settings.settings.units;
+            app.share_probe = super::sharing::probe(&publisher);
             match crate::ui::run(app, frames_rx, ctl_tx, latency, done_rx).await {
                 Ok(stats) => super::draw_stats(&stats, verbose),
                 Err(e) => tracing::error!("screen: {e}"),

@@ -134,6 +134,7 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     );
     app.history = Some(history);
     app.units = settings.settings.units;
+    app.share_probe = super::sharing::probe(&publisher);
     let outcome = rt.block_on(async move {
         let player = tokio::spawn(async move {
             let mut ui = UiSink::new(frames_tx);

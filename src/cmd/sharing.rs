@@ -30,13 +30,16 @@ pub fn start(
     let url = BrokerUrl::parse(url).map_err(|e| e.to_string())?;
     let topics = Topics::new(&run.share.share_topic).map_err(|e| e.to_string())?;
     let credentials = Credentials::load(run.share.share_credentials.as_deref()).map_err(|e| e.to_string())?;
-    let description = payload::description(&RunDescription {
+    let mut description = payload::description(&RunDescription {
         config,
         command,
         started_unix_ns: unix_ns(),
         snapshot_every_ns: run.every,
         sources,
     });
+    // Whether a follower can rebuild the run on its own engine (and record
+    // it): it needs the raw events.
+    description["event_batches"] = serde_json::json!(run.share.share_events);
     let settings = ShareSettings {
         url: url.clone(),
         topics: topics.clone(),
@@ -81,4 +84,20 @@ pub async fn finish_async(publisher: Option<Publisher>) -> Option<Value> {
     let stats = p.finish_async().await;
     crate::say!("{}", stats.line(&url));
     Some(stats.json(&url, &topics))
+}
+
+/// What the status line shows of a publisher's link (`None` when not
+/// sharing): up or down, and what was not shared so far.
+pub fn probe(publisher: &Option<Publisher>) -> Option<crate::ui::app::ShareProbe> {
+    use std::sync::atomic::Ordering::Relaxed;
+    let stats = publisher.as_ref()?.stats.clone();
+    Some(Box::new(move || {
+        let not_shared = stats.snapshots_dropped_slow.load(Relaxed)
+            + stats.snapshots_dropped_down.load(Relaxed)
+            + stats.messages_not_shared.load(Relaxed);
+        crate::ui::app::ShareLink {
+            up: stats.link_up.load(Relaxed),
+            detail: if not_shared > 0 { format!("{not_shared} not shared") } else { String::new() },
+        }
+    }))
 }

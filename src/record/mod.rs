@@ -52,6 +52,11 @@ pub use writer::RecordingWriter;
 use crate::config::ConfigText;
 use crate::event::SourceTable;
 
+/// How a followed run's recording (`termvel follow --record-dir`) begins
+/// its session notes about what it did not receive: event batches lost
+/// between two times, a late start. The report lists them.
+pub const SHARE_NOTE_PREFIX: &str = "share: ";
+
 /// The first line of every recording, before the version number.
 pub const MAGIC: &str = "%termvel-recording";
 /// Format version written by this build.

@@ -134,6 +134,9 @@ pub struct Run {
     pub coast_curve: Option<RoadLoadCurve>,
     pub timeline: Vec<Transition>,
     pub marks: Vec<(TimeNs, String)>,
+    /// A followed run's recording: where it lacks what the reading station
+    /// had (its `share: ` session notes).
+    pub share_gaps: Vec<(TimeNs, String)>,
     pub sources: Vec<SourceQuality>,
     pub events: u64,
     pub can_frames: u64,
@@ -205,8 +208,12 @@ impl Run {
         let mut coast = CoastDownFit::default();
         let mut start_ns: Option<TimeNs> = None;
         let mut n = 0u64;
+        let mut share_gaps = Vec::new();
         while let Some(ev) = r.next_event() {
-            if matches!(ev.payload, Payload::Note(_)) {
+            if let Payload::Note(note) = &ev.payload {
+                if let Some(what) = note.strip_prefix(crate::record::SHARE_NOTE_PREFIX) {
+                    share_gaps.push((ev.t_ns, what.to_string()));
+                }
                 continue;
             }
             let start = *start_ns.get_or_insert(ev.t_ns);
@@ -269,6 +276,7 @@ impl Run {
             coast_curve: coast.fit(),
             timeline: engine.alerts.timeline.clone(),
             marks: engine.marks().to_vec(),
+            share_gaps,
             sources,
             events: engine.counters.events,
             can_frames: engine.counters.can_frames,
@@ -406,6 +414,10 @@ pub struct Summary {
     pub stop_by_m: f64,
     pub alerts: Vec<AlertEntry>,
     pub marks: Vec<MarkEntry>,
+    /// A followed run's recording: batches it did not receive, a late
+    /// start (absent for a reading station's own recording).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    pub share_gaps: Vec<MarkEntry>,
     pub sources: Vec<SourceQuality>,
     pub stale: Vec<StalePeriods>,
     pub events: u64,
@@ -518,6 +530,7 @@ impl Summary {
                 })
                 .collect(),
             marks: run.marks.iter().map(|(t, m)| MarkEntry { t_s: run.t_s(*t), text: m.clone() }).collect(),
+            share_gaps: run.share_gaps.iter().map(|(t, m)| MarkEntry { t_s: run.t_s(*t), text: m.clone() }).collect(),
             sources: run.sources.clone(),
             stale,
             events: run.events,
@@ -701,6 +714,13 @@ pub fn text(s: &Summary) -> String {
     let _ = writeln!(o, "marks ({})", s.marks.len());
     for m in &s.marks {
         let _ = writeln!(o, "  {:>8}  {}", clock(m.t_s), clipped(&m.text, 500));
+    }
+    if !s.share_gaps.is_empty() {
+        let _ = writeln!(o);
+        let _ = writeln!(o, "not received from the reading station ({})", s.share_gaps.len());
+        for g in &s.share_gaps {
+            let _ = writeln!(o, "  {:>8}  {}", clock(g.t_s), clipped(&g.text, 500));
+        }
     }
     let raises = s.alerts.iter().filter(|a| a.what == "raise").count();
     let _ = writeln!(o);

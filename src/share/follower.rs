@@ -87,7 +87,19 @@ impl FollowReport {
 /// store) that the run ended. `ready` is called once subscribed.
 pub async fn follow(
     settings: FollowSettings,
+    ready: impl FnMut(),
+    on_message: impl FnMut(Received<'_>),
+    stop: impl Future<Output = ()>,
+) -> Result<FollowReport, FollowError> {
+    follow_with_link(settings, ready, |_| {}, on_message, stop).await
+}
+
+/// As [`follow`], telling `on_link` each time the link to the broker comes
+/// up (`true`) or goes down (`false`), for a screen that shows it.
+pub async fn follow_with_link(
+    settings: FollowSettings,
     mut ready: impl FnMut(),
+    mut on_link: impl FnMut(bool),
     mut on_message: impl FnMut(Received<'_>),
     stop: impl Future<Output = ()>,
 ) -> Result<FollowReport, FollowError> {
@@ -131,6 +143,7 @@ pub async fn follow(
                     crate::say!("termvel: follow link up again ({})", settings.url.display());
                 }
                 ever_connected = true;
+                on_link(true);
                 // Clean sessions: subscribe on every connection.
                 let _ = client.try_subscribe(settings.topics.all(), QoS::AtLeastOnce);
             }
@@ -174,6 +187,7 @@ pub async fn follow(
                     return Err(FollowError::Refused { url: settings.url.display(), why });
                 }
                 report.link_losses += 1;
+                on_link(false);
                 if settings.say_on_stderr {
                     crate::say!("termvel: follow link down ({}: {why}); retrying", settings.url.display());
                 }

@@ -18,6 +18,8 @@
 //! - [`control`]: acknowledgements and marks sent back by followers, and
 //!   the reading station's checks on them.
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
+//! - [`remote`]: the run rebuilt on a follower from its description and
+//!   event batches (its own engine), with lost batches noted where they were.
 //!
 //! Imports: `engine`, `stream` (the sink contract, and the operator
 //! actions followers' acknowledgements and marks become), `headless` (the
@@ -31,6 +33,7 @@ pub mod follower;
 pub mod payload;
 pub mod publisher;
 pub mod queue;
+pub mod remote;
 pub mod topics;
 
 pub use broker::{BrokerError, BrokerUrl, TlsFiles};

@@ -68,6 +68,16 @@ impl<W: RecordFile> Pipeline<W> {
         self.sync_status();
     }
 
+    /// Records a note of this session's own that did not come from the
+    /// engine (a follower's "batches lost here"), in stream order with the
+    /// events; the engine does not take notes, so nothing derived changes.
+    pub fn annotate(&mut self, t_ns: crate::event::TimeNs, text: String, sources: &SourceTable) {
+        if let Some(r) = self.recorder.as_mut() {
+            r.write(&Event::new(t_ns, SESSION, Payload::Note(text)), sources);
+            self.sync_status();
+        }
+    }
+
     /// The stream ended: the engine's last snapshots onto `out`.
     pub fn end_of_stream(&mut self, sources: &SourceTable, out: &mut Vec<Snapshot>) {
         self.status.finished = true;

@@ -67,11 +67,28 @@ struct State<'k, K> {
     snaps: Vec<Snapshot>,
     /// Stamp of the last event applied: none is applied before it.
     last_applied_ns: TimeNs,
+    /// A followed run's source table as its input grows it (a CAN
+    /// interface met in an event line); `None` live, where it is fixed.
+    grow: Option<watch::Receiver<SourceTable>>,
 }
 
 impl<K: SnapshotSink> State<'_, K> {
     fn handle(&mut self, mut ev: Event) {
+        if let Payload::Note(text) = ev.payload {
+            // No source sends notes: a followed run's input puts its own
+            // (batches lost, a late start) where they belong.
+            let t = ev.t_ns.max(self.last_applied_ns);
+            self.pipe.annotate(t, text, &self.sources);
+            return;
+        }
         self.events += 1;
+        self.pipe.status.start_ns.get_or_insert(ev.t_ns);
+        if ev.source.0 as usize >= self.sources.len()
+            && let Some(g) = &self.grow
+        {
+            // The input adds a source to its table before it sends the first event of it.
+            self.sources = g.borrow().clone();
+        }
         let arrival = ev.t_ns;
         ev.t_ns = ev.t_ns.max(self.last_applied_ns);
         self.last_applied_ns = ev.t_ns;
@@ -102,12 +119,45 @@ impl<K: SnapshotSink> State<'_, K> {
 /// had already sent are drained and recorded before this returns.
 pub async fn run<K: SnapshotSink>(
     opts: LiveOptions,
+    input: mpsc::Receiver<Event>,
+    controls: mpsc::Receiver<Control>,
+    stop: watch::Sender<bool>,
+    sink: &mut K,
+) -> LiveOutcome {
+    drive(opts, input, controls, stop, sink, None).await
+}
+
+/// As [`run`], for a run followed from a broker (`termvel follow`): the
+/// input is the publisher's own events, its clock ticks among them, so no
+/// tick is added here (the follower's engine sees what the reading
+/// station's saw); the stream's start is its first event; notes in the
+/// input are this session's own, recorded where they stand. `opts.clock`
+/// only times the recorder's flushes; `sources` is the table as the input
+/// grows it (updated before the first event of a new source is sent).
+pub async fn follow<K: SnapshotSink>(
+    opts: LiveOptions,
+    input: mpsc::Receiver<Event>,
+    sources: watch::Receiver<SourceTable>,
+    controls: mpsc::Receiver<Control>,
+    stop: watch::Sender<bool>,
+    sink: &mut K,
+) -> LiveOutcome {
+    drive(opts, input, controls, stop, sink, Some(sources)).await
+}
+
+/// `grow`: a followed run's growing source table; also says that the input
+/// brings its own clock ticks.
+async fn drive<K: SnapshotSink>(
+    opts: LiveOptions,
     mut input: mpsc::Receiver<Event>,
     mut controls: mpsc::Receiver<Control>,
     stop: watch::Sender<bool>,
     sink: &mut K,
+    grow: Option<watch::Receiver<SourceTable>>,
 ) -> LiveOutcome {
-    let status = StreamStatus { start_ns: Some(opts.clock.start_ns()), ..StreamStatus::default() };
+    let ticks = grow.is_none();
+    let start_ns = if ticks { Some(opts.clock.start_ns()) } else { None };
+    let status = StreamStatus { start_ns, ..StreamStatus::default() };
     let mut st = State {
         pipe: Pipeline::new(opts.engine, opts.recorder, status),
         sources: opts.sources,
@@ -117,6 +167,7 @@ pub async fn run<K: SnapshotSink>(
         sink,
         snaps: Vec::new(),
         last_applied_ns: TimeNs::MIN,
+        grow,
     };
     let mut tick = tokio::time::interval(TICK);
     tick.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
@@ -137,8 +188,10 @@ pub async fn run<K: SnapshotSink>(
                 }
             }
             _ = tick.tick() => {
-                let t = st.clock.now_ns();
-                st.handle(Event::new(t, SESSION, Payload::Tick));
+                if ticks {
+                    let t = st.clock.now_ns();
+                    st.handle(Event::new(t, SESSION, Payload::Tick));
+                }
                 st.pipe.flush(&st.sources);
             }
             c = controls.recv(), if controls_open => match c {
@@ -327,5 +380,87 @@ mod tests {
             .collect();
         assert_eq!(marks, vec![Payload::Mark("boost on".into())]);
         assert_eq!(out.recording.events, out.events, "every event taken is recorded");
+    }
+
+    // Issue 16, item 3: a followed run is fed the publisher's own events:
+    // no tick of this station's is added, its notes (batches lost between
+    // two times) are recorded where they stand, a source the input adds
+    // later is known to the recording, and the stream starts at its first
+    // event.
+    #[tokio::test(start_paused = true)]
+    async fn a_followed_run_records_its_gap_notes_and_adds_no_ticks() {
+        let config = Arc::new(ConfigSet::embedded());
+        let mut sources = SourceTable::default();
+        let gnss = sources.intern("gnss0", SourceKind::Nmea);
+        let dir = tempfile::tempdir().unwrap();
+        let rec = crate::record::create_recording(dir.path(), "follow", &config, &sources).unwrap();
+        let path = rec.1.clone();
+        let opts = LiveOptions {
+            engine: Engine::new(config, EngineOptions::default()),
+            sources: sources.clone(),
+            clock: SessionClock::start(),
+            recorder: Some(rec),
+            latency: None,
+            duration: None,
+        };
+        let (tx, input) = mpsc::channel(64);
+        let (grow_tx, grow) = watch::channel(sources.clone());
+        let (_ctl, controls) = mpsc::channel(4);
+        let (stop, _stopped) = watch::channel(false);
+        let s = 1_000_000_000;
+        let line = |t, src| Event::new(t, src, Payload::Line(b"$GPRMC,x*00".to_vec()));
+        let note = "share: 2 event batches lost between 5.100 s and 5.400 s (7 events)".to_string();
+        let mut grown = sources.clone();
+        let can1 = grown.intern("can1", SourceKind::Can);
+        let frame = crate::event::CanFrame::Data(
+            crate::event::DataFrame::new(crate::event::CanId::standard(0x10).unwrap(), &[1]).unwrap(),
+        );
+        let feed = tokio::spawn(async move {
+            tx.send(line(5 * s, gnss)).await.unwrap();
+            tx.send(Event::new(5 * s + 100_000_000, SESSION, Payload::Tick)).await.unwrap();
+            // A second of wall time: a live run would add ten ticks here.
+            tokio::time::sleep(Duration::from_secs(1)).await;
+            tx.send(Event::new(5 * s + 400_000_000, SESSION, Payload::Note(note))).await.unwrap();
+            grow_tx.send_replace(grown);
+            tx.send(Event::new(5 * s + 400_000_000, can1, Payload::Can(frame))).await.unwrap();
+            tx.send(line(5 * s + 500_000_000, gnss)).await.unwrap();
+        });
+        let mut last_status = None;
+        let mut sink = |_s: Arc<Snapshot>, st: &StreamStatus| last_status = Some(st.clone());
+        let out = follow(opts, input, grow, controls, stop, &mut sink).await;
+        feed.await.unwrap();
+        assert_eq!(out.reason, "every source ended");
+        assert_eq!(last_status.and_then(|st| st.start_ns), Some(5 * s), "the stream starts at its first event");
+        let mut r = RecordingReader::open(&path).unwrap();
+        let read: Vec<Event> = std::iter::from_fn(|| r.next_event())
+            .filter(|e| !matches!(&e.payload, Payload::Note(n) if !n.starts_with("share: ")))
+            .collect();
+        let events: Vec<(TimeNs, String, Payload)> =
+            read.into_iter().map(|e| (e.t_ns, r.header.sources.name(e.source).to_string(), e.payload)).collect();
+        let kinds: Vec<(TimeNs, &str, &str)> = events
+            .iter()
+            .map(|(t, n, p)| {
+                let k = match p {
+                    Payload::Tick => "tick",
+                    Payload::Note(_) => "note",
+                    Payload::Line(_) => "line",
+                    Payload::Can(_) => "can",
+                    _ => "other",
+                };
+                (*t, n.as_str(), k)
+            })
+            .collect();
+        assert_eq!(
+            kinds,
+            vec![
+                (5 * s, "gnss0", "line"),
+                (5 * s + 100_000_000, "session", "tick"),
+                (5 * s + 400_000_000, "session", "note"),
+                (5 * s + 400_000_000, "can1", "can"),
+                (5 * s + 500_000_000, "gnss0", "line"),
+            ],
+            "the publisher's tick only, the gap's note where the gap is"
+        );
+        assert_eq!(out.events, 4, "the note is not an input event");
     }
 }

@@ -56,10 +56,34 @@ impl Screen {
 /// What kind of session the screens show.
 #[derive(Clone, Debug, PartialEq)]
 pub enum Mode {
-    Replay { file: String },
-    Rehearsal { plan: String },
+    Replay {
+        file: String,
+    },
+    Rehearsal {
+        plan: String,
+    },
     Live,
+    /// A run shared through a broker, followed read-only (`termvel follow`).
+    Follow {
+        topic: String,
+        /// `a` and `m` are sent to the reading station (`--send-keys`).
+        sends: bool,
+    },
 }
+
+/// The link to a broker as the status line shows it: a publishing
+/// station's (`--share`) or a follower's. The command builds it from what
+/// its publisher or follower counts; the screens only draw it.
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct ShareLink {
+    pub up: bool,
+    /// What was not shared or received, and other words (`3 not shared`,
+    /// `station offline`); empty for none.
+    pub detail: String,
+}
+
+/// Reads the link's state now (called at the frame rate: must be cheap).
+pub type ShareProbe = Box<dyn Fn() -> ShareLink + Send>;
 
 /// Fixed facts of the session.
 #[derive(Clone, Debug)]
@@ -133,6 +157,10 @@ pub struct App {
     own_history: ChartHistory,
     /// The CAN bus load of the signal map (config alone), for the feed screen.
     pub bus_load: crate::decode::busload::BusLoad,
+    /// The share link's probe, when the run is shared or followed.
+    pub share_probe: Option<ShareProbe>,
+    /// The share link as last read, and since when (Unix s) it is up or down.
+    pub share: Option<(ShareLink, i64)>,
 }
 
 impl App {
@@ -156,7 +184,30 @@ impl App {
             latency: LatencyView::default(),
             history: None,
             own_history: ChartHistory::default(),
+            share_probe: None,
+            share: None,
         }
+    }
+
+    /// The share link for the status line (`share ▲ up`, `share ▼ down
+    /// since 14:03:07Z`, and what was not shared), if the run is shared.
+    pub fn share_text(&self) -> Option<String> {
+        let (l, since) = self.share.as_ref()?;
+        let (_, _, _, h, m, s) = crate::civil_time::utc_parts(*since);
+        let mut t =
+            if l.up { "share ▲ up".to_string() } else { format!("share ▼ down since {h:02}:{m:02}:{s:02}Z") };
+        if !l.detail.is_empty() {
+            t.push_str(" · ");
+            t.push_str(&l.detail);
+        }
+        Some(t)
+    }
+
+    /// The link's state alone, for a narrow status line.
+    pub fn share_short(&self) -> Option<String> {
+        let (l, since) = self.share.as_ref()?;
+        let (_, _, _, h, m, s) = crate::civil_time::utc_parts(*since);
+        Some(if l.up { "share ▲".to_string() } else { format!("share ▼ {h:02}:{m:02}:{s:02}Z") })
     }
 
     pub fn snapshot(&self) -> Option<&Snapshot> {
@@ -202,6 +253,16 @@ impl App {
 
     /// A clock tick (the frame rate): age the transient state.
     pub fn on_tick(&mut self) {
+        if let Some(probe) = &self.share_probe {
+            let now = probe();
+            let unix_s =
+                std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_secs() as i64);
+            let since = match &self.share {
+                Some((old, since)) if old.up == now.up => *since,
+                _ => unix_s,
+            };
+            self.share = Some((now, since));
+        }
         self.quit_armed = self.quit_armed.saturating_sub(1);
         if let Some((_, n)) = &mut self.message {
             *n = n.saturating_sub(1);
@@ -244,7 +305,10 @@ impl App {
                         text.trim().to_string()
                     };
                     let status = self.status();
+                    let sends = matches!(self.info.mode, Mode::Follow { sends: true, .. });
                     let said = match status {
+                        // A follower's mark is the reading station's to take.
+                        _ if sends => format!("mark sent to the reading station: {text}"),
                         Some(st) if st.recording.is_none() => {
                             format!("mark shown, not recorded (no recording is being written): {text}")
                         }
@@ -285,6 +349,39 @@ impl App {
                 }
                 _ => {}
             }
+            return vec![];
+        }
+        let followed = matches!(self.info.mode, Mode::Follow { .. });
+        let sends = matches!(self.info.mode, Mode::Follow { sends: true, .. });
+        if followed && !sends && matches!(key.code, KeyCode::Char('a' | 'm')) {
+            self.say("follow: read-only; acknowledge and mark on the reading station (or follow with --send-keys)");
+            return vec![];
+        }
+        if sends && key.code == KeyCode::Char('a') {
+            // One acknowledgement per alert shown and not yet acknowledged:
+            // the reading station checks each against its own alerts (it
+            // takes no "all"); the answers come back on the status line and
+            // the acknowledgements in the run's own events.
+            let keys: Vec<String> = self
+                .snapshot()
+                .map(|s| s.alerts.iter().filter(|a| a.active && !a.acked).map(|a| a.key.clone()).collect())
+                .unwrap_or_default();
+            let n = keys.len();
+            self.say(format!(
+                "acknowledgement of {n} alert{} sent to the reading station",
+                if n == 1 { "" } else { "s" }
+            ));
+            return keys.into_iter().map(|k| Action::Player(Control::Operator(Operator::Ack(k)))).collect();
+        }
+        if followed
+            && matches!(
+                key.code,
+                KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's')
+                    | KeyCode::Left
+                    | KeyCode::Right
+            )
+        {
+            self.say("follow: pause, pace, seek and step do not apply to a followed run");
             return vec![];
         }
         let live = self.info.mode == Mode::Live;
@@ -484,6 +581,97 @@ mod tests {
             a.on_key(key(KeyCode::Char('a'))),
             vec![Action::Player(Control::Operator(Operator::Ack("*".into())))]
         );
+    }
+
+    // Issue 16, item 2: a followed run is read-only: the replay keys say
+    // they do not apply, screen and unit keys work.
+    #[test]
+    fn a_followed_run_says_the_replay_keys_do_not_apply() {
+        let mut a = App::new(
+            SessionInfo {
+                mode: Mode::Follow { topic: "pit/run".into(), sends: false },
+                config: Arc::new(ConfigSet::embedded()),
+            },
+            Theme { color: false },
+        );
+        for k in [KeyCode::Char(' '), KeyCode::Left, KeyCode::Char('>'), KeyCode::Char('-'), KeyCode::Char('s')] {
+            assert!(a.on_key(key(k)).is_empty(), "{k:?} does nothing when following");
+            assert!(a.message.as_ref().is_some_and(|(m, _)| m.contains("do not apply to a followed run")));
+        }
+        a.on_key(key(KeyCode::Char('2')));
+        assert_eq!(a.screen, Screen::Power);
+        a.on_key(key(KeyCode::Char('u')));
+        assert_eq!(a.units, Units::Imperial);
+    }
+
+    // Issue 16, item 2: with --send-keys a follower's `a` asks the reading
+    // station to acknowledge each alert shown, active and not yet
+    // acknowledged, one by one (the station takes no "all"); `m` sends the
+    // mark typed. Without it both keys stay read-only.
+    #[test]
+    fn a_follower_with_send_keys_sends_one_ack_per_alert_and_its_marks() {
+        let alert = |key: &str, active: bool, acked: bool| crate::engine::Alert {
+            key: key.into(),
+            severity: crate::config::Severity::Caution,
+            message: "m".into(),
+            text: "m".into(),
+            raised_ns: 0,
+            active,
+            acked,
+        };
+        let mut snap = crate::engine::Engine::new(Arc::new(ConfigSet::embedded()), Default::default())
+            .snapshot_at(0, &Default::default());
+        snap.alerts = vec![alert("derating", true, false), alert("target", true, true), alert("stale", false, false)];
+        let frame = Arc::new(UiFrame { snapshot: Arc::new(snap), status: StreamStatus::default() });
+        let follower = |sends: bool| {
+            let mut a = App::new(
+                SessionInfo {
+                    mode: Mode::Follow { topic: "pit/run".into(), sends },
+                    config: Arc::new(ConfigSet::embedded()),
+                },
+                Theme { color: false },
+            );
+            a.on_frame(frame.clone());
+            a
+        };
+        let mut a = follower(true);
+        assert_eq!(
+            a.on_key(key(KeyCode::Char('a'))),
+            vec![Action::Player(Control::Operator(Operator::Ack("derating".into())))]
+        );
+        assert!(a.message.as_ref().is_some_and(|(m, _)| m.contains("1 alert sent to the reading station")));
+        assert!(a.on_key(key(KeyCode::Char('m'))).is_empty());
+        for c in "late".chars() {
+            a.on_key(key(KeyCode::Char(c)));
+        }
+        assert_eq!(
+            a.on_key(key(KeyCode::Enter)),
+            vec![Action::Player(Control::Operator(Operator::Mark("late".into())))]
+        );
+        assert!(a.message.as_ref().is_some_and(|(m, _)| m.starts_with("mark sent to the reading station")));
+        let mut ro = follower(false);
+        assert!(ro.on_key(key(KeyCode::Char('a'))).is_empty());
+        assert!(ro.on_key(key(KeyCode::Char('m'))).is_empty() && ro.prompt.is_none());
+        assert!(ro.message.as_ref().is_some_and(|(m, _)| m.contains("read-only")));
+    }
+
+    // Issue 16, item 2: the share link's state is read at the frame rate,
+    // with the time it last changed.
+    #[test]
+    fn the_share_link_is_read_on_each_tick() {
+        let up = Arc::new(std::sync::atomic::AtomicBool::new(true));
+        let mut a = app();
+        let u = up.clone();
+        a.share_probe = Some(Box::new(move || ShareLink {
+            up: u.load(std::sync::atomic::Ordering::Relaxed),
+            detail: "2 not shared".into(),
+        }));
+        assert_eq!(a.share_text(), None, "nothing until read");
+        a.on_tick();
+        assert_eq!(a.share_text().as_deref(), Some("share ▲ up · 2 not shared"));
+        up.store(false, std::sync::atomic::Ordering::Relaxed);
+        a.on_tick();
+        assert!(a.share_text().is_some_and(|t| t.starts_with("share ▼ down since ")), "{:?}", a.share_text());
     }
 
     #[test]

@@ -122,14 +122,16 @@ impl<'a> Field<'a> {
 
 /// Status fields, in the order they shorten when the line is too narrow:
 /// the recording's name (then the word REC alone), the clock of day, the
-/// mode word, the sources (to counts). Figures are never cut. Another field
+/// share link's figures (to its state), the mode word, the sources (to
+/// counts). Figures are never cut. Another field
 /// goes in as one more [`Field`] with its shorter forms, its index named
 /// here.
-const SHORTEN_ORDER: [usize; 6] = [REC, CLOCK, PLAY, REC, SOURCES, REC];
+const SHORTEN_ORDER: [usize; 7] = [REC, CLOCK, SHARE, PLAY, REC, SOURCES, REC];
 const SOURCES: usize = 0;
 const CLOCK: usize = 1;
 const PLAY: usize = 2;
 const REC: usize = 3;
+const SHARE: usize = 4;
 
 /// The status line: sources, clock, position of total, pace, pause,
 /// recording; a message or the mark being typed first, with the room the
@@ -179,6 +181,7 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
                 Mode::Replay { .. } => "replay",
                 Mode::Rehearsal { .. } => "rehearsal",
                 Mode::Live => "live",
+                Mode::Follow { .. } => "follow",
             };
             // The time of the snapshot on the screen, from the first event,
             // and of the whole stream when the source knows its end.
@@ -187,7 +190,9 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
                 _ => "0:00.0".into(),
             };
             let pos = match (status.start_ns, status.end_ns) {
-                (Some(a), Some(e)) if app.info.mode != Mode::Live => format!("{pos} / {}", format::elapsed(e - a)),
+                (Some(a), Some(e)) if !matches!(app.info.mode, Mode::Live | Mode::Follow { .. }) => {
+                    format!("{pos} / {}", format::elapsed(e - a))
+                }
                 _ => pos,
             };
             let speed = if status.speed.is_finite() { format!("x{}", trim(status.speed)) } else { "fastest".into() };
@@ -198,8 +203,9 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
             } else {
                 "▶"
             };
-            fields.push(Field::new(if app.info.mode == Mode::Live {
-                // Live: the time since the session started; no pace or pause.
+            fields.push(Field::new(if matches!(app.info.mode, Mode::Live | Mode::Follow { .. }) {
+                // Live and followed: the time since the session started; no
+                // pace or pause.
                 vec![vec![Span::styled(format!("│ {mode} {pos} "), st)], vec![Span::styled(format!("│ {pos} "), st)]]
             } else {
                 vec![
@@ -244,6 +250,14 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
     while fields.len() < 4 {
         fields.push(Field::new(vec![vec![]]));
     }
+    // The link to the broker when sharing or following: up, or down since
+    // when, and what was not shared (lost); short: the state alone.
+    fields.push(Field::new(match (app.share_text(), app.share_short()) {
+        (Some(long), Some(short)) => {
+            vec![vec![Span::styled(format!("│ {long} "), st)], vec![Span::styled(format!("│ {short} "), st)]]
+        }
+        _ => vec![vec![]],
+    }));
     // What the user is typing, or a passing message, comes first: the
     // fields shorten to give it room (their short forms keep every figure
     // and the state), and it is cut only if that is not enough.
@@ -283,6 +297,11 @@ pub fn status(f: &mut Frame, area: Rect, app: &App) {
     }
     for fl in fields {
         parts.extend(fl.forms.into_iter().nth(fl.at).unwrap_or_default());
+    }
+    if app.status().is_none()
+        && let Some(share) = app.share_text()
+    {
+        parts.push(Span::styled(format!("│ {share} "), t.status()));
     }
     let used: usize = parts.iter().map(|s| s.width()).sum();
     if used < width {
