@@ -259,13 +259,17 @@ struct Sending {
     out: mpsc::Sender<(String, Vec<u8>)>,
 }
 
+/// The control topic, the follower's outgoing queue and its requests
+/// awaiting an answer.
+type KeySending = (String, mpsc::Sender<(String, Vec<u8>)>, Arc<Mutex<Awaiting>>);
+
 /// The screens' operator actions become requests to the reading station
 /// (never the local engine's: the station's acknowledgements and marks come
 /// back in its event batches); the other controls go on to the driver.
 async fn forward_keys(
     mut from_ui: mpsc::Receiver<Control>,
     to_driver: mpsc::Sender<Control>,
-    sending: Option<(String, mpsc::Sender<(String, Vec<u8>)>, Arc<Mutex<Awaiting>>)>,
+    sending: Option<KeySending>,
 ) {
     while let Some(c) = from_ui.recv().await {
         match c {
