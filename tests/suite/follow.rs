@@ -361,3 +361,53 @@ fn a_followed_run_that_ends_stays_on_the_screens_idle() {
     eprintln!("{}", end.trim_start());
     assert!(end.contains("[exited 0 ]"), "{end}");
 }
+
+// Issue 16, item 2: with permission, a follower on the screens acknowledges
+// and marks: started with --send-keys (and a username), `a` asks the
+// reading station to acknowledge the alerts shown and `m` sends a mark; the
+// station (taking orders with --share-accept-control) accepts them, and
+// the follower's status line says so. Without --send-keys `a` stays
+// read-only.
+#[test]
+fn a_follower_with_send_keys_acknowledges_and_marks_from_its_screens() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let bin = env!("CARGO_BIN_EXE_termvel");
+    let follower = Tmux::start(
+        "sender",
+        &format!(
+            "TERMVEL_SHARE_USERNAME=pit-eng TERMVEL_SHARE_PASSWORD=unused {bin} follow {url} --topic pit/keys --send-keys"
+        ),
+        200,
+        50,
+    );
+    follower.wait(20.0, "the follower waiting", |s| s.contains("waiting for the shared run's description"));
+    let station = Command::new(bin)
+        .args(["rehearse", "--headless", "--speed", "2", "--no-record", "--share", &url])
+        .args(["--share-topic", "pit/keys", "--share-events", "--share-accept-control"])
+        .current_dir(root())
+        // Its snapshot lines are not read here (a full pipe would stop it).
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    // The derating alert, active and not yet acknowledged.
+    follower
+        .wait(90.0, "an active alert on the follower", |s| s.contains("battery derating") && s.contains("● active"));
+    follower.keys(&["a"]);
+    follower.wait(5.0, "the key's word", |s| s.contains("sent to the reading station"));
+    let s = follower.wait(15.0, "the station's answer", |s| s.contains("accepted \"ack "));
+    assert!(!s.contains("refused"), "{s}");
+    follower.keys(&["m"]);
+    follower.keys(&["l", "a", "t", "e", "Enter"]);
+    follower.wait(15.0, "the mark's answer", |s| s.contains("accepted \"mark late\""));
+    let out = station.wait_with_output().unwrap();
+    let err = stderr(&out);
+    assert!(out.status.success(), "{err}");
+    assert!(err.contains("accepted from pit-eng: ack "), "{err}");
+    assert!(err.contains("accepted from pit-eng: mark late"), "{err}");
+    follower.keys(&["q", "q"]);
+    let end = follower.wait(20.0, "the exit", |s| s.contains("[exited"));
+    assert!(end.contains("[exited 0 ]"), "{end}");
+}
