@@ -9,8 +9,10 @@
 //! `cargo bench --bench share_cost` (`TERMVEL_BENCH_SECS`, default 20 s a
 //! case); `-- --quick` runs 1 s a case (to check that it runs).
 
-use std::net::{Ipv4Addr, TcpListener, TcpStream};
-use std::process::{Child, Command, Stdio};
+#[path = "support/broker.rs"]
+mod broker;
+use broker::Broker;
+
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
@@ -30,39 +32,6 @@ fn thread_cpu_s() -> f64 {
     unsafe { libc::getrusage(libc::RUSAGE_THREAD, &mut ru) };
     let tv = |t: libc::timeval| t.tv_sec as f64 + t.tv_usec as f64 * 1e-6;
     tv(ru.ru_utime) + tv(ru.ru_stime)
-}
-
-/// A mosquitto on 127.0.0.1, killed when dropped.
-/// (The directory holds its config while it runs.)
-struct Broker(Child, u16, #[allow(dead_code)] tempfile::TempDir);
-
-impl Broker {
-    fn start() -> Broker {
-        let port = TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).unwrap().local_addr().unwrap().port();
-        let dir = tempfile::tempdir().unwrap();
-        let conf = dir.path().join("mosquitto.conf");
-        std::fs::write(&conf, format!("listener {port} 127.0.0.1\npersistence false\nallow_anonymous true\n")).unwrap();
-        let child = Command::new("/usr/sbin/mosquitto")
-            .arg("-c")
-            .arg(&conf)
-            .stdout(Stdio::null())
-            .stderr(Stdio::null())
-            .spawn()
-            .expect("mosquitto (scripts/setup.sh installs it)");
-        let until = Instant::now() + Duration::from_secs(10);
-        while TcpStream::connect((Ipv4Addr::LOCALHOST, port)).is_err() {
-            assert!(Instant::now() < until, "mosquitto listens");
-            std::thread::sleep(Duration::from_millis(20));
-        }
-        Broker(child, port, dir)
-    }
-}
-
-impl Drop for Broker {
-    fn drop(&mut self) {
-        let _ = self.0.kill();
-        let _ = self.0.wait();
-    }
 }
 
 #[derive(Clone, Copy, PartialEq)]

@@ -7,8 +7,10 @@
 //! `cargo bench --bench share_fanout` (`TERMVEL_BENCH_SECS`, default 20 s
 //! a case); `-- --quick` runs 2 s a case (to check that it runs).
 
-use std::net::{Ipv4Addr, TcpListener, TcpStream};
-use std::process::{Child, Command, Stdio};
+#[path = "support/broker.rs"]
+mod broker;
+use broker::Broker;
+
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
@@ -19,39 +21,6 @@ use termvel::share::publisher::{Publisher, ShareSettings};
 use termvel::share::{BrokerUrl, ShareSink, TlsFiles, Topics};
 use termvel::sources::{EventSource, FileSource};
 use termvel::stream::{SnapshotSink, StreamStatus};
-
-/// A mosquitto on 127.0.0.1, killed when dropped.
-/// (The directory holds its config while it runs.)
-struct Broker(Child, u16, #[allow(dead_code)] tempfile::TempDir);
-
-impl Broker {
-    fn start() -> Broker {
-        let port = TcpListener::bind((Ipv4Addr::LOCALHOST, 0)).unwrap().local_addr().unwrap().port();
-        let dir = tempfile::tempdir().unwrap();
-        let conf = dir.path().join("mosquitto.conf");
-        std::fs::write(&conf, format!("listener {port} 127.0.0.1\npersistence false\nallow_anonymous true\n")).unwrap();
-        let child = Command::new("/usr/sbin/mosquitto")
-            .arg("-c")
-            .arg(&conf)
-            .stdout(Stdio::null())
-            .stderr(Stdio::null())
-            .spawn()
-            .expect("mosquitto (scripts/setup.sh installs it)");
-        let until = Instant::now() + Duration::from_secs(10);
-        while TcpStream::connect((Ipv4Addr::LOCALHOST, port)).is_err() {
-            assert!(Instant::now() < until, "mosquitto listens");
-            std::thread::sleep(Duration::from_millis(20));
-        }
-        Broker(child, port, dir)
-    }
-}
-
-impl Drop for Broker {
-    fn drop(&mut self) {
-        let _ = self.0.kill();
-        let _ = self.0.wait();
-    }
-}
 
 /// The demo replay's snapshots, made once.
 fn demo_snapshots() -> Vec<Arc<Snapshot>> {
