@@ -77,13 +77,9 @@ pub fn run(args: LiveArgs) -> anyhow::Result<ExitCode> {
         if args.all_ids { None } else { Some(config.signals.messages.iter().map(|m| m.id).collect()) };
     // The screens' remembered settings: a malformed file is refused here,
     // before a recording starts.
-    let settings = if args.run.headless {
-        crate::ui::settings::Loaded { settings: Default::default(), note: None }
-    } else {
-        match crate::ui::settings::load(crate::ui::settings::path().as_deref()) {
-            Ok(l) => l,
-            Err(e) => return super::unusable(e),
-        }
+    let settings = match crate::ui::settings::for_session(args.run.headless) {
+        Ok(l) => l,
+        Err(e) => return super::unusable(e),
     };
     // Issue 16, item 5: the recording first; sharing starts only for a
     // run that will happen.

@@ -50,13 +50,9 @@ pub fn run<S: EventSource + 'static>(src: S, spec: PlaySpec) -> anyhow::Result<E
     }
     // The screens' remembered settings: a malformed file is refused here,
     // before a recording starts.
-    let settings = if spec.run.headless {
-        crate::ui::settings::Loaded { settings: Default::default(), note: None }
-    } else {
-        match crate::ui::settings::load(crate::ui::settings::path().as_deref()) {
-            Ok(l) => l,
-            Err(e) => return super::unusable(e),
-        }
+    let settings = match crate::ui::settings::for_session(spec.run.headless) {
+        Ok(l) => l,
+        Err(e) => return super::unusable(e),
     };
     // Issue 16, item 5: the recording first; sharing starts only for a
     // run that will happen (a refused recording left a retained `online`).

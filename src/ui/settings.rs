@@ -84,6 +84,16 @@ struct RawSettings {
     units: Option<Spanned<String>>,
 }
 
+/// The settings a session on the screens starts with (the file at
+/// [`path`]); a headless session draws nothing and reads none. A malformed
+/// file is refused before a recording starts.
+pub fn for_session(headless: bool) -> Result<Loaded, SettingsError> {
+    if headless {
+        return Ok(Loaded { settings: Default::default(), note: None });
+    }
+    load(path().as_deref())
+}
+
 /// Reads the settings at `path` (`None`: no config folder).
 pub fn load(path: Option<&Path>) -> Result<Loaded, SettingsError> {
     let defaults = |note: String| Ok(Loaded { settings: Settings::default(), note: Some(note) });
