@@ -15,6 +15,19 @@ fn num(v: f64) -> Value {
     if v.is_finite() { json!(v) } else { Value::Null }
 }
 
+/// One alert as the snapshot line (and a shared run's alert messages)
+/// carry it.
+pub fn alert_json(a: &crate::engine::Alert) -> Value {
+    json!({
+        "key": a.key,
+        "severity": a.severity.as_str(),
+        "message": a.message,
+        "raised_t": a.raised_ns as f64 * 1e-9,
+        "active": a.active,
+        "acked": a.acked,
+    })
+}
+
 /// The JSON object of one snapshot.
 pub fn snapshot_json(s: &Snapshot) -> Value {
     let mut channels = Map::new();
@@ -38,20 +51,7 @@ pub fn snapshot_json(s: &Snapshot) -> Value {
             }),
         );
     }
-    let alerts: Vec<Value> = s
-        .alerts
-        .iter()
-        .map(|a| {
-            json!({
-                "key": a.key,
-                "severity": a.severity.as_str(),
-                "message": a.message,
-                "raised_t": a.raised_ns as f64 * 1e-9,
-                "active": a.active,
-                "acked": a.acked,
-            })
-        })
-        .collect();
+    let alerts: Vec<Value> = s.alerts.iter().map(alert_json).collect();
     let mut obj = Map::new();
     obj.insert("t".into(), json!(s.t_ns as f64 * 1e-9));
     obj.insert("t_ns".into(), json!(s.t_ns));

@@ -13,7 +13,7 @@ use crate::config::ConfigSet;
 use crate::engine::snapshot::SourceView;
 use crate::engine::{Alert, Snapshot};
 use crate::event::TimeNs;
-use crate::headless::snapshot_json;
+use crate::headless::{alert_json, snapshot_json};
 
 /// The version of the payload layouts.
 pub const SCHEMA: u64 = 1;
@@ -145,17 +145,6 @@ pub fn status(state: &str) -> Value {
 /// One snapshot, `seq` counting from 1 over the run (a follower sees gaps).
 pub fn snapshot(seq: u64, s: &Snapshot) -> Value {
     envelope(Kind::Snapshot, object(json!({ "seq": seq, "snapshot": snapshot_json(s) })))
-}
-
-fn alert_json(a: &Alert) -> Value {
-    json!({
-        "key": a.key,
-        "severity": a.severity.as_str(),
-        "message": a.message,
-        "raised_t": a.raised_ns as f64 * 1e-9,
-        "active": a.active,
-        "acked": a.acked,
-    })
 }
 
 /// The present alert state (retained): every alert shown, newest first.

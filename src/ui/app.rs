@@ -373,31 +373,21 @@ impl App {
             ));
             return keys.into_iter().map(|k| Action::Player(Control::Operator(Operator::Ack(k)))).collect();
         }
-        if followed
-            && matches!(
-                key.code,
-                KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's')
-                    | KeyCode::Left
-                    | KeyCode::Right
-            )
-        {
-            self.say("follow: pause, pace, seek and step do not apply to a followed run");
-            return vec![];
-        }
-        let live = self.info.mode == Mode::Live;
         let control = |c: Control| vec![Action::Player(c)];
         let playback = |p: Playback| control(Control::Playback(p));
-        if live
-            && matches!(
-                key.code,
-                KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's')
-                    | KeyCode::Left
-                    | KeyCode::Right
-            )
-        {
-            // A live run cannot be paused, sped up or sought: say so rather
-            // than ignore the key.
-            self.say("live: pause, pace, seek and step are for replays and rehearsals");
+        let replay_key = matches!(
+            key.code,
+            KeyCode::Char(' ' | 'p' | '+' | '=' | '-' | '.' | ',' | '>' | '<' | 's') | KeyCode::Left | KeyCode::Right
+        );
+        // A live or followed run cannot be paused, sped up or sought: say so
+        // rather than ignore the key.
+        let not_here = match self.info.mode {
+            Mode::Follow { .. } => Some("follow: pause, pace, seek and step do not apply to a followed run"),
+            Mode::Live => Some("live: pause, pace, seek and step are for replays and rehearsals"),
+            _ => None,
+        };
+        if replay_key && let Some(why) = not_here {
+            self.say(why);
             return vec![];
         }
         match key.code {
