@@ -226,15 +226,17 @@ fn body(screen: &str) -> String {
 
 /// Starts the demo paused at 120×40, steps once (so the position sits on
 /// the snapshot grid), presses `keys`, steps once more and returns the
-/// screen once it has settled on the step's position.
+/// screen once it has settled on the step's position. (The waits are long
+/// for a machine busy with the rest of the suite; each returns as soon as
+/// the screen shows what it waits for.)
 fn paused_then(name: &str, keys: &[&str]) -> (String, u64) {
     let cmd = format!("{} replay {} --no-record --paused", bin(), demo().display());
     let t = Tmux::start(name, &cmd, 120, 40);
-    let first = t.wait(15.0, "the first snapshot, paused", |s| s.contains("PAUSED") && position(s).is_some());
+    let first = t.wait(30.0, "the first snapshot, paused", |s| s.contains("PAUSED") && position(s).is_some());
     assert!(!first.contains("waiting for"), "{first}");
     let p0 = position(&first).unwrap();
     t.keys(&["s"]);
-    let stepped = t.wait(5.0, "a step", |s| position(s).is_some_and(|p| p == p0 + 1));
+    let stepped = t.wait(20.0, "a step", |s| position(s).is_some_and(|p| p == p0 + 1));
     let p1 = position(&stepped).unwrap();
     t.keys(keys);
     // Until every seek is done: the position stays put for a second.
@@ -249,7 +251,7 @@ fn paused_then(name: &str, keys: &[&str]) -> (String, u64) {
     }
     t.keys(&["s"]);
     let landed =
-        t.wait(10.0, &format!("{name}: the last step from {p0} {p1} {last:?}"), |s| position(s) == Some(p1 + 600));
+        t.wait(30.0, &format!("{name}: the last step from {p0} {p1} {last:?}"), |s| position(s) == Some(p1 + 600));
     std::thread::sleep(Duration::from_millis(400));
     let settled = t.screen();
     assert_eq!(position(&settled), position(&landed));
