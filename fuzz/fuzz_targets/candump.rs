@@ -42,7 +42,7 @@ fn reference(line: &[u8]) -> Option<(i64, &[u8], CanFrame)> {
     let rest = line[close + 1..].strip_prefix(b" ")?;
     let sp = rest.iter().position(|&c| c == b' ')?;
     let (iface, rest) = (&rest[..sp], &rest[sp + 1..]);
-    if iface.is_empty() {
+    if iface.is_empty() || iface.len() > candump::MAX_IFACE {
         return None;
     }
 

@@ -19,6 +19,20 @@ use crate::event::{CanFrame, CanId, DataFrame, ErrorFrame, FdFrame, RemoteFrame,
 /// name fits easily; anything longer is corrupt.
 pub const MAX_LINE: usize = 512;
 
+/// Longest interface name accepted, in bytes. Linux names are at most 15
+/// bytes; a recording's source names are at most 64 before escaping, 256
+/// after. The bound keeps the reader able to read whatever the writer makes
+/// of an accepted line: [`write_line`] may lengthen the time (`(1.5)` is
+/// written `(1.500000)`), and the longest line it can write, the widest time
+/// and an FD frame of 64 bytes after this name, still fits in [`MAX_LINE`].
+pub const MAX_IFACE: usize = 256;
+
+/// The longest line [`write_line`] writes (newline not counted): the widest
+/// time `(SSSSSSSSSS.NNNNNNNNN)`, a space, the name, a space, and an FD frame
+/// `IIIIIIII##F` with 64 data bytes in hex.
+pub const MAX_WRITTEN_LINE: usize = 22 + 1 + MAX_IFACE + 1 + (8 + 3 + 2 * 64);
+const _: () = assert!(MAX_WRITTEN_LINE <= MAX_LINE);
+
 /// A parsed log line; the interface borrows from the input.
 #[derive(Clone, Copy, Debug, PartialEq)]
 pub struct CandumpLine<'a> {
@@ -173,6 +187,9 @@ pub fn parse_line_bytes(line: &[u8]) -> Result<(TimeNs, &[u8], CanFrame), FrameS
     }
     if i == istart {
         return Err(err(i, "an interface name"));
+    }
+    if i - istart > MAX_IFACE {
+        return Err(err(istart + MAX_IFACE, "an interface name of at most 256 bytes"));
     }
     let iface = &line[istart..i];
     if line.get(i) != Some(&b' ') {
@@ -395,6 +412,35 @@ mod tests {
 
     fn ok(s: &str) -> CandumpLine<'_> {
         parse_line(s.as_bytes()).unwrap_or_else(|e| panic!("{s}: {e}"))
+    }
+
+    #[test]
+    fn a_line_read_is_a_line_written_that_reads_back() {
+        // Found by the candump fuzz target in CI: a line of 511 bytes with a
+        // short time `(1.0)` and a 500-byte interface name was accepted, and
+        // written back as `(1.000000) ...` it was 516 bytes, which the
+        // reader refuses. Long names are now refused where they are read.
+        let long = format!("(1.0) {} 123#", "a".repeat(500));
+        assert!(long.len() <= MAX_LINE);
+        let e = parse_line(long.as_bytes()).unwrap_err();
+        // Column of the first byte past the bound (the name starts at 7).
+        assert_eq!(e.column, 7 + MAX_IFACE, "{e}");
+        assert!(e.to_string().contains("interface name of at most 256 bytes"), "{e}");
+
+        // The longest accepted name with the shortest time and the widest
+        // frame: written back, it is read back the same.
+        let name = "n".repeat(MAX_IFACE);
+        let fd = "AB".repeat(64);
+        for frame in ["123#", &format!("1FFFFFFF##F{fd}"), "1FFFFFFF#R8"] {
+            let src = format!("(1.1) {name} {frame}");
+            let l = ok(&src);
+            let mut out = Vec::new();
+            write_line(&mut out, 9_223_372_035_123_456_789, l.iface, &l.frame);
+            let written = out.strip_suffix(b"\n").unwrap();
+            assert!(written.len() <= MAX_WRITTEN_LINE, "{}", written.len());
+            let back = parse_line(written).unwrap_or_else(|e| panic!("{frame}: {e}"));
+            assert_eq!((back.iface, back.frame), (l.iface, l.frame));
+        }
     }
 
     #[test]

@@ -308,7 +308,7 @@ mod tests {
     use super::*;
     use crate::config::ConfigKind;
     use crate::event::{CanFrame, CanId, DataFrame, LinkState, SourceId, SourceKind};
-    use crate::record::{MAX_LINE, RecordingReader};
+    use crate::record::{MAX_LINE, MAX_NAME, RecordingReader};
 
     fn text(max: usize) -> impl Strategy<Value = String> {
         prop::collection::vec(any::<char>(), 0..max).prop_map(String::from_iter)
@@ -428,6 +428,26 @@ mod tests {
                 prop_assert_eq!(all.get(id), Some(s));
             }
         }
+    }
+
+    #[test]
+    fn the_widest_can_line_the_writer_makes_reads_back() {
+        // The longest name the format holds, every byte escaped (4 bytes
+        // each), a 64-byte FD frame and a time with nanoseconds: the CAN
+        // line parser's name bound (decode::candump::MAX_IFACE) must take it.
+        let name = "\u{1}".repeat(MAX_NAME);
+        let mut sources = SourceTable::default();
+        let id = sources.intern(&name, SourceKind::Can);
+        let frame = CanFrame::Fd(crate::event::FdFrame::new(CanId::Extended(0x1FFF_FFFF), 15, &[0xAB; 64]).unwrap());
+        let ev = Event::new(9_223_372_035_999_999_999, id, Payload::Can(frame));
+        let mut file = Vec::new();
+        {
+            let mut w = RecordingWriter::new(&mut file, &Header { sources: sources.clone(), ..Header::default() }).unwrap();
+            w.write_event(&ev, &sources).unwrap();
+        }
+        let mut r = RecordingReader::new(file.as_slice(), "t").unwrap();
+        assert_eq!(r.next_event(), Some(ev));
+        assert_eq!((r.stats.malformed, r.stats.errors.len()), (0, 0), "{:?}", r.stats.errors);
     }
 
     #[test]
