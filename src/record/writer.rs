@@ -442,7 +442,8 @@ mod tests {
         let ev = Event::new(9_223_372_035_999_999_999, id, Payload::Can(frame));
         let mut file = Vec::new();
         {
-            let mut w = RecordingWriter::new(&mut file, &Header { sources: sources.clone(), ..Header::default() }).unwrap();
+            let mut w =
+                RecordingWriter::new(&mut file, &Header { sources: sources.clone(), ..Header::default() }).unwrap();
             w.write_event(&ev, &sources).unwrap();
         }
         let mut r = RecordingReader::new(file.as_slice(), "t").unwrap();
