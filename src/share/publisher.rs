@@ -16,7 +16,7 @@
 //!
 //! With `--share-accept-control` the connection task also subscribes to
 //! the followers' control topics; each message is checked
-//! ([`super::control::check`]) against the alerts shown now (which the tap
+//! ([`super::requests::check`]) against the alerts shown now (which the tap
 //! keeps for it), an accepted one is handed to the stream's control channel
 //! with `try_reserve_many` (never waiting: a full channel is a refusal,
 //! `busy`), and every sender gets an answer.
@@ -31,10 +31,10 @@ use serde_json::{Value, json};
 use tokio::sync::{mpsc, watch};
 
 use super::broker::{BrokerError, BrokerUrl, TlsFiles};
-use super::control::{self, ControlCounts, Refusal};
 use super::credentials::Credentials;
 use super::payload;
 use super::queue::DropOldest;
+use super::requests::{self, ControlCounts, Refusal};
 use super::topics::Topics;
 use crate::engine::snapshot::SourceView;
 use crate::engine::{Alert, Snapshot};
@@ -62,8 +62,12 @@ pub const HEALTH_EVERY_NS: TimeNs = NS_PER_S;
 /// How long the end of a run waits for the last messages to go out.
 pub const DRAIN_FOR: Duration = Duration::from_secs(2);
 /// Back-off between reconnection attempts: from the first to the most.
+/// The most is kept at half a second so that a station and its followers
+/// are back within two seconds of a broker's return: two connection
+/// attempts a second cost a broker nothing, a longer wait is felt at the
+/// pit wall.
 pub const BACKOFF_FIRST: Duration = Duration::from_millis(100);
-pub const BACKOFF_MAX: Duration = Duration::from_secs(2);
+pub const BACKOFF_MAX: Duration = Duration::from_millis(500);
 
 /// Why sharing could not start.
 #[derive(Debug, thiserror::Error)]
@@ -462,7 +466,7 @@ impl ControlDesk {
     fn take(&self, p: &rumqttc::Publish) {
         let result = {
             let shown = self.shown.lock().unwrap_or_else(|e| e.into_inner());
-            control::check(&self.topics, &p.topic, p.retain, &p.payload, &shown)
+            requests::check(&self.topics, &p.topic, p.retain, &p.payload, &shown)
         };
         let result = result.and_then(|order| {
             let actions = order.actions();
@@ -500,9 +504,9 @@ impl ControlDesk {
         }
         let id = match &result {
             Ok(o) => o.id,
-            Err(_) => control::id_of(&p.payload),
+            Err(_) => requests::id_of(&p.payload),
         };
-        let body = to_vec(&control::answer(to, id, &result));
+        let body = to_vec(&requests::answer(to, id, &result));
         if self.client.try_publish(self.topics.answers(to), QoS::AtLeastOnce, false, body).is_ok() {
             self.stats.messages_published.fetch_add(1, Ordering::Relaxed);
         } else {

@@ -103,7 +103,8 @@ pub(crate) fn free_port() -> u16 {
 /// A headless follower running in the background.
 pub(crate) struct Follower {
     child: Child,
-    lines: mpsc::Receiver<String>,
+    /// Each stdout line with when it came.
+    lines: mpsc::Receiver<(Instant, String)>,
 }
 
 impl Follower {
@@ -121,7 +122,7 @@ impl Follower {
         let out = child.stdout.take().unwrap();
         std::thread::spawn(move || {
             for l in BufReader::new(out).lines().map_while(Result::ok) {
-                let _ = tx.send(l);
+                let _ = tx.send((Instant::now(), l));
             }
         });
         let err = BufReader::new(child.stderr.take().unwrap());
@@ -138,13 +139,19 @@ impl Follower {
     }
 
     /// Every line until the follower ends (at most `within`).
-    pub(crate) fn finish(mut self, within: Duration) -> Vec<Value> {
+    pub(crate) fn finish(self, within: Duration) -> Vec<Value> {
+        self.finish_timed(within).into_iter().map(|(_, v)| v).collect()
+    }
+
+    /// Every line until the follower ends (at most `within`), each with
+    /// when it came.
+    pub(crate) fn finish_timed(mut self, within: Duration) -> Vec<(Instant, Value)> {
         let until = Instant::now() + within;
         let mut out = Vec::new();
         loop {
             let left = until.saturating_duration_since(Instant::now());
             match self.lines.recv_timeout(left) {
-                Ok(l) => out.push(serde_json::from_str(&l).unwrap_or_else(|e| panic!("{e}: {l}"))),
+                Ok((at, l)) => out.push((at, serde_json::from_str(&l).unwrap_or_else(|e| panic!("{e}: {l}")))),
                 Err(mpsc::RecvTimeoutError::Disconnected) => break,
                 Err(mpsc::RecvTimeoutError::Timeout) => {
                     let _ = self.child.kill();
@@ -403,15 +410,17 @@ fn passwords_right_wrong_and_exposed() {
     assert_eq!(summary["share"]["connections"], 1, "{}", summary["share"]);
 }
 
-// Issue 16, item 5 (part): the broker killed and started again during a
-// run: the reading station says the link is down, records every event,
-// says it is up again and republishes the retained description, so a
-// follower that joins after the restart can draw.
+// Issue 16, item 5: the broker killed and started again during a run: the
+// reading station says the link is down, records every event, says it is
+// up again and republishes the retained description, so a follower that
+// joins after the restart can draw; a follower there all along has the
+// latest snapshot again within two seconds of the broker's return.
 #[test]
 fn a_broker_killed_and_restarted_mid_run() {
     let _one = one_at_a_time();
     let broker = Broker::start();
     let url = broker.url();
+    let early = Follower::start(&url, "pit/restart", &["--for", "120s"]);
     let dir = tempfile::tempdir().unwrap();
     let rec_dir = dir.path().to_string_lossy().into_owned();
     let mut run = Command::new(env!("CARGO_BIN_EXE_termvel"))
@@ -453,6 +462,16 @@ fn a_broker_killed_and_restarted_mid_run() {
     assert!(down.saturating_duration_since(killed_at) < Duration::from_secs(1), "down within 1 s");
     assert!(up.saturating_duration_since(restarted_at) < Duration::from_secs(3), "up again within 3 s");
     assert!(got.iter().any(|v| kind_of(v) == "description"), "the description republished after the restart");
+    // The follower there all along: snapshots before the kill, none while
+    // the broker was away, and the latest again soon after its return.
+    let seen = early.finish_timed(Duration::from_secs(60));
+    let snapshot_at = |after: Instant| {
+        seen.iter().find(|(at, v)| *at > after && kind_of(v) == "snapshot").map(|(at, _)| at.duration_since(after))
+    };
+    assert!(seen.iter().any(|(at, v)| *at < killed_at && kind_of(v) == "snapshot"), "snapshots before the kill");
+    let back = snapshot_at(restarted_at).expect("snapshots after the restart");
+    eprintln!("the follower there all along had a snapshot again {back:?} after the restart");
+    assert!(back < Duration::from_secs(2), "caught up {back:?} after the broker's return");
     let summary = parse_lines(&stdout).pop().unwrap();
     let share = &summary["share"];
     assert_eq!(share["connections"], 2, "{share}");
