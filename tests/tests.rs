@@ -38,6 +38,7 @@
 //! - `follow`: `termvel follow` on its own engine: a follower's recording
 //!   replaying bit for bit to the reading station's, a run without event
 //!   batches refused on the screens, the screens followed in tmux.
+//! - `layout`: the rules of docs/ARCHITECTURE.md on imports and file names.
 //! - `signals`: CAN signal decoding property tests (encode then decode).
 //! - `time_and_format`: time jumps, gaps and out-of-order logs, devices and
 //!   files without lines, CRLF, escapes on output, long config lines.
@@ -73,6 +74,8 @@ mod follow;
 mod ground_truth;
 #[path = "suite/kill.rs"]
 mod kill;
+#[path = "suite/layout.rs"]
+mod layout;
 #[path = "suite/live_serial.rs"]
 mod live_serial;
 #[path = "suite/output_faults.rs"]

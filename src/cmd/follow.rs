@@ -23,10 +23,10 @@ use tokio::sync::{mpsc, oneshot, watch};
 use crate::cli::FollowArgs;
 use crate::engine::{Engine, EngineOptions, Snapshot};
 use crate::event::{Event, SourceTable};
-use crate::share::control::{self, Awaiting, Request};
 use crate::share::follower::{self, FollowReport, FollowSettings, Received};
 use crate::share::payload::Kind;
 use crate::share::remote::{BatchOrder, RemoteRun, RemoteStats, parse_batch};
+use crate::share::requests::{self, Awaiting, Request};
 use crate::share::{BrokerUrl, Credentials, TlsFiles, Topics};
 use crate::sources::link::SessionClock;
 use crate::stream::control::Operator;
@@ -217,11 +217,11 @@ pub fn run(args: FollowArgs) -> anyhow::Result<ExitCode> {
     // (the ACL's %u names the control topic after it).
     let sending = args.send_from_stdin || args.send_keys;
     let sender = match (&credentials, sending) {
-        (Some(c), true) if !control::usable_sender(&c.username) => {
+        (Some(c), true) if !requests::usable_sender(&c.username) => {
             return super::unusable(format!(
                 "sending to the reading station: the username \"{}\" cannot name a topic level (no '/', '+', '#' or control characters, at most {} bytes)",
                 crate::printable::clipped(&c.username, 64),
-                control::MAX_SENDER_BYTES
+                requests::MAX_SENDER_BYTES
             ));
         }
         (Some(c), true) => Some(c.username.clone()),
@@ -330,8 +330,8 @@ async fn follow(args: FollowArgs, settings: FollowSettings, sending: Option<Send
     {
         let (topic, a, out) = (topic.clone(), a.clone(), s.out.clone());
         // A thread of its own: reading standard input blocks.
-        std::thread::spawn(move || control::send_lines(std::io::stdin().lock(), &topic, &a, &out));
-        tokio::spawn(control::say_overdue(awaiting.clone().expect("awaiting")));
+        std::thread::spawn(move || requests::send_lines(std::io::stdin().lock(), &topic, &a, &out));
+        tokio::spawn(requests::say_overdue(awaiting.clone().expect("awaiting")));
     }
     // The engine runs on the screens, and headless when recording.
     let engine_wanted = !args.headless || args.record_dir.is_some();

@@ -15,7 +15,7 @@
 //! - [`topics`]: the topic of each kind of message under a prefix.
 //! - [`payload`]: the JSON payloads and their schema version.
 //! - [`publisher`]: the sink, the queues and the publishing thread.
-//! - [`control`]: acknowledgements and marks sent back by followers, and
+//! - [`requests`]: acknowledgements and marks sent back by followers, and
 //!   the reading station's checks on them.
 //! - [`follower`]: subscribing to a shared run and checking what arrives.
 //! - [`remote`]: the run rebuilt on a follower from its description and
@@ -27,13 +27,13 @@
 //! vocabulary. Nothing here imports `ui` or `cmd`.
 
 pub mod broker;
-pub mod control;
 pub mod credentials;
 pub mod follower;
 pub mod payload;
 pub mod publisher;
 pub mod queue;
 pub mod remote;
+pub mod requests;
 pub mod topics;
 
 pub use broker::{BrokerError, BrokerUrl, TlsFiles};

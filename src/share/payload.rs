@@ -34,7 +34,7 @@ pub enum Kind {
     Health,
     Events,
     /// The reading station's answer to a follower's control message
-    /// ([`super::control::answer`]).
+    /// ([`super::requests::answer`]).
     ControlAnswer,
 }
 

@@ -90,25 +90,46 @@ pub fn mark_payload(note: Option<&str>, id: u64) -> Value {
     }
 }
 
+/// Why a line typed on a follower's standard input is not sent.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum CommandError {
+    /// The line holds a control character (an escape sequence?).
+    #[error("control characters are not sent")]
+    ControlCharacter,
+    /// `ack` with nothing after it.
+    #[error("ack needs an alert key (ack KEY; the key as the snapshots name it)")]
+    AckWithoutKey,
+    /// `ack *`: acknowledging every alert is the reading station's own key.
+    #[error("acknowledging every alert at once is left to the reading station")]
+    AckEverything,
+    /// An alert key longer than [`MAX_KEY_BYTES`].
+    #[error("an alert key is at most {MAX_KEY_BYTES} bytes")]
+    KeyTooLong,
+    /// A note longer than [`MAX_NOTE_CHARS`].
+    #[error("a note is at most {MAX_NOTE_CHARS} characters")]
+    NoteTooLong,
+    /// A first word that is neither `ack` nor `mark` (clipped to 40 characters).
+    #[error("\"{0}\" is not a command: ack KEY or mark [NOTE]")]
+    Unknown(String),
+}
+
 /// A command typed on a follower's standard input: `ack KEY` or
 /// `mark [NOTE]`. Checked as the reading station would (lengths, no
 /// control characters), so a typing slip is said at once.
-pub fn parse_command(line: &str) -> Result<Request, String> {
+pub fn parse_command(line: &str) -> Result<Request, CommandError> {
     let line = line.trim();
     let (word, rest) = line.split_once(char::is_whitespace).map_or((line, ""), |(w, r)| (w, r.trim()));
     if !is_safe(rest) {
-        return Err("control characters are not sent".into());
+        return Err(CommandError::ControlCharacter);
     }
     match word {
-        "ack" if rest.is_empty() => Err("ack needs an alert key (ack KEY; the key as the snapshots name it)".into()),
-        "ack" if rest == "*" => Err("acknowledging every alert at once is left to the reading station".into()),
-        "ack" if rest.len() > MAX_KEY_BYTES => Err(format!("an alert key is at most {MAX_KEY_BYTES} bytes")),
+        "ack" if rest.is_empty() => Err(CommandError::AckWithoutKey),
+        "ack" if rest == "*" => Err(CommandError::AckEverything),
+        "ack" if rest.len() > MAX_KEY_BYTES => Err(CommandError::KeyTooLong),
         "ack" => Ok(Request::Ack(rest.to_string())),
-        "mark" if rest.chars().count() > MAX_NOTE_CHARS => {
-            Err(format!("a note is at most {MAX_NOTE_CHARS} characters"))
-        }
+        "mark" if rest.chars().count() > MAX_NOTE_CHARS => Err(CommandError::NoteTooLong),
         "mark" => Ok(Request::Mark((!rest.is_empty()).then(|| rest.to_string()))),
-        _ => Err(format!("\"{}\" is not a command: ack KEY or mark [NOTE]", clipped(word, 40))),
+        _ => Err(CommandError::Unknown(clipped(word, 40).to_string())),
     }
 }
 

@@ -14,12 +14,9 @@ use crate::share::Broker;
 use crate::tmux::Tmux;
 use crate::util::{root, stderr, stdout, termvel};
 
-/// Broker tests share a small machine: one at a time here too.
-static ONE_AT_A_TIME: std::sync::Mutex<()> = std::sync::Mutex::new(());
-
-fn one_at_a_time() -> std::sync::MutexGuard<'static, ()> {
-    ONE_AT_A_TIME.lock().unwrap_or_else(|e| e.into_inner())
-}
+/// Broker tests share a small machine: one at a time, with those of
+/// `share.rs` and `share_security.rs` too (one lock for all of them).
+use crate::share::one_at_a_time;
 
 /// A `termvel follow` in the background, its output collected.
 struct Follow {
