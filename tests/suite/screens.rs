@@ -178,6 +178,21 @@ fn the_power_chart_legend_shows_the_marks_it_uses() {
     assert!(chart.contains('•') && chart.contains('▄') && chart.contains('⣀'), "{chart}");
 }
 
+// Issue 15, item 8, on the battery screen too: its derating chart's legend
+// said `now ■` while the point is drawn `█`.
+#[test]
+fn the_derating_chart_legend_shows_the_mark_it_draws() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Battery;
+    assert!(app.snapshot().is_some_and(|s| s.derived.battery.boosting), "boosting at 60 s");
+    let text = render(&app, 160, 48);
+    let chart: Vec<&str> = text.lines().skip_while(|l| !l.contains("deliverable power, % of rated")).collect();
+    let all: String = chart.join("\n");
+    assert!(all.contains("now █") && !all.contains('■'), "{all}");
+    // The mark in the legend and at least one in the plot itself.
+    assert!(all.matches('█').count() >= 2, "the present point is drawn with the legend's mark: {all}");
+}
+
 // Issue 15, items 13 and 15: `power 0.0 s` read as "boost over" while the
 // pack still delivered; the `┃` on the meters was not labelled.
 #[test]
@@ -236,6 +251,28 @@ fn the_feed_screen_says_why_a_source_is_down() {
     let text = render(&app, 200, 40);
     let row = lines_with(&text, "gnss0");
     assert!(row.iter().any(|l| l.contains("cannot open /dev/nosuchtty")), "{text}");
+    // Narrow, the fixed columns leave no room for it: the reason goes
+    // whole under the table (it was cut to nothing at 80 columns).
+    for (w, h) in [(80, 24), (100, 30)] {
+        let text = render(&app, w, h);
+        assert!(text.contains(&format!(" gnss0: {why}")), "{w}×{h}:\n{text}");
+    }
+}
+
+// Issue 15, item 6: at 80 columns the channels screen's top line was cut
+// to `… 43 of 43 channels, 0 stale, 0 `, losing its words and the derived
+// count; its words shorten instead, at every width.
+#[test]
+fn the_channels_top_line_keeps_every_figure_with_its_word() {
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Channels;
+    let derived = format!("{} der", termvel::engine::quantities::QUANTITIES.len());
+    for w in [80, 100, 120, 200] {
+        let text = render(&app, w, 24);
+        let top = text.lines().nth(1).expect("the top line");
+        assert!(top.contains("43 channels") || top.contains("43/43 ch"), "{w}: {top}");
+        assert!(top.contains("0 stale") && top.contains("0 out of range") && top.contains(&derived), "{w}: {top}");
+    }
 }
 
 // Issue 15, item 14: `CAUTN`, an unlabelled `4.3 s`, a 28-column panel at
@@ -269,7 +306,19 @@ fn the_run_screen_ends_with_a_verdict_and_says_what_it_compares() {
     assert!(text.contains("GNSS +") || text.contains("GNSS -"), "{text}");
     assert!(text.contains(" head ") || text.contains(" tail "), "no wind: {text}");
     let brake = lines_with(&text, " BRAKE ");
-    assert!(brake.iter().any(|l| l.contains("to 80 km/h in")), "the stopping distance's speed: {brake:?}");
+    // Braking from the point ends at the stop-by line at the exit speed:
+    // the line names both, and nothing on it runs past stop-by (it once
+    // printed a stopping distance from today's speed after the point:
+    // `at 6.08 km · to 80 km/h in 734 m`, 6.81 km against a 6.80 km line).
+    let line = brake.iter().find(|l| l.contains(" BRAKE  in ")).expect("the braking line before braking");
+    assert!(line.contains("· 80 km/h by 6.80 km"), "the exit speed and the stop-by line: {line}");
+    let at: f64 = line
+        .split(" · at ")
+        .nth(1)
+        .and_then(|r| r.split(" km").next())
+        .and_then(|n| n.trim().parse().ok())
+        .unwrap_or_else(|| panic!("the braking point: {line}"));
+    assert!(at > 1.0 && at < 6.80, "the braking point {at} km lies before stop-by: {line}");
     // The end of the demo run: stopped, with the peak, the verdict and the
     // stop against the stop-by line, none of them blank or contradictory.
     let mut app = demo_app(1e9, false);
@@ -399,7 +448,7 @@ fn the_run_screen_after_u_reads_in_one_set() {
     // 365 km/h = 226.8 mph.
     assert!(text.contains("target 227 mph out of reach: projected peak 225"), "{text}");
     let brake = lines_with(&text, " BRAKE ");
-    assert!(brake.iter().any(|l| l.contains(" mi to go") && l.contains("to 50 mph in")), "{brake:?}");
+    assert!(brake.iter().any(|l| l.contains(" mi to go") && l.contains("· 50 mph by ")), "{brake:?}");
     // The zone (7.2 km = 4.47 mi) on the axis in miles.
     assert!(text.lines().any(|l| l.trim_start().starts_with("0.0") && l.trim_end().ends_with("4.5│")), "{text}");
     insta::assert_snapshot!("run_imperial_160x48", text);
@@ -647,4 +696,36 @@ fn bus_load_and_the_recordings_name_keep_their_figures() {
         let status = render(&app, 80, 24).lines().last().unwrap().to_string();
         assert!(status.contains("● REC") && status.contains("20260314-074210-replay "), "{}: {status}", s.name());
     }
+}
+
+// Issue 14, item 2 (the screen says which): an estimate certain enough is
+// used before it counts as converged, yet the power screen said `not
+// converged: the vehicle file's values are used` until then; it says what
+// the road load uses and, when it is the file's, why.
+#[test]
+fn the_estimate_panel_says_which_coefficients_the_road_load_uses() {
+    use termvel::engine::derived::CoefficientSource as S;
+    let mut app = demo_app(60.0, false);
+    app.screen = Screen::Power;
+    let base = app.snapshot().expect("a snapshot").clone();
+    let show = |app: &mut App, cda: S, crr: S, converged: bool, w: u16, h: u16| {
+        let mut s = base.clone();
+        let rl = s.derived.road_load.as_mut().expect("a road load at 60 s");
+        rl.cda_source = cda;
+        rl.crr_source = crr;
+        s.derived.estimate.converged = converged;
+        app.on_frame(Arc::new(UiFrame { snapshot: Arc::new(s), status: StreamStatus::default() }));
+        render(app, w, h)
+    };
+    let text = show(&mut app, S::Estimate, S::Estimate, false, 160, 48);
+    assert!(text.contains("in use, certain enough though not yet converged"), "{text}");
+    assert!(!text.contains("file's values"), "{text}");
+    let text = show(&mut app, S::Estimate, S::Estimate, true, 160, 48);
+    assert!(text.contains("converged ✓ · in use"), "{text}");
+    let text = show(&mut app, S::PriorUncertain, S::PriorUncertain, false, 160, 48);
+    assert!(text.contains("the vehicle file's values are used: CdA estimate too uncertain"), "{text}");
+    let text = show(&mut app, S::PriorWithOther, S::PriorUnphysical, false, 160, 48);
+    assert!(text.contains("the vehicle file's values are used: Crr estimate outside a car's range"), "{text}");
+    let text = show(&mut app, S::PriorUnphysical, S::PriorWithOther, false, 80, 24);
+    assert!(text.contains("file values: CdA not a car's"), "{text}");
 }

@@ -240,7 +240,7 @@ fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             .style(t.behind())
             .data(&pts),
         Dataset::default()
-            .name("now ■")
+            .name("now █")
             .marker(Marker::Block)
             .graph_type(GraphType::Scatter)
             .style(t.limit())

@@ -102,24 +102,32 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     };
     let stale = shown.iter().filter(|c| c.stale).count();
     let range = shown.iter().filter(|c| c.out_of_range).count();
-    f.render_widget(
-        Paragraph::new(Line::from(vec![
-            filter,
-            Span::styled(
-                // The unit set first: it decides how every number below reads.
-                format!(
-                    "   {} units (u: {}) · {} of {} channels, {stale} stale, {range} out of range; {} derived",
-                    u.name(),
-                    u.toggle().name(),
-                    shown.len(),
-                    s.channels.len(),
-                    derived.len(),
-                ),
-                t.label(),
-            ),
-        ])),
-        top,
-    );
+    let (n, all, nd) = (shown.len(), s.channels.len(), derived.len());
+    // The unit set first: it decides how every number below reads. Where
+    // the line does not fit, words get shorter and the figures stay.
+    let counts = [
+        format!(
+            "   {} units (u: {}) · {n} of {all} channels, {stale} stale, {range} out of range; {nd} derived",
+            u.name(),
+            u.toggle().name(),
+        ),
+        format!("  {} (u) · {n}/{all} channels · {stale} stale · {range} out of range · {nd} derived", u.name()),
+        format!("  {} · {n}/{all} ch · {stale} stale · {range} out of range · {nd} der.", u.name()),
+    ];
+    let width = top.width as usize;
+    let fits = |a: &str, b: &str| a.chars().count() + b.chars().count() <= width;
+    let quiet = !app.filtering && app.filter.is_empty();
+    let (filter, counts) = counts
+        .iter()
+        .find(|c| fits(&filter.content, c))
+        .map(|c| (filter.clone(), c.clone()))
+        .or_else(|| {
+            // Editing or holding a filter keeps its words; else the hint shortens.
+            let hint = if quiet { Span::styled(" /", t.label()) } else { filter.clone() };
+            counts.iter().find(|c| fits(&hint.content, c)).map(|c| (hint, c.clone()))
+        })
+        .unwrap_or_else(|| (filter.clone(), counts[2].clone()));
+    f.render_widget(Paragraph::new(Line::from(vec![filter, Span::styled(counts, t.label())])), top);
     let visible = table_area.height.saturating_sub(1) as usize;
     let total = shown.len() + derived.len();
     let scroll = app.scroll.min(total.saturating_sub(visible));

@@ -19,6 +19,40 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
     let [sources, bottom] = Layout::vertical([Constraint::Min(6), Constraint::Length(12)]).areas(area);
     let [counts, latency] = Layout::horizontal([Constraint::Percentage(45), Constraint::Percentage(55)]).areas(bottom);
 
+    // The fixed columns take 82 cells with their gaps: below about 110 the
+    // reason a source is down would be cut to nothing, so it goes on lines
+    // of its own under the table, whole.
+    let reasons_below = sources.width < 110;
+    let reason_of = |v: &crate::engine::SourceView| {
+        v.link_reason.as_deref().or(v.last_error.as_deref()).map(|r| crate::printable::printable(r).into_owned())
+    };
+    let reasons: Vec<Line> = if reasons_below {
+        s.sources
+            .iter()
+            .filter(|v| matches!(v.kind, SourceKind::Can | SourceKind::Nmea | SourceKind::Lines))
+            .filter_map(|v| {
+                reason_of(v).map(|r| {
+                    Line::from(vec![
+                        Span::styled(format!(" {}: ", crate::printable::printable(&v.name)), t.label()),
+                        Span::styled(r, t.doubtful()),
+                    ])
+                })
+            })
+            .collect()
+    } else {
+        Vec::new()
+    };
+    let sources = if reasons.is_empty() {
+        sources
+    } else {
+        // At most half the room: the table keeps its rows.
+        let want = reasons.iter().map(|l| l.width().div_ceil(sources.width.max(1) as usize)).sum::<usize>();
+        let h = (want as u16).min(sources.height / 2).max(1);
+        let [table, below] = Layout::vertical([Constraint::Min(3), Constraint::Length(h)]).areas(sources);
+        f.render_widget(Paragraph::new(reasons).wrap(ratatui::widgets::Wrap { trim: false }), below);
+        table
+    };
+
     let header = Row::new([
         "source",
         "kind",
@@ -56,8 +90,12 @@ pub fn draw(f: &mut Frame, area: Rect, app: &App) {
                 v.error_frames.to_string(),
                 // A link that will not come up says why (the same words as
                 // its alert); otherwise the last line that did not parse.
-                crate::printable::printable(v.link_reason.as_deref().or(v.last_error.as_deref()).unwrap_or("—"))
-                    .into_owned(),
+                // On a narrow screen the reason is under the table.
+                match reason_of(v) {
+                    Some(_) if reasons_below => "↓ below".to_string(),
+                    Some(r) => r,
+                    None => "—".to_string(),
+                },
             ])
             .style(style)
         })

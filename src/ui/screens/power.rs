@@ -12,7 +12,7 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, Paragraph};
 
 use crate::engine::Snapshot;
-use crate::engine::derived::AirOrigin;
+use crate::engine::derived::{AirOrigin, CoefficientSource};
 use crate::engine::power_curve::PowerPoint;
 use crate::ui::app::App;
 use crate::ui::format;
@@ -85,6 +85,34 @@ fn draw_breakdown(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     }
 }
 
+/// The words for which coefficients the road load uses and why, and
+/// whether that is the good case (the estimate, converged).
+fn state_words(cda: CoefficientSource, crr: CoefficientSource, converged: bool, narrow: bool) -> (String, bool) {
+    use CoefficientSource as S;
+    if cda == S::Estimate && crr == S::Estimate {
+        return if converged {
+            ("converged ✓ · in use".into(), true)
+        } else if narrow {
+            ("in use, not yet converged".into(), false)
+        } else {
+            ("in use, certain enough though not yet converged".into(), false)
+        };
+    }
+    // The one whose own estimate would not do (the other is held with it).
+    let (name, why) = if cda != S::PriorWithOther && cda != S::Estimate { ("CdA", cda) } else { ("Crr", crr) };
+    let why = match (why, narrow) {
+        (S::PriorUnphysical, true) => "not a car's",
+        (S::PriorUnphysical, false) => "estimate outside a car's range",
+        (_, true) => "too uncertain",
+        (_, false) => "estimate too uncertain",
+    };
+    if narrow {
+        (format!("file values: {name} {why}"), false)
+    } else {
+        (format!("the vehicle file's values are used: {name} {why}"), false)
+    }
+}
+
 fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
     let u = app.units;
@@ -98,13 +126,14 @@ fn draw_estimate(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     f.render_widget(block, area);
     // Below ~48 columns the words get shorter; the figures and units stay.
     let narrow = inner.width < 48;
-    let state = if e.converged {
-        Span::styled("converged ✓", t.good())
-    } else if narrow {
-        Span::styled("not converged: file values used", t.doubtful())
-    } else {
-        Span::styled("not converged: the vehicle file's values are used", t.doubtful())
+    // What the road load uses, as the engine chose it (an estimate is used
+    // before it counts as converged once it is certain enough).
+    let state = match &d.road_load {
+        Some(rl) => state_words(rl.cda_source, rl.crr_source, e.converged, narrow),
+        None if e.converged => ("converged ✓".to_string(), true),
+        None => ("not yet converged".to_string(), false),
     };
+    let state = Span::styled(state.0, if state.1 { t.good() } else { t.doubtful() });
     let veh = &app.info.config.vehicle;
     let mut lines = vec![
         Line::from(vec![

@@ -337,11 +337,14 @@ fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             Span::styled(" BRAKE  ", t.heading()),
             Span::styled(format!("in {}", format::seconds(Some(b.in_s))), t.value()),
             Span::styled(
+                // Braking from the point (at the speed the projection
+                // reaches there) ends at the stop-by line: the line says
+                // so, rather than a stopping distance from today's speed,
+                // which added to the point would overrun it.
                 format!(
-                    " · {} to go · at {} · to {exit_kmh} in {}",
+                    " · {} to go · at {} · {exit_kmh} by {stop_by}",
                     format::distance(u, Some(b.distance_m)),
                     format::distance(u, Some(b.point_m)),
-                    format::distance(u, Some(b.stopping_m))
                 ),
                 t.label(),
             ),
