@@ -260,3 +260,123 @@ fn bad_speeds_are_unusable_input() {
     assert_eq!(out.status.code(), Some(2));
     assert!(crate::util::stderr(&out).contains("first speed below the second"), "{}", crate::util::stderr(&out));
 }
+
+/// The Dart's arguments without an air density: the air from the command
+/// line or the standard atmosphere.
+fn dart_air(extra: &[&str]) -> Value {
+    let mut args = vec![
+        "envelope",
+        "-c",
+        "tests/data/envelope/dart-drag-only.toml",
+        "-c",
+        "tests/data/envelope/level-strip.toml",
+        "-c",
+        "config/signals.toml",
+        "--json",
+    ];
+    args.extend_from_slice(extra);
+    let out = termvel(&args);
+    assert!(out.status.success(), "{}", crate::util::stderr(&out));
+    serde_json::from_str(&stdout(&out)).expect("one JSON document")
+}
+
+/// The speed at which a constant wheel power `p_w` holds against drag in a
+/// headwind `w`: k·(v + w)²·v = P (the drag force acts on the air speed, the
+/// power on the road speed), solved here by bisection, independently of
+/// termvel's root finder.
+fn terminal_in_wind(p_w: f64, k: f64, w: f64) -> f64 {
+    let (mut lo, mut hi) = (0.0_f64, 400.0_f64);
+    for _ in 0..200 {
+        let v = 0.5 * (lo + hi);
+        if k * (v + w).powi(2) * v < p_w { lo = v } else { hi = v }
+    }
+    0.5 * (lo + hi)
+}
+
+// Issue 14, item 7: the headwind given on the command line (`--wind-mps`,
+// a tailwind negative) moves the terminal speeds as the force balance says.
+#[test]
+fn a_wind_given_on_the_command_line_matches_the_force_balance() {
+    let k = 0.5 * RHO * CDA_M2;
+    for w in [3.0, -3.0] {
+        let doc = dart("tests/data/envelope/dart-drag-only.toml", &["--wind-mps", &w.to_string()]);
+        assert!((num(&doc, &["headwind_mps"]) - w).abs() < 1e-12, "{}", doc["headwind_mps"]);
+        for (case, p) in [("rated", P_RATED_W), ("floor", P_FLOOR_W)] {
+            let want = terminal_in_wind(p, k, w);
+            let got = num(&doc, &["terminal", case, "speed_mps"]);
+            assert!(rel(got, want) < 1e-6, "wind {w} m/s, {case}: {got} against {want}");
+        }
+    }
+}
+
+// Issue 14, item 7: the air from the command line and the standard
+// atmosphere. 15 °C, 1013.25 hPa, dry: 1.2250 kg/m³ (the ISO 2533 sea-level
+// density, p/(R·T) with R = 287.05 J/(kg·K); CIPM-2007 adds a
+// compressibility factor of about 0.9996 and 0.04 % CO2, so within 0.1 %);
+// `--standard-air` on the strip at 0 m is the same 1.225 kg/m³ (ISO 2533).
+#[test]
+fn air_from_the_command_line_and_the_standard_atmosphere() {
+    let doc = dart_air(&["--air-temp-c", "15", "--air-pressure-hpa", "1013.25", "--humidity-pct", "0"]);
+    let rho = num(&doc, &["air", "density_kg_m3"]);
+    assert!(rel(rho, 101_325.0 / (287.05 * 288.15)) < 1e-3, "{}", doc["air"]);
+    assert!((num(&doc, &["air", "temp_c"]) - 15.0).abs() < 1e-12, "{}", doc["air"]);
+    // Warmer air is thinner: at 35 °C (same pressure, dry) 288.15/308.15 of it.
+    let warm = num(
+        &dart_air(&["--air-temp-c", "35", "--air-pressure-hpa", "1013.25", "--humidity-pct", "0"]),
+        &["air", "density_kg_m3"],
+    );
+    assert!(rel(warm / rho, 288.15 / 308.15) < 1e-3, "{warm} against {rho}");
+    let std_air = dart_air(&["--standard-air"]);
+    assert!(rel(num(&std_air, &["air", "density_kg_m3"]), 1.225) < 1e-4, "{}", std_air["air"]);
+    // The terminal speed follows the density: Cardano at the density shown.
+    let k = 0.5 * rho * CDA_M2;
+    let want = cardano(P_RATED_W, k, 0.0);
+    assert!(rel(num(&doc, &["terminal", "rated", "speed_mps"]), want) < 1e-6);
+}
+
+// Issue 14, item 7: each sensitivity is what the change itself gives: the
+// Dart with 1 % more drag area or mass written into its file, and the same
+// run with 1 m/s more headwind, reach the speeds the sensitivities say.
+#[test]
+fn sensitivities_are_the_changes_themselves() {
+    let base = dart("tests/data/envelope/dart-rolling.toml", &[]);
+    let sens = |name: &str| {
+        let s = base["sensitivities"].as_array().unwrap().iter().find(|s| s["change"] == name).unwrap_or_else(|| {
+            panic!("no {name}: {}", base["sensitivities"]);
+        });
+        (num(s, &["speed_mps"]), num(s, &["delta_mps"]))
+    };
+    let speed = num(&base, &["run", "speed_mps"]);
+    let text = std::fs::read_to_string(root().join("tests/data/envelope/dart-rolling.toml")).unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    let changed = |from: &str, to: &str| {
+        assert!(text.contains(from), "{from}");
+        let p = dir.path().join("dart.toml");
+        std::fs::write(&p, text.replace(from, to)).unwrap();
+        num(&dart(p.to_str().unwrap(), &[]), &["run", "speed_mps"])
+    };
+    let mut checked = 0;
+    for (name, from, to) in [
+        ("drag_area_plus_1pct", "drag_area_m2 = 0.50", "drag_area_m2 = 0.505"),
+        ("mass_plus_1pct", "mass_kg = 1400.0", "mass_kg = 1414.0"),
+    ] {
+        // The changed file also moves the braking point a little (drag
+        // helps to brake, mass hinders): the change in speed agrees within
+        // 1 % of itself, and the speed within a few parts per million.
+        let (s, d) = sens(name);
+        let got = changed(from, to);
+        eprintln!("{name}: says {s} ({d:+}), the changed file gives {got} ({:+})", got - speed);
+        assert!((d - (got - speed)).abs() <= 0.01 * (got - speed).abs() + 1e-6, "{name}: {d} against {}", got - speed);
+        assert!(rel(s, got) < 2e-5, "{name}: says {s}, the changed file gives {got}");
+        assert!((d - (s - speed)).abs() < 1e-9, "{name}: delta {d} against {}", s - speed);
+        checked += 1;
+    }
+    let (s, d) = sens("headwind_plus_1mps");
+    let got = num(&dart("tests/data/envelope/dart-rolling.toml", &["--wind-mps", "1"]), &["run", "speed_mps"]);
+    eprintln!("headwind: says {s} ({d:+}), 1 m/s more gives {got} ({:+})", got - speed);
+    assert!((d - (got - speed)).abs() <= 0.01 * (got - speed).abs() + 1e-6, "headwind: {d} against {}", got - speed);
+    assert_eq!(checked, 2);
+    // More drag and more wind cost speed; more mass does not add any.
+    assert!(sens("drag_area_plus_1pct").1 < 0.0 && sens("headwind_plus_1mps").1 < 0.0);
+    assert!(sens("mass_plus_1pct").1 <= 0.0);
+}

@@ -3,8 +3,9 @@
 //! the truth), exports and plots that never leave a partial file or
 //! overwrite their input, and write errors that name the path.
 //!
-//! The full-disk tests mount a small tmpfs (CI runs as root); where mount
-//! is not permitted they say so and pass without checking.
+//! The full-disk tests mount a small tmpfs (CI runs as root); as root a
+//! tmpfs that cannot be mounted fails the test, so CI never passes without
+//! checking; as another user they say so and pass without checking.
 
 use std::io::{BufRead, BufReader};
 use std::path::{Path, PathBuf};
@@ -24,8 +25,13 @@ impl Tmpfs {
         let path = dir.path().to_path_buf();
         let out =
             Command::new("mount").args(["-t", "tmpfs", "-o", &format!("size={size}"), "tmpfs"]).arg(&path).output();
+        let root = Command::new("id").arg("-u").output().is_ok_and(|o| o.stdout.trim_ascii() == b"0");
         match out {
             Ok(o) if o.status.success() => Some(Tmpfs { _dir: dir, path }),
+            Ok(o) if root => {
+                panic!("running as root, yet cannot mount a tmpfs: {}", String::from_utf8_lossy(&o.stderr))
+            }
+            Err(e) if root => panic!("running as root, yet cannot run mount: {e}"),
             Ok(o) => {
                 eprintln!("skipped: cannot mount a tmpfs: {}", String::from_utf8_lossy(&o.stderr).trim());
                 None
@@ -93,6 +99,57 @@ fn a_disk_full_to_the_end_exits_1_with_whole_lines_an_alert_and_a_true_count() {
     let unwritten = rec["unwritten_events"].as_u64().unwrap();
     assert!(unwritten > 30_000 && rec["complete"] == false, "{rec}");
     assert!(back["events"].as_u64().unwrap() <= in_file, "{back} {rec}");
+}
+
+// Issue 13, item 1, live: a live session on a serial adapter (a
+// pseudo-terminal) recording to a disk that fills: it said nothing and its
+// summary said `recorded_events: 0`. Now stderr says the recording is
+// failing, the run exits 1, and every event is counted as written or not.
+#[test]
+fn a_live_session_on_a_full_disk_exits_1_and_counts_every_event() {
+    use termvel::event::{CanFrame, CanId, DataFrame};
+    let Some(fs) = Tmpfs::mount("64k") else { return };
+    let mut adapter = crate::pty::Pty::new();
+    let child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["live", "--serial", &format!("{},proto=slcan,name=pt", adapter.path)])
+        .args(["--headless", "--every", "500ms", "--for", "4s", "--record-dir", fs.path.to_str().unwrap()])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    adapter.read_until(b"O\r", std::time::Duration::from_secs(10));
+    std::thread::sleep(std::time::Duration::from_millis(300));
+    let frame = CanFrame::Data(DataFrame::new(CanId::Standard(0x0C4), &[0, 0, 0, 0, 0, 0, 0, 0]).unwrap());
+    let line = format!("{}\r", termvel::decode::slcan::encode(&frame, None).unwrap());
+    // About 60 bytes a recorded frame: 4 000 frames are some 240 kB, far
+    // more than the 64 kB the disk holds.
+    let burst: String = (0..400).map(|_| line.as_str()).collect();
+    for _ in 0..10 {
+        adapter.send(burst.as_bytes());
+        std::thread::sleep(std::time::Duration::from_millis(100));
+    }
+    let o = child.wait_with_output().unwrap();
+    let (out, err) = (stdout(&o), stderr(&o));
+    assert_eq!(o.status.code(), Some(1), "{err}");
+    assert!(err.contains("recording failing") && err.contains("No space left"), "{err}");
+    let s = summary(&out);
+    let rec = &s["recording"];
+    let file = recording_in(&fs.path);
+    assert!(std::fs::read(&file).unwrap().ends_with(b"\n"), "no torn last line");
+    let recorded = rec["recorded_events"].as_u64().unwrap();
+    let unwritten = rec["unwritten_events"].as_u64().unwrap();
+    assert!(recorded > 100 && unwritten > 1000 && rec["complete"] == false, "{rec}");
+    assert!(err.contains(&format!("recorded {recorded} events")), "{err}");
+    assert_eq!(s["can_frames"], 4000, "every frame read: {s}");
+    // Every event the run counted is in the file or counted as unwritten
+    // (the recorder's count also holds the session's own lines: its link
+    // changes and notes, a handful).
+    let events = s["events"].as_u64().unwrap();
+    assert!((events..events + 16).contains(&(recorded + unwritten)), "every event written or counted: {events} {rec}");
+    let back = replayed(&file);
+    assert_eq!(back["torn_tail"], false);
+    assert!(back["events"].as_u64().unwrap() <= recorded, "{back} {rec}");
 }
 
 // Issue 13, item 1: space freed during the run: every event is written,
