@@ -260,3 +260,83 @@ fn a_short_pull_and_a_coast_never_drive_the_projection_with_an_unphysical_drag_a
     assert!(checked > 50, "{checked} snapshots with a projection");
     assert!(failures.is_empty(), "{} bad snapshots, first: {:?}", failures.len(), failures.first());
 }
+
+#[test]
+fn a_motor_only_car_grip_limited_at_launch_never_claims_more_than_it_knows() {
+    // Issue 14, item 3: a motor-only car whose drive is grip-limited at
+    // launch drove the estimator through CdA −8.5 at 7 s to "converged" at
+    // 0.5688 ± 0.0005 m² (truth 0.60) and Crr 0.0229 ± 0.0002 (truth
+    // 0.012). Here the same kind of car (no engine torque, a 300 kW motor
+    // on a pack that can feed it, 0.5 g of grip, the vehicle file's
+    // coefficients 10 % off the truth): no snapshot may say "converged"
+    // with the truth outside ±3 sd, the coefficients in use stay a car's,
+    // and the final estimate holds the truth within ±3 sd.
+    use std::sync::Arc;
+    use termvel::config::ConfigSet;
+    use termvel::config::run_plan::BoostStart;
+    use termvel::engine::{Engine, EngineOptions};
+    use termvel::sources::EventSource;
+
+    let (cda, crr) = (0.60, 0.012);
+    let (mut plan, mut cfg): (_, ConfigSet) = config::load_plan(None, &[]).unwrap();
+    let veh = &mut cfg.vehicle;
+    for t in veh.combustion.curve_torque_nm.iter_mut() {
+        *t = 0.0;
+    }
+    veh.rebuild_envelope();
+    veh.motor_rated_power_w = 300e3;
+    veh.battery.rated_power_w = 330e3;
+    veh.battery.max_current_a = 1000.0;
+    veh.grip_limit_g = 0.5;
+    veh.cda_m2 = cda * 1.1;
+    veh.crr0 = crr * 1.1;
+    plan.faults.clear();
+    plan.car.cda_m2 = Some(cda);
+    plan.car.crr0 = Some(crr);
+    plan.car.mass_kg = None;
+    plan.driver.hold_s = 0.5;
+    plan.driver.boost_start = BoostStart::AtDistance(0.0);
+    plan.driver.throttle_at_m = vec![0.0];
+    plan.driver.throttle = vec![1.0];
+    plan.driver.brake_at_m = 2400.0;
+    plan.driver.tail_s = 1.0;
+    let cfg = Arc::new(cfg);
+    let mut sim = termvel::sim::Simulator::new(cfg.clone(), Arc::new(plan));
+    let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
+    let (mut snapshots, mut converged, mut failures) = (0, 0, Vec::new());
+    let mut lowest = f64::INFINITY;
+    let mut last = None;
+    let mut check = |s: Snapshot| {
+        snapshots += 1;
+        let e = s.derived.estimate;
+        lowest = lowest.min(e.cda_m2.value);
+        if let Some(rl) = s.derived.road_load
+            && (!(0.05..=5.0).contains(&rl.cda_m2) || !(0.0..=0.1).contains(&rl.crr))
+        {
+            failures.push(format!("at {} ns coefficients in use CdA {} Crr {}", s.t_ns, rl.cda_m2, rl.crr));
+        }
+        if e.converged {
+            converged += 1;
+            let z_cda = (e.cda_m2.value - cda) / e.cda_m2.sd;
+            let z_crr = (e.crr.value - crr) / e.crr.sd;
+            if z_cda.abs() > 3.0 || z_crr.abs() > 3.0 {
+                failures
+                    .push(format!("converged with CdA {:?} (z {z_cda:.1}), Crr {:?} (z {z_crr:.1})", e.cda_m2, e.crr));
+            }
+        }
+        last = Some(e);
+    };
+    while let Some(ev) = sim.next_event() {
+        engine.feed(&ev, sim.sources(), &mut check);
+    }
+    engine.finish(sim.sources(), &mut check);
+    let e = last.expect("snapshots");
+    println!(
+        "{snapshots} snapshots, {converged} converged; final CdA {:.4} ± {:.4} (truth {cda}), Crr {:.5} ± {:.5} (truth {crr}); lowest CdA seen {lowest:.3}",
+        e.cda_m2.value, e.cda_m2.sd, e.crr.value, e.crr.sd
+    );
+    assert!(snapshots > 100, "{snapshots}");
+    assert!(failures.is_empty(), "{} bad snapshots, first: {:?}", failures.len(), failures.first());
+    assert!((e.cda_m2.value - cda).abs() <= 3.0 * e.cda_m2.sd, "final CdA {:?} against {cda}", e.cda_m2);
+    assert!((e.crr.value - crr).abs() <= 3.0 * e.crr.sd, "final Crr {:?} against {crr}", e.crr);
+}

@@ -16,7 +16,7 @@ use crate::pty::Pty;
 use crate::util::root;
 
 /// The demo car's pt_state frame (0x0C4) with a speed in km/h.
-fn speed_frame(kmh: f64) -> CanFrame {
+pub(crate) fn speed_frame(kmh: f64) -> CanFrame {
     let cfg = ConfigSet::embedded();
     let m = cfg.signals.messages.iter().find(|m| m.id == CanId::Standard(0x0C4)).unwrap();
     let mut data = [0u8; 8];

@@ -262,6 +262,21 @@ fn an_export_onto_its_input_is_refused_and_the_input_is_kept() {
     assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 2, "no other file");
 }
 
+// Issue 13, item 11: an --out that cannot even be created (its folder is
+// missing) is unusable input: exit 2, the path named, nothing written.
+#[test]
+fn an_export_to_a_folder_that_is_not_there_is_unusable_input() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("no-such-folder").join("run.csv");
+    for to in ["csv", "parquet"] {
+        let o = termvel(&["export", demo().to_str().unwrap(), "--to", to, "--out", out.to_str().unwrap()]);
+        let err = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "{to}: {err}");
+        assert!(err.contains(out.to_str().unwrap()) && err.contains("cannot create"), "{to}: {err}");
+    }
+    assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 0, "nothing written");
+}
+
 /// Runs termvel with stdout on /dev/full.
 fn to_dev_full(args: &[&str]) -> std::process::Output {
     let full = std::fs::OpenOptions::new().write(true).open("/dev/full").unwrap();

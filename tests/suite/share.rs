@@ -410,6 +410,97 @@ fn passwords_right_wrong_and_exposed() {
     assert_eq!(summary["share"]["connections"], 1, "{}", summary["share"]);
 }
 
+// Issue 16, item 1: a replay shares as a rehearsal does: a follower gets
+// the description (naming the replay), the snapshots (each the replay's
+// own headless line) and the end.
+#[test]
+fn a_shared_replay_reaches_a_follower() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let early = Follower::start(&url, "pit/replay", &["--for", "120s"]);
+    let demo = crate::util::demo();
+    let run = termvel(&[
+        "replay",
+        demo.to_str().unwrap(),
+        "--headless",
+        "--no-record",
+        "--speed",
+        "8",
+        "--share",
+        &url,
+        "--share-topic",
+        "pit/replay",
+    ]);
+    assert!(run.status.success(), "{}", stderr(&run));
+    let published = parse_lines(&stdout(&run));
+    let (summary, snaps) = published.split_last().unwrap();
+    assert_eq!(summary["share"]["snapshots"].as_u64(), Some(snaps.len() as u64), "{}", summary["share"]);
+    let got = early.finish(Duration::from_secs(30));
+    let d = got.iter().find(|v| kind_of(v) == "description").expect("the description");
+    assert_eq!(d["command"], "replay", "{d}");
+    let received: Vec<&Value> = got.iter().filter(|v| kind_of(v) == "snapshot").collect();
+    assert!(received.len() as f64 >= 0.99 * snaps.len() as f64, "{} of {}", received.len(), snaps.len());
+    for r in &received {
+        let seq = r["seq"].as_u64().unwrap() as usize;
+        assert_eq!(r["snapshot"], snaps[seq - 1], "snapshot {seq} is the replay's headless line");
+    }
+    let end = got.iter().rev().find(|v| kind_of(v) == "status").unwrap();
+    assert_eq!(end["state"], "ended");
+}
+
+// Issue 16, item 1: a live session on a serial adapter (a pseudo-terminal)
+// shares its snapshots: the follower sees the speed the adapter's frames
+// carry, and the live run records every frame as without sharing.
+#[test]
+fn a_shared_live_session_reaches_a_follower() {
+    let _one = one_at_a_time();
+    let broker = Broker::start();
+    let url = broker.url();
+    let dir = tempfile::tempdir().unwrap();
+    let early = Follower::start(&url, "pit/live", &["--for", "120s"]);
+    let mut adapter = crate::pty::Pty::new();
+    let child = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["live", "--serial", &format!("{},proto=slcan,name=pt", adapter.path)])
+        .args(["--headless", "--every", "200ms", "--for", "3s", "--record-dir", dir.path().to_str().unwrap()])
+        .args(["--share", &url, "--share-topic", "pit/live"])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    adapter.read_until(b"O\r", Duration::from_secs(10));
+    std::thread::sleep(Duration::from_millis(300));
+    let frame = termvel::decode::slcan::encode(&crate::live_serial::speed_frame(250.0), None).unwrap();
+    for _ in 0..20 {
+        adapter.send(format!("{frame}\r").repeat(10).as_bytes());
+        std::thread::sleep(Duration::from_millis(100));
+    }
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let published = parse_lines(&String::from_utf8_lossy(&out.stdout));
+    let (summary, snaps) = published.split_last().unwrap();
+    assert_eq!(summary["summary"]["can_frames"], 200, "{summary}");
+    assert_eq!(summary["share"]["connections"], 1, "{}", summary["share"]);
+    let got = early.finish(Duration::from_secs(30));
+    let d = got.iter().find(|v| kind_of(v) == "description").expect("the description");
+    assert_eq!(d["command"], "live", "{d}");
+    let received: Vec<&Value> = got.iter().filter(|v| kind_of(v) == "snapshot").collect();
+    assert!(
+        snaps.len() >= 10 && received.len() as f64 >= 0.9 * snaps.len() as f64,
+        "{} of {} snapshots: {}",
+        received.len(),
+        snaps.len(),
+        summary["share"]
+    );
+    // 250 km/h = 69.44 m/s, as the adapter's frames said.
+    let last = received.last().unwrap();
+    let v = last["snapshot"]["channels"]["vehicle.speed"]["value"].as_f64().expect("the speed");
+    assert!((v - 250.0 / 3.6).abs() < 0.1, "{last}");
+    let end = got.iter().rev().find(|v| kind_of(v) == "status").unwrap();
+    assert_eq!(end["state"], "ended");
+}
+
 // Issue 16, item 5: the broker killed and started again during a run: the
 // reading station says the link is down, records every event, says it is
 // up again and republishes the retained description, so a follower that
@@ -447,7 +538,13 @@ fn a_broker_killed_and_restarted_mid_run() {
     let broker = Broker::restart(stopped);
     let restarted_at = Instant::now();
     let late = Follower::start(&url, "pit/restart", &["--for", "3s"]);
-    let got = late.finish(Duration::from_secs(20));
+    let joined = Instant::now();
+    let got = late.finish_timed(Duration::from_secs(20));
+    // A follower that joins mid-run has a snapshot to draw within a second.
+    let first = got.iter().find(|(_, v)| kind_of(v) == "snapshot").map(|(at, _)| at.saturating_duration_since(joined));
+    eprintln!("the follower that joined after the restart had its first snapshot {first:?} after subscribing");
+    assert!(first.is_some_and(|d| d < Duration::from_secs(1)), "first snapshot {first:?} after joining");
+    let got: Vec<Value> = got.into_iter().map(|(_, v)| v).collect();
     assert!(run.wait().unwrap().success());
     let stdout = out.join().unwrap();
     let lines: Vec<(Instant, String)> = err_lines.try_iter().collect();
