@@ -215,17 +215,20 @@ fn parse_frame(line: &[u8]) -> Result<SlcanMsg, FrameSyntaxError> {
     Ok(SlcanMsg::Frame { frame, adapter_time_ms })
 }
 
+/// A bit rate the slcan protocol has no command for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, thiserror::Error)]
+#[error(
+    "slcan cannot set a bit rate of {0} bit/s; it offers 10000, 20000, 50000, 100000, 125000, 250000, 500000, \
+     800000 and 1000000"
+)]
+pub struct UnknownBitrate(pub u32);
+
 /// The commands that open the channel at `bitrate` bit/s: `C\r` (close, in
 /// case it was left open), `Sn\r` with `n` from the standard table (10k=0,
 /// 20k=1, 50k=2, 100k=3, 125k=4, 250k=5, 500k=6, 800k=7, 1M=8), then `O\r`.
 /// `Err` for a bit rate not in the table.
-pub fn open_commands(bitrate: u32) -> Result<Vec<u8>, String> {
-    let n = BITRATES.iter().position(|&b| b == bitrate).ok_or_else(|| {
-        format!(
-            "slcan cannot set a bit rate of {bitrate} bit/s; it offers 10000, 20000, 50000, 100000, 125000, \
-             250000, 500000, 800000 and 1000000"
-        )
-    })?;
+pub fn open_commands(bitrate: u32) -> Result<Vec<u8>, UnknownBitrate> {
+    let n = BITRATES.iter().position(|&b| b == bitrate).ok_or(UnknownBitrate(bitrate))?;
     let mut out = b"C\rS".to_vec();
     out.push(DIGITS[n]);
     out.extend_from_slice(b"\rO\r");
@@ -440,7 +443,7 @@ mod tests {
         assert_eq!(open_commands(500_000).unwrap(), b"C\rS6\rO\r");
         assert_eq!(open_commands(10_000).unwrap(), b"C\rS0\rO\r");
         assert_eq!(open_commands(1_000_000).unwrap(), b"C\rS8\rO\r");
-        assert!(open_commands(83_333).unwrap_err().contains("83333"));
+        assert!(open_commands(83_333).unwrap_err().to_string().contains("83333"));
         assert!(open_commands(0).is_err());
         assert_eq!(close_command(), b"C\r");
     }

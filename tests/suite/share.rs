@@ -579,6 +579,57 @@ fn a_broker_killed_and_restarted_mid_run() {
     drop(broker);
 }
 
+/// A shared rehearsal with its event batches during which the broker is
+/// away for `outage` (from 3 s in); its closing summary's share block.
+fn shared_through_an_outage(topic: &str, outage: Duration) -> Value {
+    let broker = Broker::start();
+    let url = broker.url();
+    let mut run = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["rehearse", "--headless", "--no-record", "--speed", "4", "--share", &url, "--share-events"])
+        .args(["--share-topic", topic])
+        .current_dir(root())
+        .stdout(Stdio::piped())
+        .stderr(Stdio::piped())
+        .spawn()
+        .unwrap();
+    // Read as it comes: a full pipe would hold the run up.
+    let (out, err) = (run.stdout.take().unwrap(), run.stderr.take().unwrap());
+    let out = std::thread::spawn(move || std::io::read_to_string(out).unwrap());
+    let err = std::thread::spawn(move || std::io::read_to_string(err).unwrap());
+    std::thread::sleep(Duration::from_secs(3));
+    let stopped = broker.kill();
+    std::thread::sleep(outage);
+    let broker = Broker::restart(stopped);
+    let status = run.wait().unwrap();
+    let (out, err) = (out.join().unwrap(), err.join().unwrap());
+    assert!(status.success(), "{err}");
+    drop(broker);
+    let summary = parse_lines(&out).pop().unwrap();
+    eprintln!("broker away {outage:?}: {}", summary["share"]);
+    summary["share"].clone()
+}
+
+// Issue 16, item 1: while the broker is away, event batches and alert
+// changes wait (up to 10 s) and go out when it returns; what waited longer
+// is counted as not shared, never silently gone.
+#[test]
+fn held_messages_wait_out_a_short_outage_and_a_long_one_is_counted() {
+    let _one = one_at_a_time();
+    let short = shared_through_an_outage("pit/hold-short", Duration::from_secs(3));
+    assert_eq!(short["connections"], 2, "{short}");
+    assert_eq!(short["messages_not_shared"], 0, "a 3 s outage loses nothing held: {short}");
+    let long = shared_through_an_outage("pit/hold-long", Duration::from_secs(13));
+    assert_eq!(long["connections"], 2, "{long}");
+    // About 3 s of the outage's messages waited more than 10 s (at x4, some
+    // forty event batches a second, and health and alert changes): counted,
+    // and with those published they are every message of the run, which is
+    // the same rehearsal as the short one's.
+    let lost = long["messages_not_shared"].as_u64().unwrap();
+    assert!((60..=400).contains(&lost), "messages held past 10 s counted: {long}");
+    let all = short["messages_published"].as_u64().unwrap();
+    assert_eq!(long["messages_published"].as_u64().unwrap() + lost, all, "none vanished: {long}");
+}
+
 // Issue 16, item 2: hostile messages on a shared run's topics (not JSON, a
 // wrong schema, an unknown kind, an escape sequence, over the size limit)
 // are refused, counted and named on stderr; the follower neither prints
