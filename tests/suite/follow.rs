@@ -76,14 +76,14 @@ impl Follow {
     }
 }
 
-fn only_file(dir: &Path) -> PathBuf {
+pub(crate) fn only_file(dir: &Path) -> PathBuf {
     let files: Vec<PathBuf> = std::fs::read_dir(dir).unwrap().map(|e| e.unwrap().path()).collect();
     assert_eq!(files.len(), 1, "{files:?}");
     files[0].clone()
 }
 
 /// The snapshot lines of a headless replay (every line but the summary).
-fn replayed_snapshots(recording: &Path) -> Vec<String> {
+pub(crate) fn replayed_snapshots(recording: &Path) -> Vec<String> {
     let o = termvel(&["replay", recording.to_str().unwrap(), "--headless", "--no-record"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let mut lines: Vec<String> = stdout(&o).lines().map(str::to_string).collect();
