@@ -174,6 +174,9 @@ pub struct Derived {
     /// Power at the wheels against speed (road load, available, engine
     /// only) at the present estimates, for the power screen's chart.
     pub power_curve: Vec<PowerPoint>,
+    /// The derating curves over time in boost (the vehicle file's and the
+    /// fit's), for the battery screen's chart.
+    pub derating_chart: super::derating_chart::DeratingChart,
     /// The run so far: peak, target, phase, the stop against stop-by.
     pub progress: super::progress::ProgressView,
     /// Mean wind along the run the road load uses, m/s, headwind positive.

@@ -11,6 +11,7 @@
 
 pub mod alerts;
 pub mod coastdown;
+pub mod derating_chart;
 pub mod derived;
 pub mod estimators;
 pub mod physics;
@@ -540,6 +541,12 @@ impl Engine {
             self.derate.time_in_boost_s,
             self.derate.fit,
             self.heating.rate_c_per_s(),
+        );
+        d.derating_chart = derating_chart::chart(
+            &self.config.vehicle.battery,
+            self.derate.points.first().map(|p| p.1),
+            self.derate.time_in_boost_s,
+            self.derate.fit,
         );
         // The engine rejects non-finite derived values rather than show them.
         if !d.air_density.is_finite() || d.air_density <= 0.0 {

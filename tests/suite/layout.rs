@@ -56,6 +56,10 @@ fn library_rooms_import_neither_the_command_edge_nor_the_screens() {
     assert_eq!(offenders("crate::cli", EDGE), Vec::<String>::new(), "crate::cli outside the command edge");
     assert_eq!(offenders("crate::ui", &["ui/", "cmd/"]), Vec::<String>::new(), "crate::ui outside ui/ and cmd/");
     assert_eq!(offenders("anyhow", EDGE), Vec::<String>::new(), "anyhow outside the command edge");
+    // Screens only draw: the physics is the engine's.
+    let screens_on_physics: Vec<String> =
+        offenders("engine::physics", &[]).into_iter().filter(|f| f.starts_with("ui/")).collect();
+    assert_eq!(screens_on_physics, Vec::<String>::new(), "a screen computes physics");
     let sources_on_stream: Vec<String> =
         offenders("crate::stream", &[]).into_iter().filter(|f| f.starts_with("sources/")).collect();
     assert_eq!(sources_on_stream, Vec::<String>::new(), "a source imports the stream");

@@ -12,7 +12,6 @@ use ratatui::widgets::{Axis, Block, Borders, Chart, Dataset, GraphType, LegendPo
 
 use crate::engine::Snapshot;
 use crate::engine::derived::BoostLimit;
-use crate::engine::physics::pack::derating_ratio;
 use crate::ui::app::App;
 use crate::ui::format;
 use crate::ui::widgets::meter::Meter;
@@ -192,19 +191,12 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
 fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
     let b = &s.derived.battery;
-    let veh = &app.info.config.vehicle.battery;
-    let span = app.derating.last().map_or(0.0, |p| p.0).max(b.fit.map_or(0.0, |f| f.tau_s * 2.5)).clamp(30.0, 300.0);
+    // The curves come with the snapshot (the engine's); the measured points
+    // are the chart history's.
+    let chart = &s.derived.derating_chart;
+    let span = chart.span_s;
     let pts: Vec<(f64, f64)> = app.derating.iter().map(|&(x, r)| (x, r * 100.0)).collect();
-    let n = 60;
-    let fitted: Vec<(f64, f64)> = match b.fit {
-        Some(fit) => (0..=n).map(|i| span * i as f64 / n as f64).map(|x| (x, fit.ratio_at(x) * 100.0)).collect(),
-        None => vec![],
-    };
-    let r0 = app.derating.first().map_or(1.0, |p| p.1);
-    let prior: Vec<(f64, f64)> = (0..=n)
-        .map(|i| span * i as f64 / n as f64)
-        .map(|x| (x, r0 * derating_ratio(x, veh.derate_tau_s, veh.derate_floor) * 100.0))
-        .collect();
+    let (fitted, prior) = (&chart.fitted, &chart.prior);
     let now: Vec<(f64, f64)> = match b.derating_ratio {
         Some(r) if b.boosting => vec![(b.time_in_boost_s, r * 100.0)],
         _ => vec![],
@@ -226,13 +218,13 @@ fn draw_curve(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
             .marker(Marker::Braille)
             .graph_type(GraphType::Scatter)
             .style(t.dim())
-            .data(&prior),
+            .data(prior),
         Dataset::default()
             .name(fit_name)
             .marker(Marker::Braille)
             .graph_type(GraphType::Line)
             .style(t.good())
-            .data(&fitted),
+            .data(fitted),
         Dataset::default()
             .name("measured •")
             .marker(Marker::Dot)
