@@ -729,3 +729,37 @@ fn the_estimate_panel_says_which_coefficients_the_road_load_uses() {
     let text = show(&mut app, S::PriorUnphysical, S::PriorWithOther, false, 80, 24);
     assert!(text.contains("file values: CdA not a car's"), "{text}");
 }
+
+// Issue 13, item 12, on the screens: a source's name and its reason come
+// from outside (a log's interface names, a device's error text); an escape
+// sequence or a bidirectional override in them is shown escaped, never
+// passed to the terminal.
+#[test]
+fn names_and_reasons_from_outside_are_escaped_on_the_screens() {
+    use termvel::event::{Event, LinkState, Payload, SourceKind, SourceTable};
+    let cfg = Arc::new(ConfigSet::embedded());
+    let mut sources = SourceTable::default();
+    let bad = sources.intern("gn\u{1b}[2Jss", SourceKind::Nmea);
+    let mut engine = Engine::new(cfg.clone(), EngineOptions::default());
+    let why = "cannot open \u{202e}yttsohc/ved/";
+    let t0 = 1_700_000_000_000_000_000;
+    let mut snaps = Vec::new();
+    engine.feed(&Event::new(t0, bad, Payload::Link(LinkState::Down, why.into())), &sources, &mut |s| snaps.push(s));
+    engine.finish(&sources, &mut |s| snaps.push(s));
+    let mut app = App::new(SessionInfo { mode: Mode::Live, config: cfg }, Theme { color: false });
+    app.on_frame(Arc::new(UiFrame {
+        snapshot: Arc::new(snaps.pop().expect("a snapshot")),
+        status: StreamStatus::default(),
+    }));
+    for screen in [Screen::Feed, Screen::Run] {
+        app.screen = screen;
+        for (w, h) in [(200, 40), (80, 24)] {
+            let text = render(&app, w, h);
+            assert!(!text.contains('\u{1b}') && !text.contains('\u{202e}'), "{screen:?} {w}×{h}:\n{text}");
+        }
+    }
+    app.screen = Screen::Feed;
+    let text = render(&app, 200, 40);
+    assert!(text.contains("gn\\x1b[2Jss"), "the name, escaped:\n{text}");
+    assert!(text.contains("cannot open \\u{202e}yttsohc"), "the reason, escaped:\n{text}");
+}
