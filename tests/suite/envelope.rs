@@ -380,3 +380,44 @@ fn sensitivities_are_the_changes_themselves() {
     assert!(sens("drag_area_plus_1pct").1 < 0.0 && sens("headwind_plus_1mps").1 < 0.0);
     assert!(sens("mass_plus_1pct").1 <= 0.0);
 }
+
+// Issue 14, item 7: the README's worked example is what the command prints
+// on the demo car and plan, character for character (a change to either
+// shows here).
+#[test]
+fn the_readme_example_is_the_commands_output() {
+    let readme = std::fs::read_to_string(root().join("README.md")).unwrap();
+    let intro = "The demo car and plan (`termvel envelope --step 40 --from 100 --to 250`):";
+    let at = readme.find(intro).expect("the README's envelope example");
+    let start = readme[at..].find("```text\n").expect("its text block") + at + "```text\n".len();
+    let end = readme[start..].find("```").expect("the end of the block") + start;
+    let out = termvel(&["envelope", "--step", "40", "--from", "100", "--to", "250"]);
+    assert!(out.status.success(), "{}", crate::util::stderr(&out));
+    let printed = stdout(&out);
+    for (i, (a, b)) in readme[start..end].lines().zip(printed.lines()).enumerate() {
+        assert_eq!(a, b, "line {} of the README's example", i + 1);
+    }
+    assert_eq!(readme[start..end].lines().count(), printed.lines().count(), "as many lines");
+}
+
+// Issue 14, item 7: when derating takes the pack below the power the target
+// needs, the time until then, by hand for the Dart: holding 335 km/h takes
+// k·v³ at the wheels, k·v³/(0.95·0.95) from the pack; the pack derates as
+// r(t) = 0.80 + 0.20·e^(−t/60 s) from 300 kW, so it falls short when
+// r(t) = need/300 kW: t = −60·ln((need/300 kW − 0.80)/0.20).
+#[test]
+fn the_time_until_derating_falls_short_matches_a_hand_computation() {
+    let doc = dart("tests/data/envelope/dart-drag-only.toml", &["--target-kmh", "335"]);
+    let b = &doc["battery"];
+    let v = 335.0 / 3.6;
+    let need = 0.5 * RHO * CDA_M2 * v * v * v / (0.95 * 0.95);
+    assert!(rel(num(b, &["needed_w"]), need) < 1e-9, "{b}");
+    assert!((num(b, &["deliverable_w"]) - 300e3).abs() < 1e-6, "{b}");
+    let t = -60.0 * ((need / 300e3 - 0.80) / 0.20).ln();
+    assert!((t - 46.04).abs() < 0.01, "hand value {t}");
+    assert!((num(b, &["time_to_short_s"]) - t).abs() < 1e-6, "{b}");
+    // At the floor the wheels get 216.6 kW, whose terminal speed (323 km/h)
+    // is short of 335: the derated pack cannot supply the run to it.
+    assert!(num(&doc, &["terminal", "floor", "speed_mps"]) < v);
+    assert_eq!(b["floor_supplies"], false, "{b}");
+}
