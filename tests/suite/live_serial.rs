@@ -310,3 +310,57 @@ fn an_adapter_port_records_or_counts_everything_and_never_goes_back_in_time() {
     assert_eq!(replayed["summary"]["parse_errors"], 2);
     assert_eq!(replayed["summary"]["time_reversals"], 0);
 }
+
+// Issue 13, item 9, end to end: a logger that sends a speed of 1e308 km/h
+// (and then sensible ones): the value is rejected and counted, never shown,
+// and the recording it is kept in reports and exports without an infinite
+// or absurd number anywhere.
+#[test]
+fn an_absurd_value_from_a_logger_is_rejected_everywhere_it_could_show() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut logger = Pty::new();
+    let child = spawn_live(&[
+        "--serial".into(),
+        format!("{},proto=lines,name=log", logger.path),
+        "--headless".into(),
+        "--every".into(),
+        "200ms".into(),
+        "--for".into(),
+        "3s".into(),
+        "--record-dir".into(),
+        dir.path().display().to_string(),
+    ]);
+    std::thread::sleep(Duration::from_millis(800));
+    logger.send(format!("{}\n", lines::format(&[("vehicle.speed", Some("km/h"), 1e308)])).as_bytes());
+    for i in 0..10 {
+        std::thread::sleep(Duration::from_millis(100));
+        logger.send(format!("{}\n", lines::format(&[("vehicle.speed", Some("km/h"), 100.0 + i as f64)])).as_bytes());
+    }
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    let stdout = String::from_utf8_lossy(&out.stdout);
+    let summary: serde_json::Value = serde_json::from_str(stdout.lines().last().unwrap()).unwrap();
+    assert_eq!(summary["summary"]["rejected_values"], 1, "{summary}");
+    let absurd = |text: &str| text.contains("inf") || text.contains("NaN") || text.contains("e30");
+    assert!(!absurd(&stdout), "nothing absurd in the headless lines");
+    let rec = recording_in(dir.path());
+    assert!(std::fs::read_to_string(&rec).unwrap().contains("vehicle.speed[km/h]=1e308"), "kept in the recording");
+    // The report: the peak is a speed a car can have.
+    let report =
+        Command::new(env!("CARGO_BIN_EXE_termvel")).args(["report", rec.to_str().unwrap(), "--json"]).output().unwrap();
+    assert!(report.status.success(), "{}", String::from_utf8_lossy(&report.stderr));
+    let r: serde_json::Value = serde_json::from_slice(&report.stdout).unwrap();
+    let text = r.to_string();
+    assert!(!absurd(&text), "{text}");
+    let peak = r["runs"][0]["peak_speed_mps"].as_f64().unwrap_or_else(|| panic!("the run's peak: {text}"));
+    assert!((99.0 / 3.6..=109.5 / 3.6).contains(&peak), "peak {peak} m/s: among the sensible speeds sent");
+    // The export: no column holds it.
+    let csv = dir.path().join("run.csv");
+    let export = Command::new(env!("CARGO_BIN_EXE_termvel"))
+        .args(["export", rec.to_str().unwrap(), "--to", "csv", "--out", csv.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert!(export.status.success(), "{}", String::from_utf8_lossy(&export.stderr));
+    let table = std::fs::read_to_string(&csv).unwrap();
+    assert!(table.lines().count() > 5 && !absurd(&table), "{}", &table[..table.len().min(2000)]);
+}
