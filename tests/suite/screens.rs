@@ -720,10 +720,23 @@ fn the_estimate_panel_says_which_coefficients_the_road_load_uses() {
     let text = show(&mut app, S::Estimate, S::Estimate, false, 160, 48);
     assert!(text.contains("in use, certain enough though not yet converged"), "{text}");
     assert!(!text.contains("file's values"), "{text}");
+    // The run screen's PEAK line says the same (it said `using priors`).
+    for (w, h) in [(160, 48), (80, 24)] {
+        app.screen = Screen::Run;
+        let run = render(&app, w, h);
+        let peak = lines_with(&run, " PEAK ");
+        assert!(peak.iter().any(|l| l.contains("drag: estimate") || l.contains("drag est.")), "{w}: {peak:?}");
+        assert!(!run.contains("priors"), "{run}");
+        app.screen = Screen::Power;
+    }
     let text = show(&mut app, S::Estimate, S::Estimate, true, 160, 48);
     assert!(text.contains("converged ✓ · in use"), "{text}");
     let text = show(&mut app, S::PriorUncertain, S::PriorUncertain, false, 160, 48);
     assert!(text.contains("the vehicle file's values are used: CdA estimate too uncertain"), "{text}");
+    app.screen = Screen::Run;
+    let peak = lines_with(&render(&app, 80, 24), " PEAK ").join("\n");
+    assert!(peak.contains("drag file"), "{peak}");
+    app.screen = Screen::Power;
     let text = show(&mut app, S::PriorWithOther, S::PriorUnphysical, false, 160, 48);
     assert!(text.contains("the vehicle file's values are used: Crr estimate outside a car's range"), "{text}");
     let text = show(&mut app, S::PriorUnphysical, S::PriorWithOther, false, 80, 24);

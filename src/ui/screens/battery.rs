@@ -180,10 +180,11 @@ fn draw_limits(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
         let (val, text, style) = lim(k, v);
         f.render_widget(meter(label, val, 120.0, None, text, style), rows[3 + i]);
     }
-    let curve = if l.curve_fitted {
-        Span::styled(" derating curve: fitted ✓", t.good())
-    } else {
-        Span::styled(" derating curve: the vehicle file's (no fit yet)", t.doubtful())
+    // Shorter words where the panel is narrow (80 columns), never cut.
+    let curve = match (l.curve_fitted, area.width < 50) {
+        (true, _) => Span::styled(" derating curve: fitted ✓", t.good()),
+        (false, false) => Span::styled(" derating curve: the vehicle file's (no fit yet)", t.doubtful()),
+        (false, true) => Span::styled(" derating: file's curve, no fit yet", t.doubtful()),
     };
     f.render_widget(Paragraph::new(Line::from(curve)), rows[7]);
 }

@@ -205,6 +205,30 @@ pub fn boost_text(app: &App, d: &Derived) -> (String, Style) {
     (text, style)
 }
 
+/// What the projection stands on, in words the power and battery screens
+/// share: the drag and rolling coefficients (the estimate when the engine
+/// uses it, else the vehicle file's) and the derating curve (the fit, else
+/// the file's); `true` when both are fitted and settled.
+fn basis_words(d: &Derived, narrow: bool) -> (String, bool) {
+    let estimate_used =
+        d.road_load.is_some_and(|r| r.cda_source == crate::engine::derived::CoefficientSource::Estimate);
+    let fitted = d.boost_left.curve_fitted;
+    if d.estimate.converged && estimate_used && fitted {
+        return ("estimates converged".into(), true);
+    }
+    let words = match (narrow, estimate_used, fitted) {
+        (true, true, true) => "drag est. · derate fit",
+        (true, true, false) => "drag est. · derate file",
+        (true, false, true) => "drag file · derate fit",
+        (true, false, false) => "drag file · derate file",
+        (false, true, true) => "drag: estimate · derating: fit",
+        (false, true, false) => "drag: estimate · derating: file's",
+        (false, false, true) => "drag: file's · derating: fit",
+        (false, false, false) => "drag: file's · derating: file's",
+    };
+    (words.into(), false)
+}
+
 fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     let t = &app.theme;
     let u = app.units;
@@ -265,11 +289,8 @@ fn draw_summary(f: &mut Frame, area: Rect, app: &App, s: &Snapshot) {
     }
     match &d.projection {
         Some(p) => {
-            let basis = if p.converged {
-                Span::styled("  estimates converged", t.good())
-            } else {
-                Span::styled("  unconverged: using priors", t.doubtful())
-            };
+            let (words, good) = basis_words(d, area.width < 100);
+            let basis = Span::styled(format!("  {words}"), if good { t.good() } else { t.doubtful() });
             lines.push(Line::from(vec![
                 Span::styled(" PEAK   ", t.heading()),
                 Span::styled(format!("{} {su}", format::num(Some(u.speed(p.peak_mps)), 0)), t.value()),
